@@ -1,0 +1,6 @@
+//! Reading results: trace, events, summary figures and statistics. Never reaches back into the model.
+
+pub mod events;
+pub mod stats;
+pub mod summary;
+pub mod trace;

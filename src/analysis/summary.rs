@@ -1,0 +1,202 @@
+//! The one-line-per-figure summary of a session (`summary.json`) and its verdict.
+
+use serde::Serialize;
+
+use super::events::{Event, EventKind};
+use super::trace::Trace;
+
+/// Verdict of a run: `ok`, one flag, or a list of flags.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize)]
+#[serde(untagged)]
+pub enum Verdict {
+    One(String),
+    Many(Vec<String>),
+}
+
+impl Verdict {
+    /// Builds the verdict from its flags (`ok` when none).
+    pub fn from_flags(flags: Vec<&str>) -> Self {
+        match flags.len() {
+            0 => Verdict::One("ok".into()),
+            1 => Verdict::One(flags[0].into()),
+            _ => Verdict::Many(flags.into_iter().map(String::from).collect()),
+        }
+    }
+
+    /// Whether the design was flagged.
+    pub fn flagged(&self) -> bool {
+        !matches!(self, Verdict::One(s) if s == "ok")
+    }
+
+    /// The flags as words.
+    pub fn words(&self) -> Vec<String> {
+        match self {
+            Verdict::One(s) => vec![s.clone()],
+            Verdict::Many(v) => v.clone(),
+        }
+    }
+}
+
+/// Energy ledger as written in the summary, J.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct LedgerOut {
+    pub operator_work_j: f64,
+    pub kinetic_change_j: f64,
+    pub drive_loss_j: f64,
+    pub friction_j: f64,
+    pub copper_j: f64,
+    pub brush_j: f64,
+    pub diode_j: f64,
+    pub converter_loss_j: f64,
+    pub battery_internal_loss_j: f64,
+    pub battery_stored_j: f64,
+}
+
+/// Solver figures as written in the summary.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SolverOut {
+    pub evaluations: u64,
+    pub accepted_steps: u64,
+    pub rejected_steps: u64,
+    pub segments: u64,
+    pub mode_changes: u64,
+}
+
+/// The contract keys of `summary.json`, then extras.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct Summary {
+    pub setup: String,
+    pub profile: String,
+    pub seed: u64,
+    pub duration_s: f64,
+    pub fidelity: String,
+    pub soc_start: f64,
+    pub soc_end: f64,
+    pub charge_delivered_ah: f64,
+    pub energy_to_battery_wh: f64,
+    pub operator_work_j: f64,
+    pub mean_operator_power_w: f64,
+    pub peak_operator_power_w: f64,
+    pub in_regulation_fraction: f64,
+    pub regulation_loss_s: f64,
+    pub overcharge_s: f64,
+    pub max_battery_v: f64,
+    pub charge_limit_v: f64,
+    pub energy_balance_error: f64,
+    pub alerts: Vec<Event>,
+    pub verdict: Verdict,
+    pub wall_time_s: f64,
+    // Extras after the contract keys.
+    pub topology: String,
+    pub chemistry: String,
+    pub cranking_s: f64,
+    pub charging_fraction: f64,
+    pub lockout_s: f64,
+    pub max_input_v: f64,
+    pub max_battery_temp_c: f64,
+    pub efficiency_crank_to_battery: f64,
+    pub overrides: Vec<String>,
+    pub ledger: LedgerOut,
+    pub solver: SolverOut,
+}
+
+/// Total duration of the events of one kind, s.
+pub fn total_duration(events: &[Event], kind: EventKind) -> f64 {
+    events
+        .iter()
+        .filter(|e| e.kind == kind)
+        .map(|e| e.duration_s)
+        .sum()
+}
+
+/// Peak battery voltage in the trace and the charge limit in force at that sample.
+pub fn battery_peak(trace: &Trace) -> (f64, f64) {
+    trace
+        .rows
+        .iter()
+        .map(|r| (r.battery_v, r.charge_limit_v))
+        .fold((f64::NEG_INFINITY, f64::NAN), |acc, x| {
+            if x.0 > acc.0 {
+                x
+            } else {
+                acc
+            }
+        })
+}
+
+/// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
+/// so that study files are identical for identical inputs.
+pub const SCALAR_KEYS: [&str; 26] = [
+    "duration_s",
+    "fidelity",
+    "soc_start",
+    "soc_end",
+    "charge_delivered_ah",
+    "energy_to_battery_wh",
+    "operator_work_j",
+    "mean_operator_power_w",
+    "peak_operator_power_w",
+    "in_regulation_fraction",
+    "regulation_loss_s",
+    "overcharge_s",
+    "max_battery_v",
+    "charge_limit_v",
+    "energy_balance_error",
+    "verdict",
+    "topology",
+    "chemistry",
+    "cranking_s",
+    "charging_fraction",
+    "lockout_s",
+    "max_input_v",
+    "max_battery_temp_c",
+    "efficiency_crank_to_battery",
+    "alert_count",
+    "alert_kinds",
+];
+
+impl Summary {
+    /// The scalar keys as strings, in [`SCALAR_KEYS`] order.
+    pub fn scalar_values(&self) -> Vec<String> {
+        let mut kinds: Vec<&str> = self.alerts.iter().map(|e| e.kind.as_str()).collect();
+        kinds.sort_unstable();
+        kinds.dedup();
+        vec![
+            fmt(self.duration_s),
+            self.fidelity.clone(),
+            fmt(self.soc_start),
+            fmt(self.soc_end),
+            fmt(self.charge_delivered_ah),
+            fmt(self.energy_to_battery_wh),
+            fmt(self.operator_work_j),
+            fmt(self.mean_operator_power_w),
+            fmt(self.peak_operator_power_w),
+            fmt(self.in_regulation_fraction),
+            fmt(self.regulation_loss_s),
+            fmt(self.overcharge_s),
+            fmt(self.max_battery_v),
+            fmt(self.charge_limit_v),
+            fmt(self.energy_balance_error),
+            self.verdict.words().join("+"),
+            self.topology.clone(),
+            self.chemistry.clone(),
+            fmt(self.cranking_s),
+            fmt(self.charging_fraction),
+            fmt(self.lockout_s),
+            fmt(self.max_input_v),
+            fmt(self.max_battery_temp_c),
+            fmt(self.efficiency_crank_to_battery),
+            self.alerts.len().to_string(),
+            kinds.join("+"),
+        ]
+    }
+}
+
+/// Compact float formatting for tables (shortest round-trip representation).
+pub fn fmt(v: f64) -> String {
+    if v.is_finite() {
+        format!("{v}")
+    } else {
+        String::new()
+    }
+}

@@ -1,0 +1,224 @@
+//! Battery models behind one interface: Li-ion Thevenin pack or lead-acid battery.
+
+pub mod lead_acid;
+pub mod li_ion;
+
+use crate::model::thermal::Lumped;
+use crate::scenario::setup::{Battery, Chemistry};
+
+pub use lead_acid::LeadAcidModel;
+pub use li_ion::LiIonModel;
+
+/// Slow battery states the integrator carries.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BatteryState {
+    /// State of charge, 0 … 1.
+    pub soc: f64,
+    /// Voltage across the RC branch (Li-ion), V.
+    pub v_rc_v: f64,
+    /// Battery temperature, °C.
+    pub temp_c: f64,
+}
+
+/// Power flows inside the battery at one instant, W.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct BatteryPowers {
+    /// Ohmic heat in the series resistance and RC resistor (or the lead-acid over-voltage), W.
+    pub ohmic_w: f64,
+    /// Charge that does not store (coulombic inefficiency, gassing) times OCV, W.
+    pub coulombic_loss_w: f64,
+    /// Rate of chemical storage OCV·η·I, W.
+    pub stored_w: f64,
+    /// Rate of energy stored in the RC capacitance, W.
+    pub rc_store_w: f64,
+}
+
+impl BatteryPowers {
+    /// Heat released in the battery, W.
+    pub fn heat_w(&self) -> f64 {
+        self.ohmic_w + self.coulombic_loss_w
+    }
+}
+
+/// Either battery kind.
+#[derive(Debug, Clone, PartialEq)]
+pub enum BatteryModel {
+    LiIon(LiIonModel),
+    LeadAcid(LeadAcidModel),
+}
+
+impl BatteryModel {
+    /// Builds the model with chemistry defaults filled in.
+    pub fn from_config(b: &Battery) -> Self {
+        match b.chemistry {
+            Chemistry::LeadAcid => BatteryModel::LeadAcid(LeadAcidModel::from_config(b)),
+            _ => BatteryModel::LiIon(LiIonModel::from_config(b)),
+        }
+    }
+
+    /// Capacity, A·s.
+    pub fn capacity_as(&self) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => m.capacity_ah * 3600.0,
+            BatteryModel::LeadAcid(m) => m.capacity_ah * 3600.0,
+        }
+    }
+
+    /// Open-circuit voltage of the whole battery, V.
+    pub fn ocv_v(&self, soc: f64) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => m.ocv_v(soc),
+            BatteryModel::LeadAcid(m) => m.ocv_v(soc),
+        }
+    }
+
+    /// Terminal voltage at current `i` (charging positive), V, with its slope dV/dI, Ω.
+    pub fn terminal_v(&self, i: f64, s: &BatteryState) -> (f64, f64) {
+        match self {
+            BatteryModel::LiIon(m) => m.terminal_v(i, s),
+            BatteryModel::LeadAcid(m) => m.terminal_v(i, s),
+        }
+    }
+
+    /// Current at which the terminal voltage equals `v`, A (negative if `v` is below the rest voltage).
+    pub fn current_at_v(&self, v: f64, s: &BatteryState) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => m.current_at_v(v, s),
+            BatteryModel::LeadAcid(m) => m.current_at_v(v, s),
+        }
+    }
+
+    /// Charge limit of the battery terminals at battery temperature `temp_c`, V.
+    pub fn charge_limit_v(&self, temp_c: f64) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => m.charge_limit_v(temp_c),
+            BatteryModel::LeadAcid(m) => m.absorption_v(temp_c),
+        }
+    }
+
+    /// Lead-acid float voltage at `temp_c`, V; None for Li-ion.
+    pub fn float_v(&self, temp_c: f64) -> Option<f64> {
+        match self {
+            BatteryModel::LiIon(_) => None,
+            BatteryModel::LeadAcid(m) => Some(m.float_v(temp_c)),
+        }
+    }
+
+    /// dSOC/dt at current `i`, 1/s.
+    pub fn soc_rate(&self, i: f64, s: &BatteryState) -> f64 {
+        let eta = self.charge_efficiency(i, s);
+        let eff_i = if i > 0.0 { eta * i } else { i };
+        eff_i / self.capacity_as()
+    }
+
+    /// Charge efficiency at current `i` (1 on discharge).
+    pub fn charge_efficiency(&self, i: f64, s: &BatteryState) -> f64 {
+        if i <= 0.0 {
+            return 1.0;
+        }
+        match self {
+            BatteryModel::LiIon(m) => m.coulombic_efficiency,
+            BatteryModel::LeadAcid(m) => m.charge_efficiency(i, s.soc),
+        }
+    }
+
+    /// dV_RC/dt, V/s (0 for lead-acid).
+    pub fn v_rc_rate(&self, i: f64, s: &BatteryState) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => m.v_rc_rate(i, s),
+            BatteryModel::LeadAcid(_) => 0.0,
+        }
+    }
+
+    /// Internal power flows at current `i` with terminal voltage `v`.
+    pub fn powers(&self, i: f64, v: f64, s: &BatteryState) -> BatteryPowers {
+        let ocv = self.ocv_v(s.soc);
+        let eta = self.charge_efficiency(i, s);
+        let stored = ocv * if i > 0.0 { eta * i } else { i };
+        let coulombic = if i > 0.0 { ocv * (1.0 - eta) * i } else { 0.0 };
+        match self {
+            BatteryModel::LiIon(m) => {
+                let (r0, r1, _c1) = m.pack_rc(s.temp_c);
+                let ohmic = i * i * r0 + s.v_rc_v * s.v_rc_v / r1;
+                BatteryPowers {
+                    ohmic_w: ohmic,
+                    coulombic_loss_w: coulombic,
+                    stored_w: stored,
+                    rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / r1,
+                }
+            }
+            BatteryModel::LeadAcid(_) => BatteryPowers {
+                ohmic_w: (v - ocv) * i,
+                coulombic_loss_w: coulombic,
+                stored_w: stored,
+                rc_store_w: 0.0,
+            },
+        }
+    }
+
+    /// Energy held in the RC capacitance, J.
+    pub fn rc_energy_j(&self, s: &BatteryState) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => {
+                let (_, _, c1) = m.pack_rc(s.temp_c);
+                0.5 * c1 * s.v_rc_v * s.v_rc_v
+            }
+            BatteryModel::LeadAcid(_) => 0.0,
+        }
+    }
+
+    /// Lumped thermal body of the battery.
+    pub fn thermal(&self) -> Lumped {
+        match self {
+            BatteryModel::LiIon(m) => m.thermal,
+            BatteryModel::LeadAcid(m) => m.thermal,
+        }
+    }
+
+    /// Nominal capacity, Ah.
+    pub fn capacity_ah(&self) -> f64 {
+        self.capacity_as() / 3600.0
+    }
+}
+
+/// Lumped thermal body from the battery's mass and surface.
+pub(crate) fn thermal_of(b: &Battery) -> Lumped {
+    Lumped {
+        heat_capacity_j_per_k: b.mass_kg * b.specific_heat_j_per_kg_k,
+        conductance_w_per_k: b.heat_transfer_w_per_m2_k * b.surface_area_m2,
+    }
+}
+
+/// Safeguarded Newton–bisection for a monotone increasing `f` on [lo, hi] with f(lo) ≤ 0 ≤ f(hi).
+/// `f` returns value and slope. Returns the root to `tol` (absolute in x).
+pub fn solve_increasing(
+    mut lo: f64,
+    mut hi: f64,
+    x0: f64,
+    tol: f64,
+    f: impl Fn(f64) -> (f64, f64),
+) -> f64 {
+    let mut x = x0.clamp(lo, hi);
+    for _ in 0..60 {
+        let (fx, dfx) = f(x);
+        if fx == 0.0 {
+            return x;
+        }
+        if fx < 0.0 {
+            lo = x;
+        } else {
+            hi = x;
+        }
+        let newton = if dfx > 0.0 { x - fx / dfx } else { f64::NAN };
+        let next = if newton.is_finite() && newton > lo && newton < hi {
+            newton
+        } else {
+            0.5 * (lo + hi)
+        };
+        if (next - x).abs() <= tol || hi - lo <= tol {
+            return next;
+        }
+        x = next;
+    }
+    x
+}

@@ -1,0 +1,12 @@
+//! Pure physics of the charging chain, SI units, no integrator and no I/O.
+
+pub mod battery;
+pub mod converter;
+pub mod diode;
+pub mod drive;
+pub mod generator;
+pub mod interp;
+pub mod jitter;
+pub mod network;
+pub mod operator;
+pub mod thermal;

@@ -1,0 +1,43 @@
+//! Setups and crank profiles shipped inside the binary (the same files as in `profiles/`).
+
+/// An embedded file: short name, repository path and text.
+#[derive(Debug, Clone, Copy)]
+pub struct Embedded {
+    pub name: &'static str,
+    pub path: &'static str,
+    pub text: &'static str,
+}
+
+macro_rules! embed {
+    ($name:literal, $dir:literal) => {
+        Embedded {
+            name: $name,
+            path: concat!("profiles/", $dir, "/", $name, ".ron"),
+            text: include_str!(concat!("../../profiles/", $dir, "/", $name, ".ron")),
+        }
+    };
+}
+
+/// Shipped setups; the first is the demo.
+pub const SETUPS: &[Embedded] = &[
+    embed!("demo", "setups"),
+    embed!("lead-acid-direct", "setups"),
+];
+
+/// Shipped crank profiles; the first is the default.
+pub const PROFILES: &[Embedded] = &[
+    embed!("steady", "cranking"),
+    embed!("tiring", "cranking"),
+    embed!("sprint-and-rest", "cranking"),
+    embed!("uneven", "cranking"),
+];
+
+/// Looks up a shipped setup by name.
+pub fn setup(name: &str) -> Option<&'static Embedded> {
+    SETUPS.iter().find(|e| e.name == name)
+}
+
+/// Looks up a shipped profile by name.
+pub fn profile(name: &str) -> Option<&'static Embedded> {
+    PROFILES.iter().find(|e| e.name == name)
+}

@@ -1,0 +1,294 @@
+//! Reading setup and profile text, applying `--set` overrides by dotted path, typed parsing with
+//! positions, and range validation. One mechanism for setup and `profile.` keys alike.
+
+use serde::de::DeserializeOwned;
+
+use super::demo;
+use super::error::{InputError, Place};
+use super::profile::Profile;
+use super::ronpath::{self, Segment};
+use super::setup::Setup;
+use super::validate::{self, Violation};
+
+/// Prefix that routes an override to the profile file.
+pub const PROFILE_PREFIX: &str = "profile.";
+
+/// The text of one input and the name used in messages.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SourceText {
+    /// File path as given, or the repository path of an embedded file.
+    pub name: String,
+    pub text: String,
+}
+
+/// Which kind of input a source is.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum InputKind {
+    Setup,
+    Profile,
+}
+
+impl SourceText {
+    /// Reads a path, or a shipped name (`demo`, `steady`…); None gives the embedded default.
+    pub fn resolve(arg: Option<&str>, kind: InputKind) -> Result<Self, InputError> {
+        let (list, lookup): (
+            &[demo::Embedded],
+            fn(&str) -> Option<&'static demo::Embedded>,
+        ) = match kind {
+            InputKind::Setup => (demo::SETUPS, demo::setup),
+            InputKind::Profile => (demo::PROFILES, demo::profile),
+        };
+        let Some(arg) = arg else {
+            let e = &list[0];
+            return Ok(Self::embedded(e));
+        };
+        let path = std::path::Path::new(arg);
+        if path.exists() {
+            return std::fs::read_to_string(path)
+                .map(|text| Self {
+                    name: arg.to_string(),
+                    text,
+                })
+                .map_err(|e| InputError::Read {
+                    path: arg.to_string(),
+                    reason: e.to_string(),
+                });
+        }
+        if let Some(e) = lookup(arg) {
+            return Ok(Self::embedded(e));
+        }
+        let names: Vec<&str> = list.iter().map(|e| e.name).collect();
+        Err(InputError::Read {
+            path: arg.to_string(),
+            reason: format!(
+                "no such file, and not a shipped name (shipped: {})",
+                names.join(", ")
+            ),
+        })
+    }
+
+    fn embedded(e: &demo::Embedded) -> Self {
+        Self {
+            name: format!("{} (embedded)", e.path),
+            text: e.text.to_string(),
+        }
+    }
+
+    /// Short name for summaries: the file stem.
+    pub fn stem(&self) -> String {
+        let first = self.name.split(' ').next().unwrap_or(&self.name);
+        std::path::Path::new(first)
+            .file_stem()
+            .map_or_else(|| first.to_string(), |s| s.to_string_lossy().into_owned())
+    }
+}
+
+/// A `--set KEY=VALUE` pair.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub struct Override {
+    pub key: String,
+    pub value: String,
+}
+
+impl std::str::FromStr for Override {
+    type Err = String;
+    fn from_str(s: &str) -> Result<Self, Self::Err> {
+        let (k, v) = s
+            .split_once('=')
+            .ok_or_else(|| format!("expected KEY=VALUE (e.g. battery.soc_start=0.5), got '{s}'"))?;
+        let key = k.trim();
+        if key.is_empty() || v.trim().is_empty() {
+            return Err(format!("expected KEY=VALUE with both parts, got '{s}'"));
+        }
+        Ok(Self {
+            key: key.to_string(),
+            value: v.trim().to_string(),
+        })
+    }
+}
+
+/// A parsed, validated pair of setup and profile.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Scenario {
+    pub setup: Setup,
+    pub profile: Profile,
+    pub setup_source: SourceText,
+    pub profile_source: SourceText,
+    pub overrides: Vec<Override>,
+}
+
+/// Parses, overrides and validates a setup and a profile.
+pub fn load_scenario(
+    setup: &SourceText,
+    profile: &SourceText,
+    overrides: &[Override],
+) -> Result<Scenario, InputError> {
+    let (mut setup_ov, mut profile_ov) = (Vec::new(), Vec::new());
+    for o in overrides {
+        if let Some(rest) = o.key.strip_prefix(PROFILE_PREFIX) {
+            profile_ov.push((o, rest));
+        } else {
+            setup_ov.push((o, o.key.strip_prefix("setup.").unwrap_or(&o.key)));
+        }
+    }
+    let (s, s_text) = parse_with::<Setup>(setup, &setup_ov)?;
+    let (p, p_text) = parse_with::<Profile>(profile, &profile_ov)?;
+    report(validate::setup(&s), setup, &s_text, &setup_ov, "")?;
+    report(
+        validate::profile(&p),
+        profile,
+        &p_text,
+        &profile_ov,
+        PROFILE_PREFIX,
+    )?;
+    Ok(Scenario {
+        setup: s,
+        profile: p,
+        setup_source: setup.clone(),
+        profile_source: profile.clone(),
+        overrides: overrides.to_vec(),
+    })
+}
+
+/// Applies overrides to the text, then parses it with positions and field paths.
+fn parse_with<T: DeserializeOwned>(
+    src: &SourceText,
+    ovs: &[(&Override, &str)],
+) -> Result<(T, String), InputError> {
+    let mut text = src.text.clone();
+    let mut paths = Vec::with_capacity(ovs.len());
+    for (o, key) in ovs {
+        let path = ronpath::parse_path(key).map_err(|e| InputError::Override {
+            key: o.key.clone(),
+            message: e.to_string(),
+        })?;
+        let edited = ronpath::set(&text, &path, &o.value).map_err(|e| InputError::Override {
+            key: o.key.clone(),
+            message: e.to_string(),
+        })?;
+        text = edited.text;
+        paths.push(((*o).clone(), path));
+    }
+    let opts =
+        ron::Options::default().with_default_extension(ron::extensions::Extensions::IMPLICIT_SOME);
+    let mut de =
+        ron::Deserializer::from_str_with_options(&text, opts).map_err(|e| InputError::Syntax {
+            place: place_at(src, &text, &paths, e.position.line, e.position.col),
+            message: e.code.to_string(),
+        })?;
+    let parsed: Result<T, _> = serde_path_to_error::deserialize(&mut de);
+    match parsed {
+        Ok(v) => {
+            if let Err(e) = de.end() {
+                let se = de.span_error(e);
+                return Err(InputError::Syntax {
+                    place: place_at(src, &text, &paths, se.position.line, se.position.col),
+                    message: format!("{} (text after the end of the value)", se.code),
+                });
+            }
+            Ok((v, text))
+        }
+        Err(e) => {
+            let path = dotted(&e.path().to_string());
+            let inner = e.into_inner();
+            let se = de.span_error(inner.clone());
+            let place = place_at(src, &text, &paths, se.position.line, se.position.col);
+            let message = inner.to_string();
+            if matches!(inner, ron::Error::ExpectedDifferentStructName { .. })
+                || path.is_empty()
+                || path == "?"
+            {
+                Err(InputError::Syntax { place, message })
+            } else {
+                Err(InputError::Field {
+                    place,
+                    path,
+                    message,
+                })
+            }
+        }
+    }
+}
+
+/// Converts serde_path_to_error's `a.b[0].c` to our dotted form `a.b.0.c`.
+fn dotted(p: &str) -> String {
+    p.replace('[', ".").replace(']', "")
+}
+
+/// Maps a position in the edited text to the override that produced it, or to the file.
+fn place_at(
+    src: &SourceText,
+    text: &str,
+    paths: &[(Override, Vec<Segment>)],
+    line: usize,
+    col: usize,
+) -> Place {
+    for (o, path) in paths {
+        let spans = [ronpath::locate(text, path), ronpath::locate_key(text, path)];
+        for s in spans.into_iter().flatten() {
+            let (end_line, end_col) = ronpath::line_col(text, s.end);
+            let after_start = (line, col) >= (s.line, s.col);
+            let before_end = (line, col) <= (end_line, end_col);
+            if after_start && before_end {
+                return Place::Override {
+                    key: o.key.clone(),
+                    value: o.value.clone(),
+                };
+            }
+        }
+    }
+    Place::File {
+        file: src.name.clone(),
+        line,
+        col,
+    }
+}
+
+/// Turns the first range violation into an error with its place.
+fn report(
+    violations: Vec<Violation>,
+    src: &SourceText,
+    text: &str,
+    ovs: &[(&Override, &str)],
+    prefix: &str,
+) -> Result<(), InputError> {
+    let Some(v) = violations.into_iter().next() else {
+        return Ok(());
+    };
+    let place = if let Some((o, _)) = ovs
+        .iter()
+        .find(|(_, k)| *k == v.path || v.path.starts_with(&format!("{k}.")))
+    {
+        Place::Override {
+            key: o.key.clone(),
+            value: o.value.clone(),
+        }
+    } else {
+        let span = ronpath::parse_path(&v.path)
+            .ok()
+            .and_then(|p| ronpath::locate(text, &p).or_else(|| parent_span(text, &p)));
+        match span {
+            Some(s) => Place::File {
+                file: src.name.clone(),
+                line: s.line,
+                col: s.col,
+            },
+            None => Place::FileOnly {
+                file: src.name.clone(),
+            },
+        }
+    };
+    Err(InputError::Range {
+        place,
+        path: format!("{prefix}{}", v.path),
+        value: v.value,
+        allowed: v.allowed,
+    })
+}
+
+/// Span of the nearest present ancestor (for a field left at its default).
+fn parent_span(text: &str, path: &[Segment]) -> Option<ronpath::Span> {
+    (0..path.len())
+        .rev()
+        .find_map(|n| ronpath::locate(text, &path[..n]))
+}

@@ -1,0 +1,12 @@
+//! Scenario input: setup and profile files (RON), validation, `--set` overrides, embedded demo.
+
+pub mod demo;
+pub mod error;
+pub mod load;
+pub mod profile;
+pub mod ronpath;
+pub mod setup;
+pub mod validate;
+
+pub use error::InputError;
+pub use load::{load_scenario, Scenario, SourceText};

@@ -1,0 +1,484 @@
+//! The design under test: drive, generator, diode, converter and battery (a setup `.ron` file).
+
+use serde::{Deserialize, Serialize};
+
+/// A whole charger design. Every physical field carries its unit in its name.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Setup {
+    /// Short name echoed in summaries and tables.
+    pub name: String,
+    /// Free text: what the design is (say that demo data is invented).
+    #[serde(default)]
+    pub description: String,
+    /// Ambient air temperature, °C (−30 … 60).
+    pub ambient_c: f64,
+    /// Belt/gear stages, flywheel, freewheel and friction.
+    pub drive: Drive,
+    /// The permanent-magnet DC generator.
+    pub generator: Generator,
+    /// The protection diode between generator and converter.
+    pub diode: Diode,
+    /// The charger between the input node and the battery.
+    pub converter: Converter,
+    /// The battery being charged.
+    pub battery: Battery,
+    /// Thresholds for alerts and the verdict.
+    #[serde(default)]
+    pub alerts: Alerts,
+    /// Numerical settings (tolerances, trace grid).
+    #[serde(default)]
+    pub solver: Solver,
+}
+
+/// One belt or gear stage; ratio > 1 speeds the generator up.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Stage {
+    /// Speed ratio output/input (0.05 … 100); belts typically 2 … 8 per stage.
+    pub ratio: f64,
+    /// Power efficiency of the stage (0.5 … 1); synchronous belts 0.95 … 0.98.
+    pub efficiency: f64,
+}
+
+/// Mechanical drive from crank to generator shaft.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Drive {
+    /// Stages from crank to generator (1 … 6 stages).
+    pub stages: Vec<Stage>,
+    /// Inertia of crank, handle and the operator's hand/forearm about the crank axis, kg·m² (0 … 1).
+    pub crank_inertia_kg_m2: f64,
+    /// Flywheel on the generator shaft, kg·m² (0 … 0.1).
+    #[serde(default)]
+    pub flywheel_inertia_kg_m2: f64,
+    /// One-way clutch: the generator may overrun (coast) when the crank slows.
+    #[serde(default)]
+    pub freewheel: bool,
+    /// Coulomb (dry) friction torque at the generator shaft, N·m (0 … 1).
+    #[serde(default)]
+    pub coulomb_friction_n_m: f64,
+    /// Viscous friction at the generator shaft, N·m per rad/s (0 … 0.01).
+    #[serde(default)]
+    pub viscous_friction_n_m_s: f64,
+}
+
+/// Permanent-magnet DC generator.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Generator {
+    /// Back-EMF constant, volts per 1000 rpm (0.1 … 500), the datasheet habit.
+    pub back_emf_v_per_krpm: f64,
+    /// Armature (terminal) resistance at 20 °C, Ω (0.001 … 100).
+    pub resistance_ohm: f64,
+    /// Armature inductance, H (0 … 1).
+    #[serde(default = "default_inductance")]
+    pub inductance_h: f64,
+    /// Rotor inertia, kg·m² (0 … 0.1).
+    pub inertia_kg_m2: f64,
+    /// Total brush voltage drop at full current, V (0 … 3); small precious-metal brushes ≈ 0.
+    #[serde(default)]
+    pub brush_drop_v: f64,
+    /// Heat capacity of the winding, J/K (0.1 … 10 000).
+    #[serde(default = "default_winding_heat_capacity")]
+    pub winding_heat_capacity_j_per_k: f64,
+    /// Heat conductance winding to ambient, W/K (0.001 … 100).
+    #[serde(default = "default_winding_conductance")]
+    pub winding_to_ambient_w_per_k: f64,
+}
+
+fn default_inductance() -> f64 {
+    1e-3
+}
+fn default_winding_heat_capacity() -> f64 {
+    60.0
+}
+fn default_winding_conductance() -> f64 {
+    0.8
+}
+
+/// Protection diode model.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "snake_case")]
+pub enum DiodeKind {
+    /// Shockley law with series resistance (Schottky or silicon).
+    Shockley,
+    /// Fixed forward drop, blocks reverse current.
+    Ideal,
+    /// No diode: current may flow both ways.
+    None,
+}
+
+/// A datasheet point of a diode's forward characteristic.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct DiodePoint {
+    /// Forward current, A (1e-6 … 100).
+    pub current_a: f64,
+    /// Forward voltage at that current, V (0.05 … 2).
+    pub forward_v: f64,
+}
+
+/// Protection diode between generator and input capacitor.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Diode {
+    /// `shockley`, `ideal` or `none`.
+    pub kind: DiodeKind,
+    /// Shockley saturation current, A (1e-15 … 1e-2); ignored when `points` is given.
+    #[serde(default)]
+    pub saturation_current_a: Option<f64>,
+    /// Shockley ideality factor n (0.5 … 4); ignored when `points` is given.
+    #[serde(default)]
+    pub ideality: Option<f64>,
+    /// Series resistance, Ω (0 … 10).
+    #[serde(default)]
+    pub series_resistance_ohm: f64,
+    /// Two datasheet points (V_F at two currents) from which I_s and n are derived.
+    #[serde(default)]
+    pub points: Option<Vec<DiodePoint>>,
+    /// Forward drop of the `ideal` kind, V (0 … 2).
+    #[serde(default)]
+    pub forward_v: Option<f64>,
+}
+
+/// Converter topology.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "snake_case")]
+pub enum Topology {
+    /// Asynchronous buck charger with CC/CV control.
+    Buck,
+    /// Diode only: the battery sits on the input node.
+    Direct,
+}
+
+impl Topology {
+    /// The word used in summaries.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Topology::Buck => "buck",
+            Topology::Direct => "direct",
+        }
+    }
+}
+
+/// The charger between input node and battery (averaged model).
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Converter {
+    /// `buck` or `direct`.
+    pub topology: Topology,
+    /// Constant-current limit into the battery, A (0.001 … 50).
+    #[serde(default = "default_charge_current")]
+    pub charge_current_a: f64,
+    /// CV (or absorption) set point of the battery terminal, V; default: the battery's limit.
+    #[serde(default)]
+    pub cv_setpoint_v: Option<f64>,
+    /// Float set point for lead-acid, V; default: the battery's float voltage.
+    #[serde(default)]
+    pub float_setpoint_v: Option<f64>,
+    /// Maximum duty cycle (0.1 … 1).
+    #[serde(default = "default_max_duty")]
+    pub max_duty: f64,
+    /// Fixed switch drop when on (bipolar saturation), V (0 … 3).
+    #[serde(default)]
+    pub switch_drop_v: f64,
+    /// Switch on-resistance, Ω (0 … 5).
+    #[serde(default)]
+    pub switch_resistance_ohm: f64,
+    /// Freewheel (catch) diode drop, V (0 … 2).
+    #[serde(default = "default_catch_drop")]
+    pub catch_diode_drop_v: f64,
+    /// Inductor DC resistance, Ω (0 … 5).
+    #[serde(default)]
+    pub inductor_resistance_ohm: f64,
+    /// Inductance, H (1e-7 … 0.1).
+    #[serde(default = "default_inductance_conv")]
+    pub inductance_h: f64,
+    /// Switching frequency, Hz (1e3 … 5e6).
+    #[serde(default = "default_fsw")]
+    pub switching_frequency_hz: f64,
+    /// Sum of switch rise and fall times, s (0 … 1e-5); switching loss ½·V·I·t·f.
+    #[serde(default)]
+    pub switch_transition_s: f64,
+    /// Controller quiescent current from the input, A (0 … 0.5).
+    #[serde(default)]
+    pub quiescent_current_a: f64,
+    /// UVLO: converter enables when the input rises to this, V (0 … 200).
+    #[serde(default)]
+    pub uvlo_on_v: f64,
+    /// UVLO: converter locks out when the input falls below this, V (0 … uvlo_on_v).
+    #[serde(default)]
+    pub uvlo_off_v: f64,
+    /// Soft-start ramp of the current reference after enabling, s (0 … 10).
+    #[serde(default = "default_soft_start")]
+    pub soft_start_s: f64,
+    /// Input over-voltage limit, V (1 … 1000).
+    #[serde(default = "default_input_ov")]
+    pub input_overvoltage_v: f64,
+    /// Whether the converter shuts down above the input over-voltage limit.
+    #[serde(default)]
+    pub overvoltage_shutdown: bool,
+    /// Input capacitance, F (1e-7 … 1).
+    #[serde(default = "default_cap_in")]
+    pub input_capacitance_f: f64,
+    /// Output capacitance, F (1e-7 … 1).
+    #[serde(default = "default_cap_out")]
+    pub output_capacitance_f: f64,
+    /// Li-ion termination current, A; default C/10 of the pack.
+    #[serde(default)]
+    pub termination_current_a: Option<f64>,
+    /// Lead-acid: leave absorption for float below this current, A; default C/50.
+    #[serde(default)]
+    pub absorption_exit_current_a: Option<f64>,
+    /// Lead-acid: longest absorption stage before float, s (1 … 1e6).
+    #[serde(default = "default_absorption_time")]
+    pub absorption_max_s: f64,
+}
+
+fn default_charge_current() -> f64 {
+    1.0
+}
+fn default_max_duty() -> f64 {
+    0.95
+}
+fn default_catch_drop() -> f64 {
+    0.45
+}
+fn default_inductance_conv() -> f64 {
+    47e-6
+}
+fn default_fsw() -> f64 {
+    150e3
+}
+fn default_soft_start() -> f64 {
+    0.05
+}
+fn default_input_ov() -> f64 {
+    40.0
+}
+fn default_cap_in() -> f64 {
+    470e-6
+}
+fn default_cap_out() -> f64 {
+    100e-6
+}
+fn default_absorption_time() -> f64 {
+    7200.0
+}
+
+/// Battery chemistry.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq, Eq)]
+#[serde(rename_all = "snake_case")]
+pub enum Chemistry {
+    /// Nickel-manganese-cobalt Li-ion (CV 4.20 V/cell).
+    Nmc,
+    /// Lithium cobalt oxide (CV 4.20 V/cell).
+    Lco,
+    /// Nickel-cobalt-aluminium (CV 4.20 V/cell).
+    Nca,
+    /// Lithium iron phosphate (CV 3.65 V/cell).
+    Lfp,
+    /// Lead-acid (flooded, AGM or gel; see `lead_acid_kind`).
+    LeadAcid,
+}
+
+impl Chemistry {
+    /// The word used in summaries.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Chemistry::Nmc => "nmc",
+            Chemistry::Lco => "lco",
+            Chemistry::Nca => "nca",
+            Chemistry::Lfp => "lfp",
+            Chemistry::LeadAcid => "lead_acid",
+        }
+    }
+
+    /// True for the lithium chemistries.
+    pub fn is_lithium(self) -> bool {
+        !matches!(self, Chemistry::LeadAcid)
+    }
+}
+
+/// Lead-acid construction, which sets absorption and float defaults.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq, Eq, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum LeadAcidKind {
+    /// Vented (wet) cells.
+    Flooded,
+    /// Absorbed glass mat VRLA.
+    #[default]
+    Agm,
+    /// Gel VRLA.
+    Gel,
+}
+
+/// Li-ion charge temperature window (JEITA-style bands), °C.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct ChargeWindow {
+    /// No charge below this, °C.
+    pub min_c: f64,
+    /// Reduced current below this (cool band), °C.
+    pub cool_c: f64,
+    /// Reduced CV voltage above this (warm band), °C.
+    pub warm_c: f64,
+    /// No charge above this, °C.
+    pub max_c: f64,
+    /// Current fraction allowed in the cool band (0 … 1).
+    pub cool_current_fraction: f64,
+    /// CV voltage drop per cell in the warm band, V (0 … 0.5).
+    pub warm_cv_drop_v_per_cell: f64,
+}
+
+impl Default for ChargeWindow {
+    fn default() -> Self {
+        Self {
+            min_c: 0.0,
+            cool_c: 10.0,
+            warm_c: 45.0,
+            max_c: 60.0,
+            cool_current_fraction: 0.5,
+            warm_cv_drop_v_per_cell: 0.1,
+        }
+    }
+}
+
+/// The battery: a Li-ion pack (N_s × N_p cells) or a lead-acid battery of N_s cells.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct Battery {
+    /// `nmc`, `lco`, `nca`, `lfp` or `lead_acid`.
+    pub chemistry: Chemistry,
+    /// Lead-acid construction (`flooded`, `agm`, `gel`); ignored for Li-ion.
+    #[serde(default)]
+    pub lead_acid_kind: LeadAcidKind,
+    /// Cells in series (1 … 200); a 12 V lead-acid block has 6.
+    pub cells_series: u32,
+    /// Strings in parallel (1 … 100).
+    #[serde(default = "one_u32")]
+    pub cells_parallel: u32,
+    /// Capacity of the whole battery (pack), Ah (0.01 … 2000); lead-acid: the C10 rating.
+    pub capacity_ah: f64,
+    /// State of charge at the start (0 … 1).
+    pub soc_start: f64,
+    /// Li-ion series resistance per cell at 25 °C, Ω (0 … 1).
+    #[serde(default = "default_r0")]
+    pub cell_r0_ohm: f64,
+    /// Li-ion RC-branch resistance per cell, Ω (0 … 1).
+    #[serde(default = "default_r1")]
+    pub cell_r1_ohm: f64,
+    /// Li-ion RC-branch capacitance per cell, F (1 … 1e6).
+    #[serde(default = "default_c1")]
+    pub cell_c1_f: f64,
+    /// Arrhenius temperature of the resistances, K (0 … 10 000): R(T) = R25·exp(E·(1/T − 1/298.15)).
+    #[serde(default = "default_activation")]
+    pub resistance_activation_k: f64,
+    /// Li-ion coulombic efficiency (0.5 … 1).
+    #[serde(default = "default_coulombic")]
+    pub coulombic_efficiency: f64,
+    /// Charge limit per cell at 25 °C, V: Li-ion CV voltage or lead-acid absorption; default by chemistry.
+    #[serde(default)]
+    pub charge_v_per_cell: Option<f64>,
+    /// Lead-acid float voltage per cell at 25 °C, V; default by kind.
+    #[serde(default)]
+    pub float_v_per_cell: Option<f64>,
+    /// Lead-acid temperature compensation, mV/°C/cell (−10 … 0); default −3.
+    #[serde(default)]
+    pub temp_comp_mv_per_c_per_cell: Option<f64>,
+    /// Lead-acid: the compensated limit is clamped to at most this, V/cell; default 2.50.
+    #[serde(default)]
+    pub max_compensated_v_per_cell: Option<f64>,
+    /// Lead-acid: the compensated limit is clamped to at least this, V/cell; default 2.25.
+    #[serde(default)]
+    pub min_compensated_v_per_cell: Option<f64>,
+    /// Mass, kg (0.001 … 1000).
+    pub mass_kg: f64,
+    /// Specific heat, J/(kg·K) (100 … 5000).
+    #[serde(default = "default_cp")]
+    pub specific_heat_j_per_kg_k: f64,
+    /// Surface area exchanging heat, m² (1e-4 … 10).
+    pub surface_area_m2: f64,
+    /// Convective heat transfer coefficient, W/(m²·K) (0.1 … 100).
+    #[serde(default = "default_h")]
+    pub heat_transfer_w_per_m2_k: f64,
+    /// Battery temperature at the start, °C; default ambient.
+    #[serde(default)]
+    pub temp_start_c: Option<f64>,
+    /// Li-ion charge temperature window.
+    #[serde(default)]
+    pub charge_window: ChargeWindow,
+}
+
+fn one_u32() -> u32 {
+    1
+}
+fn default_r0() -> f64 {
+    0.035
+}
+fn default_r1() -> f64 {
+    0.02
+}
+fn default_c1() -> f64 {
+    2000.0
+}
+fn default_activation() -> f64 {
+    2500.0
+}
+fn default_coulombic() -> f64 {
+    0.998
+}
+fn default_cp() -> f64 {
+    1000.0
+}
+fn default_h() -> f64 {
+    7.0
+}
+
+/// Alert thresholds and the verdict rule.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct Alerts {
+    /// Battery over-temperature alert, °C.
+    pub battery_overtemp_c: f64,
+    /// Verdict `fails_regulation` when the in-regulation fraction of cranking time is below this (0 … 1).
+    pub min_in_regulation_fraction: f64,
+    /// Operator overload alert when W′ balance falls below this fraction of W′ (0 … 1).
+    pub operator_reserve_fraction: f64,
+}
+
+impl Default for Alerts {
+    fn default() -> Self {
+        Self {
+            battery_overtemp_c: 50.0,
+            min_in_regulation_fraction: 0.9,
+            operator_reserve_fraction: 0.1,
+        }
+    }
+}
+
+/// Numerical settings.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct Solver {
+    /// Relative tolerance of the Dopri5 integrator (1e-10 … 1e-2).
+    pub rtol: f64,
+    /// Absolute tolerance (1e-12 … 1e-2).
+    pub atol: f64,
+    /// Largest step, s (1e-4 … 1).
+    pub max_step_s: f64,
+    /// Trace sampling interval, s (0.001 … 60).
+    pub trace_interval_s: f64,
+}
+
+impl Default for Solver {
+    fn default() -> Self {
+        Self {
+            rtol: 1e-6,
+            atol: 1e-8,
+            max_step_s: 0.05,
+            trace_interval_s: 0.1,
+        }
+    }
+}

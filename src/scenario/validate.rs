@@ -1,0 +1,500 @@
+//! Range checks of every physical field, with the path and the allowed range for the message.
+
+use super::profile::Profile;
+use super::setup::{DiodeKind, Setup, Topology};
+
+/// One field outside its allowed range.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Violation {
+    /// Dotted path (`battery.capacity_ah`).
+    pub path: String,
+    /// The value as written.
+    pub value: String,
+    /// The allowed range in words (`0.01 ..= 2000`).
+    pub allowed: String,
+}
+
+/// Collects violations.
+#[derive(Default)]
+struct Checker {
+    out: Vec<Violation>,
+}
+
+impl Checker {
+    /// lo ≤ v ≤ hi and finite.
+    fn range(&mut self, path: &str, v: f64, lo: f64, hi: f64) {
+        if !(v.is_finite() && v >= lo && v <= hi) {
+            self.push(path, v, format!("{lo} ..= {hi}"));
+        }
+    }
+
+    /// lo < v ≤ hi and finite.
+    fn above(&mut self, path: &str, v: f64, lo: f64, hi: f64) {
+        if !(v.is_finite() && v > lo && v <= hi) {
+            self.push(path, v, format!("> {lo} and <= {hi}"));
+        }
+    }
+
+    fn opt_range(&mut self, path: &str, v: Option<f64>, lo: f64, hi: f64) {
+        if let Some(v) = v {
+            self.range(path, v, lo, hi);
+        }
+    }
+
+    fn rule(&mut self, ok: bool, path: &str, value: String, allowed: &str) {
+        if !ok {
+            self.out.push(Violation {
+                path: path.to_string(),
+                value,
+                allowed: allowed.to_string(),
+            });
+        }
+    }
+
+    fn push(&mut self, path: &str, v: f64, allowed: String) {
+        self.out.push(Violation {
+            path: path.to_string(),
+            value: format!("{v}"),
+            allowed,
+        });
+    }
+}
+
+/// Checks a setup; an empty list means valid.
+pub fn setup(s: &Setup) -> Vec<Violation> {
+    let mut c = Checker::default();
+    c.range("ambient_c", s.ambient_c, -30.0, 60.0);
+    let d = &s.drive;
+    c.rule(
+        !d.stages.is_empty() && d.stages.len() <= 6,
+        "drive.stages",
+        format!("{} stages", d.stages.len()),
+        "1 ..= 6 stages",
+    );
+    for (i, st) in d.stages.iter().enumerate() {
+        c.range(&format!("drive.stages.{i}.ratio"), st.ratio, 0.05, 100.0);
+        c.above(
+            &format!("drive.stages.{i}.efficiency"),
+            st.efficiency,
+            0.5,
+            1.0,
+        );
+    }
+    let ratio: f64 = d.stages.iter().map(|s| s.ratio).product();
+    c.rule(
+        (0.05..=500.0).contains(&ratio),
+        "drive.stages",
+        format!("total ratio {ratio}"),
+        "total ratio 0.05 ..= 500",
+    );
+    c.range(
+        "drive.crank_inertia_kg_m2",
+        d.crank_inertia_kg_m2,
+        1e-4,
+        1.0,
+    );
+    c.range(
+        "drive.flywheel_inertia_kg_m2",
+        d.flywheel_inertia_kg_m2,
+        0.0,
+        0.1,
+    );
+    c.range(
+        "drive.coulomb_friction_n_m",
+        d.coulomb_friction_n_m,
+        0.0,
+        1.0,
+    );
+    c.range(
+        "drive.viscous_friction_n_m_s",
+        d.viscous_friction_n_m_s,
+        0.0,
+        0.01,
+    );
+
+    let g = &s.generator;
+    c.range(
+        "generator.back_emf_v_per_krpm",
+        g.back_emf_v_per_krpm,
+        0.1,
+        500.0,
+    );
+    c.range("generator.resistance_ohm", g.resistance_ohm, 0.001, 100.0);
+    c.range("generator.inductance_h", g.inductance_h, 0.0, 1.0);
+    c.range("generator.inertia_kg_m2", g.inertia_kg_m2, 1e-7, 0.1);
+    c.range("generator.brush_drop_v", g.brush_drop_v, 0.0, 3.0);
+    c.range(
+        "generator.winding_heat_capacity_j_per_k",
+        g.winding_heat_capacity_j_per_k,
+        0.1,
+        10_000.0,
+    );
+    c.range(
+        "generator.winding_to_ambient_w_per_k",
+        g.winding_to_ambient_w_per_k,
+        0.001,
+        100.0,
+    );
+
+    let di = &s.diode;
+    c.range(
+        "diode.series_resistance_ohm",
+        di.series_resistance_ohm,
+        0.0,
+        10.0,
+    );
+    c.opt_range(
+        "diode.saturation_current_a",
+        di.saturation_current_a,
+        1e-15,
+        1e-2,
+    );
+    c.opt_range("diode.ideality", di.ideality, 0.5, 4.0);
+    c.opt_range("diode.forward_v", di.forward_v, 0.0, 2.0);
+    if di.kind == DiodeKind::Shockley {
+        match &di.points {
+            Some(p) => {
+                c.rule(
+                    p.len() == 2,
+                    "diode.points",
+                    format!("{} points", p.len()),
+                    "exactly 2 points",
+                );
+                for (i, pt) in p.iter().enumerate() {
+                    c.range(
+                        &format!("diode.points.{i}.current_a"),
+                        pt.current_a,
+                        1e-6,
+                        100.0,
+                    );
+                    c.range(
+                        &format!("diode.points.{i}.forward_v"),
+                        pt.forward_v,
+                        0.05,
+                        2.0,
+                    );
+                }
+                if p.len() == 2 && c.out.is_empty() {
+                    let ok = crate::model::diode::shockley_from_points(
+                        (p[0].current_a, p[0].forward_v),
+                        (p[1].current_a, p[1].forward_v),
+                        di.series_resistance_ohm,
+                    )
+                    .is_some();
+                    c.rule(
+                        ok,
+                        "diode.points",
+                        "the two points".into(),
+                        "two different currents with V_F rising with current (n·V_T between 0.1 mV and 1 V)",
+                    );
+                }
+            }
+            None => c.rule(
+                di.saturation_current_a.is_some() && di.ideality.is_some(),
+                "diode",
+                "no Shockley parameters".into(),
+                "`points` (two datasheet points) or both `saturation_current_a` and `ideality`",
+            ),
+        }
+    }
+
+    let cv = &s.converter;
+    c.range(
+        "converter.charge_current_a",
+        cv.charge_current_a,
+        0.001,
+        50.0,
+    );
+    c.opt_range("converter.cv_setpoint_v", cv.cv_setpoint_v, 0.5, 1000.0);
+    c.opt_range(
+        "converter.float_setpoint_v",
+        cv.float_setpoint_v,
+        0.5,
+        1000.0,
+    );
+    if cv.topology == Topology::Buck {
+        c.range("converter.max_duty", cv.max_duty, 0.1, 1.0);
+        c.range("converter.switch_drop_v", cv.switch_drop_v, 0.0, 3.0);
+        c.range(
+            "converter.switch_resistance_ohm",
+            cv.switch_resistance_ohm,
+            0.0,
+            5.0,
+        );
+        c.range(
+            "converter.catch_diode_drop_v",
+            cv.catch_diode_drop_v,
+            0.0,
+            2.0,
+        );
+        c.range(
+            "converter.inductor_resistance_ohm",
+            cv.inductor_resistance_ohm,
+            0.0,
+            5.0,
+        );
+        c.range("converter.inductance_h", cv.inductance_h, 1e-7, 0.1);
+        c.range(
+            "converter.switching_frequency_hz",
+            cv.switching_frequency_hz,
+            1e3,
+            5e6,
+        );
+        c.range(
+            "converter.switch_transition_s",
+            cv.switch_transition_s,
+            0.0,
+            1e-5,
+        );
+        c.range(
+            "converter.quiescent_current_a",
+            cv.quiescent_current_a,
+            0.0,
+            0.5,
+        );
+        c.range("converter.uvlo_on_v", cv.uvlo_on_v, 0.0, 200.0);
+        c.range(
+            "converter.uvlo_off_v",
+            cv.uvlo_off_v,
+            0.0,
+            cv.uvlo_on_v.max(0.0),
+        );
+        c.range("converter.soft_start_s", cv.soft_start_s, 0.0, 10.0);
+        c.range(
+            "converter.input_overvoltage_v",
+            cv.input_overvoltage_v,
+            1.0,
+            1000.0,
+        );
+        c.range(
+            "converter.input_capacitance_f",
+            cv.input_capacitance_f,
+            1e-7,
+            1.0,
+        );
+        c.range(
+            "converter.output_capacitance_f",
+            cv.output_capacitance_f,
+            1e-7,
+            1.0,
+        );
+        c.opt_range(
+            "converter.termination_current_a",
+            cv.termination_current_a,
+            0.0,
+            50.0,
+        );
+        c.opt_range(
+            "converter.absorption_exit_current_a",
+            cv.absorption_exit_current_a,
+            0.0,
+            50.0,
+        );
+        c.range("converter.absorption_max_s", cv.absorption_max_s, 1.0, 1e6);
+    }
+
+    let b = &s.battery;
+    c.range(
+        "battery.cells_series",
+        f64::from(b.cells_series),
+        1.0,
+        200.0,
+    );
+    c.range(
+        "battery.cells_parallel",
+        f64::from(b.cells_parallel),
+        1.0,
+        100.0,
+    );
+    c.range("battery.capacity_ah", b.capacity_ah, 0.01, 2000.0);
+    c.range("battery.soc_start", b.soc_start, 0.0, 1.0);
+    c.range("battery.cell_r0_ohm", b.cell_r0_ohm, 0.0, 1.0);
+    c.range("battery.cell_r1_ohm", b.cell_r1_ohm, 1e-6, 1.0);
+    c.range("battery.cell_c1_f", b.cell_c1_f, 1.0, 1e6);
+    c.range(
+        "battery.resistance_activation_k",
+        b.resistance_activation_k,
+        0.0,
+        10_000.0,
+    );
+    c.range(
+        "battery.coulombic_efficiency",
+        b.coulombic_efficiency,
+        0.5,
+        1.0,
+    );
+    let lithium = b.chemistry.is_lithium();
+    if lithium {
+        c.opt_range("battery.charge_v_per_cell", b.charge_v_per_cell, 2.0, 4.5);
+        c.rule(
+            b.cell_r0_ohm > 0.0,
+            "battery.cell_r0_ohm",
+            format!("{}", b.cell_r0_ohm),
+            "> 0 for a Li-ion cell",
+        );
+    } else {
+        c.opt_range("battery.charge_v_per_cell", b.charge_v_per_cell, 2.0, 2.7);
+        c.opt_range("battery.float_v_per_cell", b.float_v_per_cell, 2.0, 2.5);
+        c.opt_range(
+            "battery.temp_comp_mv_per_c_per_cell",
+            b.temp_comp_mv_per_c_per_cell,
+            -10.0,
+            0.0,
+        );
+        c.opt_range(
+            "battery.max_compensated_v_per_cell",
+            b.max_compensated_v_per_cell,
+            2.0,
+            2.8,
+        );
+        c.opt_range(
+            "battery.min_compensated_v_per_cell",
+            b.min_compensated_v_per_cell,
+            1.9,
+            2.6,
+        );
+    }
+    c.range("battery.mass_kg", b.mass_kg, 0.001, 1000.0);
+    c.range(
+        "battery.specific_heat_j_per_kg_k",
+        b.specific_heat_j_per_kg_k,
+        100.0,
+        5000.0,
+    );
+    c.range("battery.surface_area_m2", b.surface_area_m2, 1e-4, 10.0);
+    c.range(
+        "battery.heat_transfer_w_per_m2_k",
+        b.heat_transfer_w_per_m2_k,
+        0.1,
+        100.0,
+    );
+    c.opt_range("battery.temp_start_c", b.temp_start_c, -40.0, 80.0);
+    let w = &b.charge_window;
+    c.rule(
+        w.min_c <= w.cool_c && w.cool_c <= w.warm_c && w.warm_c <= w.max_c,
+        "battery.charge_window",
+        format!("{} / {} / {} / {}", w.min_c, w.cool_c, w.warm_c, w.max_c),
+        "min_c <= cool_c <= warm_c <= max_c",
+    );
+    c.range("battery.charge_window.min_c", w.min_c, -40.0, 80.0);
+    c.range("battery.charge_window.max_c", w.max_c, -40.0, 100.0);
+    c.range(
+        "battery.charge_window.cool_current_fraction",
+        w.cool_current_fraction,
+        0.0,
+        1.0,
+    );
+    c.range(
+        "battery.charge_window.warm_cv_drop_v_per_cell",
+        w.warm_cv_drop_v_per_cell,
+        0.0,
+        0.5,
+    );
+
+    let a = &s.alerts;
+    c.range(
+        "alerts.battery_overtemp_c",
+        a.battery_overtemp_c,
+        -40.0,
+        150.0,
+    );
+    c.range(
+        "alerts.min_in_regulation_fraction",
+        a.min_in_regulation_fraction,
+        0.0,
+        1.0,
+    );
+    c.range(
+        "alerts.operator_reserve_fraction",
+        a.operator_reserve_fraction,
+        0.0,
+        1.0,
+    );
+    let so = &s.solver;
+    c.range("solver.rtol", so.rtol, 1e-10, 1e-2);
+    c.range("solver.atol", so.atol, 1e-12, 1e-2);
+    c.range("solver.max_step_s", so.max_step_s, 1e-4, 1.0);
+    c.range("solver.trace_interval_s", so.trace_interval_s, 1e-3, 60.0);
+    c.out
+}
+
+/// Checks a profile; an empty list means valid.
+pub fn profile(p: &Profile) -> Vec<Violation> {
+    let mut c = Checker::default();
+    c.range("cadence_scale", p.cadence_scale, 0.0, 10.0);
+    c.rule(
+        !p.segments.is_empty() && p.segments.len() <= 10_000,
+        "segments",
+        format!("{} segments", p.segments.len()),
+        "1 ..= 10000 segments",
+    );
+    for (i, s) in p.segments.iter().enumerate() {
+        c.range(
+            &format!("segments.{i}.duration_s"),
+            s.duration_s,
+            0.1,
+            86_400.0,
+        );
+        c.range(
+            &format!("segments.{i}.cadence_rpm"),
+            s.cadence_rpm,
+            0.0,
+            400.0,
+        );
+        c.opt_range(
+            &format!("segments.{i}.end_cadence_rpm"),
+            s.end_cadence_rpm,
+            0.0,
+            400.0,
+        );
+    }
+    let o = &p.operator;
+    c.range("operator.peak_torque_n_m", o.peak_torque_n_m, 1.0, 200.0);
+    c.range("operator.max_cadence_rpm", o.max_cadence_rpm, 30.0, 600.0);
+    c.range("operator.critical_power_w", o.critical_power_w, 5.0, 500.0);
+    c.range("operator.w_prime_j", o.w_prime_j, 0.0, 100_000.0);
+    c.range(
+        "operator.peak_power_w",
+        o.peak_power_w,
+        o.critical_power_w.max(5.0),
+        2000.0,
+    );
+    c.range(
+        "operator.tracking_gain_n_m_per_rpm",
+        o.tracking_gain_n_m_per_rpm,
+        0.001,
+        10.0,
+    );
+    c.range("operator.tracking_time_s", o.tracking_time_s, 0.05, 100.0);
+    c.range(
+        "operator.spread.critical_power_w",
+        o.spread.critical_power_w,
+        0.0,
+        200.0,
+    );
+    c.range(
+        "operator.spread.w_prime_j",
+        o.spread.w_prime_j,
+        0.0,
+        50_000.0,
+    );
+    c.range(
+        "operator.spread.cadence_rpm",
+        o.spread.cadence_rpm,
+        0.0,
+        100.0,
+    );
+    let j = &p.jitter;
+    c.range("jitter.wander_rpm", j.wander_rpm, 0.0, 100.0);
+    c.range("jitter.wander_time_s", j.wander_time_s, 0.5, 600.0);
+    c.range("jitter.ripple_fraction", j.ripple_fraction, 0.0, 1.0);
+    c.range("jitter.ripple_phase_rad", j.ripple_phase_rad, -10.0, 10.0);
+    c.rule(
+        j.rest_interval_s == 0.0 || (5.0..=1e5).contains(&j.rest_interval_s),
+        "jitter.rest_interval_s",
+        format!("{}", j.rest_interval_s),
+        "0 (no rests) or 5 ..= 100000",
+    );
+    c.range("jitter.rest_length_s", j.rest_length_s, 0.0, 600.0);
+    c.out
+}

@@ -1,0 +1,585 @@
+//! The integrator loop: Dopri5 (ode_solvers) on segments between events. Each accepted step is
+//! checked for a due mode change; the switching time is located by bisection on the solver's
+//! continuous output and the next segment restarts there, so no step crosses an event blindly.
+//! The trace is sampled from the continuous output on a fixed grid, independent of the steps.
+
+use std::cell::Cell;
+
+use ode_solvers::continuous_output_model::ContinuousOutputModel;
+use ode_solvers::{Dopri5, OutputType, System};
+
+use crate::analysis::events::{Event, EventKind};
+use crate::analysis::trace::{Mode, Trace, TraceRow};
+use crate::units::rad_s_to_rpm;
+
+use super::observe::{codes, Codes, Observer};
+use super::plant::{Discrete, Plant, Point, Stage};
+use super::state::*;
+use super::transitions::{apply, due, Transition};
+
+/// Longest segment between restarts, s (bounds the memory of the continuous output).
+const MAX_SEGMENT_S: f64 = 10.0;
+/// Located switching times are within this of the true crossing, s.
+const EVENT_TOL_S: f64 = 1e-7;
+/// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
+const MAX_CASCADE: usize = 8;
+/// Step limit per segment.
+const MAX_STEPS: u32 = 5_000_000;
+
+/// Model fidelity.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Fidelity {
+    /// Fast electrical states solved algebraically (default).
+    Fast,
+    /// Every electrical state integrated.
+    Detailed,
+}
+
+impl Fidelity {
+    /// The word used in summaries.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Fidelity::Fast => "fast",
+            Fidelity::Detailed => "detailed",
+        }
+    }
+}
+
+/// Numerical options of one run.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct SimOptions {
+    pub duration_s: f64,
+    pub fidelity: Fidelity,
+    pub trace_interval_s: f64,
+    pub rtol: f64,
+    pub atol: f64,
+    pub max_step_s: f64,
+}
+
+/// Why a simulation failed (exit code 3 at the edge).
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum SimError {
+    #[error("the integrator stopped at t = {t_s:.6} s: {reason}; state: {state}")]
+    Solver {
+        t_s: f64,
+        reason: String,
+        state: String,
+    },
+    #[error("the state became non-finite at t = {t_s:.6} s; state: {state}")]
+    NonFinite { t_s: f64, state: String },
+    #[error("the fidelity `{0}` is not available yet")]
+    Unsupported(&'static str),
+}
+
+/// Totals of the energy ledger, J (charge in A·s).
+#[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
+pub struct Ledger {
+    pub operator_work_j: f64,
+    pub kinetic_change_j: f64,
+    pub drive_loss_j: f64,
+    pub friction_j: f64,
+    pub copper_j: f64,
+    pub brush_j: f64,
+    pub diode_j: f64,
+    pub converter_loss_j: f64,
+    pub battery_terminal_j: f64,
+    pub battery_ohmic_j: f64,
+    pub battery_coulombic_j: f64,
+    pub stored_chemical_j: f64,
+    pub rc_change_j: f64,
+    pub charge_as: f64,
+}
+
+impl Ledger {
+    /// Relative closure error |W − ΣE| / max(W, 1 J).
+    pub fn closure_error(&self) -> f64 {
+        let out = self.kinetic_change_j
+            + self.drive_loss_j
+            + self.friction_j
+            + self.copper_j
+            + self.brush_j
+            + self.diode_j
+            + self.converter_loss_j
+            + self.battery_ohmic_j
+            + self.battery_coulombic_j
+            + self.stored_chemical_j
+            + self.rc_change_j;
+        (self.operator_work_j - out).abs() / self.operator_work_j.abs().max(1.0)
+    }
+}
+
+/// Solver statistics.
+#[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
+pub struct SolverStats {
+    pub evaluations: u64,
+    pub accepted_steps: u64,
+    pub rejected_steps: u64,
+    pub segments: u64,
+    pub mode_changes: u64,
+}
+
+/// Everything a run produced.
+#[derive(Debug, Clone)]
+pub struct SimResult {
+    pub trace: Trace,
+    pub events: Vec<Event>,
+    pub ledger: Ledger,
+    pub stats: SolverStats,
+    pub final_state: State,
+    pub duration_s: f64,
+}
+
+/// One accepted step end.
+#[derive(Debug, Clone, Copy)]
+struct StepEnd {
+    t: f64,
+    p: Point,
+}
+
+/// Why a segment stopped early.
+#[derive(Debug, Clone, Copy, PartialEq)]
+enum Stop {
+    Due,
+    NonFinite(f64),
+}
+
+/// Per-segment record filled from the solver's callback.
+#[derive(Debug, Default)]
+struct Recorder {
+    steps: Vec<StepEnd>,
+    stop: Option<Stop>,
+    last_state: Option<State>,
+}
+
+/// The right-hand side handed to ode_solvers: the plant in a fixed mode.
+struct Rhs<'a> {
+    plant: &'a Plant,
+    disc: Discrete,
+    rec: &'a mut Recorder,
+    /// Point of the latest evaluation (the FSAL stage is the accepted point).
+    cache: Cell<Option<(f64, Point)>>,
+    evals: &'a Cell<u64>,
+}
+
+impl System<f64, State> for Rhs<'_> {
+    fn system(&self, t: f64, y: &State, dy: &mut State) {
+        let p = self.plant.eval(t, y, &self.disc);
+        self.plant.derivatives(&p, y, &self.disc, dy);
+        self.cache.set(Some((t, p)));
+        self.evals.set(self.evals.get() + 1);
+    }
+
+    fn solout(&mut self, t: f64, y: &State, _dy: &State) -> bool {
+        if !all_finite(y) {
+            self.rec.stop = Some(Stop::NonFinite(t));
+            self.rec.last_state = Some(*y);
+            return true;
+        }
+        let p = match self.cache.get() {
+            Some((tc, p)) if tc == t => p,
+            _ => self.plant.eval(t, y, &self.disc),
+        };
+        self.rec.steps.push(StepEnd { t, p });
+        self.rec.last_state = Some(*y);
+        if due(self.plant, &p, y, &self.disc).is_some() {
+            self.rec.stop = Some(Stop::Due);
+            return true;
+        }
+        false
+    }
+}
+
+/// Initial state vector of a session.
+pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> State {
+    let mut y = State::zeros();
+    y[W_PRIME] = plant.operator.w_prime_j;
+    y[SOC] = soc_start;
+    y[BATTERY_TEMP] = battery_temp_c;
+    y[WINDING_TEMP] = plant.ambient_c;
+    y
+}
+
+/// Runs one session.
+pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult, SimError> {
+    if opts.fidelity == Fidelity::Detailed {
+        return Err(SimError::Unsupported("detailed"));
+    }
+    let t_end = opts.duration_s;
+    let mut time_events: Vec<f64> = plant
+        .segment_boundaries()
+        .chain(plant.jitter.rests.iter().flat_map(|r| [r.start_s, r.end_s]))
+        .filter(|&t| t > 0.0 && t < t_end)
+        .collect();
+    time_events.push(t_end);
+    time_events.sort_by(f64::total_cmp);
+    time_events.dedup();
+
+    let mut disc = Discrete {
+        enabled: !plant.has_converter(),
+        ov_shutdown: false,
+        stage: Stage::Charging,
+        absorption_since_s: 0.0,
+        band: plant.band(y0[BATTERY_TEMP]),
+        resting: plant.jitter.resting(0.0),
+        engaged: true,
+        soft_done: plant.charger.soft_start_s <= 0.0,
+    };
+    let mut y = y0;
+    let mut t = 0.0;
+    let mut stats = SolverStats::default();
+    let mut observer = Observer::new();
+    let mut sampler = Sampler::new(opts.trace_interval_s, t_end);
+    let evals = Cell::new(0u64);
+
+    cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats);
+    let p0 = plant.eval(t, &y, &disc);
+    observer.set(t, &codes(plant, &p0, &y, &disc), plant, &p0, &y);
+    let mut h_guess: f64 = 0.0;
+    let mut next_event = 0usize;
+
+    while t < t_end {
+        while next_event < time_events.len() && time_events[next_event] <= t {
+            next_event += 1;
+        }
+        let mut t_stop = time_events
+            .get(next_event)
+            .copied()
+            .unwrap_or(t_end)
+            .min(t + MAX_SEGMENT_S);
+        if disc.stage == Stage::Absorption {
+            let deadline = disc.absorption_since_s + plant.charger.absorption_max_s;
+            if deadline > t && deadline < t_stop {
+                t_stop = deadline;
+            }
+        }
+        let mut rec = Recorder::default();
+        let mut model = ContinuousOutputModel::default();
+        let result = {
+            let rhs = Rhs {
+                plant,
+                disc,
+                rec: &mut rec,
+                cache: Cell::new(None),
+                evals: &evals,
+            };
+            let h_max = opts.max_step_s.min(t_stop - t);
+            let mut solver = Dopri5::from_param(
+                rhs,
+                t,
+                t_stop,
+                t_stop - t,
+                y,
+                opts.rtol,
+                opts.atol,
+                0.9,
+                0.04,
+                0.2,
+                10.0,
+                h_max,
+                h_guess.min(h_max),
+                MAX_STEPS,
+                u32::MAX,
+                OutputType::Continuous,
+            );
+            solver.integrate_with_continuous_output_model(&mut model)
+        };
+        stats.segments += 1;
+        let solver_stats = result.map_err(|e| SimError::Solver {
+            t_s: rec.steps.last().map_or(t, |s| s.t),
+            reason: e.to_string(),
+            state: describe(rec.last_state.as_ref().unwrap_or(&y)),
+        })?;
+        stats.accepted_steps += u64::from(solver_stats.accepted_steps);
+        stats.rejected_steps += u64::from(solver_stats.rejected_steps);
+        if let Some(Stop::NonFinite(tf)) = rec.stop {
+            return Err(SimError::NonFinite {
+                t_s: tf,
+                state: describe(rec.last_state.as_ref().unwrap_or(&y)),
+            });
+        }
+        let dense = |tq: f64| model.evaluate(tq).unwrap_or(y);
+
+        // End of the valid part: the located switching time, or the segment end.
+        let n = rec.steps.len();
+        let (t_valid, y_valid) = if rec.stop == Some(Stop::Due) && n > 0 {
+            let lo = if n >= 2 { rec.steps[n - 2].t } else { t };
+            let hi = rec.steps[n - 1].t;
+            let ts = bisect(lo, hi, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, &disc);
+                due(plant, &pq, &yq, &disc).is_some()
+            });
+            (ts, dense(ts))
+        } else {
+            (t_stop, rec.last_state.unwrap_or(y))
+        };
+        if n >= 1 {
+            let last = rec.steps[n - 1].t;
+            let prev = if n >= 2 { rec.steps[n - 2].t } else { t };
+            h_guess = (last - prev).max(1e-6);
+        }
+
+        // Trace samples and watched conditions over (t, t_valid].
+        let mut a = t;
+        for step in rec.steps.iter() {
+            let b = step.t.min(t_valid);
+            if b <= a {
+                continue;
+            }
+            sampler.sample_until(b, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, &disc);
+                observer.touch(&pq, &yq);
+                row(plant, &pq, &yq, &disc)
+            });
+            let (yb, pb) = if b < step.t {
+                let yb = dense(b);
+                (yb, plant.eval(b, &yb, &disc))
+            } else {
+                (dense(b), step.p)
+            };
+            watch(plant, &disc, &mut observer, a, b, &yb, &pb, &dense);
+            observer.touch(&pb, &yb);
+            a = b;
+            if b >= t_valid {
+                break;
+            }
+        }
+        if a < t_valid {
+            // A segment with no recorded step reaching t_valid (cannot normally happen).
+            sampler.sample_until(t_valid, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, &disc);
+                row(plant, &pq, &yq, &disc)
+            });
+        }
+        t = t_valid;
+        y = y_valid;
+
+        // Time events at t: rests start or end.
+        let resting = plant.jitter.resting(t);
+        if resting != disc.resting {
+            disc.resting = resting;
+            stats.mode_changes += 1;
+        }
+        cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats);
+        let p = plant.eval(t, &y, &disc);
+        observer.set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
+    }
+    stats.evaluations = evals.get();
+    let events = observer.finish(t_end);
+    if sampler.rows.last().is_none_or(|r| r.time_s < t_end) {
+        let p = plant.eval(t_end, &y, &disc);
+        sampler.rows.push(row(plant, &p, &y, &disc));
+    }
+    let ledger = ledger_of(plant, &y0, &y);
+    Ok(SimResult {
+        trace: Trace { rows: sampler.rows },
+        events,
+        ledger,
+        stats,
+        final_state: y,
+        duration_s: t_end,
+    })
+}
+
+/// Applies every transition due at (t, y) until none is, recording charge completion.
+fn cascade(
+    plant: &Plant,
+    t: f64,
+    y: &mut State,
+    disc: &mut Discrete,
+    observer: &mut Observer,
+    stats: &mut SolverStats,
+) {
+    for _ in 0..MAX_CASCADE {
+        let p = plant.eval(t, y, disc);
+        let Some(tr) = due(plant, &p, y, disc) else {
+            break;
+        };
+        apply(plant, tr, t, &p, y, disc);
+        stats.mode_changes += 1;
+        if tr == Transition::Terminate {
+            observer.instant(
+                EventKind::ChargeComplete,
+                t,
+                p.net.battery_current_a,
+                "A",
+                "CV current fell below the termination current",
+            );
+        }
+    }
+}
+
+/// Locates changes of the watched conditions inside (a, b] and applies them.
+#[allow(clippy::too_many_arguments)]
+fn watch(
+    plant: &Plant,
+    disc: &Discrete,
+    observer: &mut Observer,
+    a: f64,
+    b: f64,
+    yb: &State,
+    pb: &Point,
+    dense: &dyn Fn(f64) -> State,
+) {
+    let end_codes = codes(plant, pb, yb, disc);
+    let mut lo = a;
+    for _ in 0..WATCH_LIMIT {
+        let now: Codes = observer.current();
+        if now == end_codes {
+            return;
+        }
+        let tc = bisect(lo, b, |tq| {
+            let yq = dense(tq);
+            let pq = plant.eval(tq, &yq, disc);
+            codes(plant, &pq, &yq, disc) != now
+        });
+        let yc = dense(tc);
+        let pc = plant.eval(tc, &yc, disc);
+        observer.set(tc, &codes(plant, &pc, &yc, disc), plant, &pc, &yc);
+        lo = tc;
+    }
+}
+
+/// Most separate condition changes located inside one step.
+const WATCH_LIMIT: usize = 16;
+
+/// Earliest time in (lo, hi] at which `pred` holds, given it holds at `hi` (bisection).
+fn bisect(mut lo: f64, mut hi: f64, pred: impl Fn(f64) -> bool) -> f64 {
+    while hi - lo > EVENT_TOL_S {
+        let mid = 0.5 * (lo + hi);
+        if pred(mid) {
+            hi = mid;
+        } else {
+            lo = mid;
+        }
+    }
+    hi
+}
+
+/// Fixed-grid sampler: row k at k·Δt, plus the final time.
+struct Sampler {
+    dt: f64,
+    t_end: f64,
+    k: u64,
+    rows: Vec<TraceRow>,
+}
+
+impl Sampler {
+    fn new(dt: f64, t_end: f64) -> Self {
+        let n = (t_end / dt).ceil() as usize + 2;
+        Self {
+            dt,
+            t_end,
+            k: 0,
+            rows: Vec::with_capacity(n.min(10_000_000)),
+        }
+    }
+
+    /// Samples every grid time ≤ `b` not yet sampled.
+    fn sample_until(&mut self, b: f64, mut f: impl FnMut(f64) -> TraceRow) {
+        loop {
+            let tk = self.k as f64 * self.dt;
+            if tk > b + 1e-12 || tk > self.t_end + 1e-12 {
+                break;
+            }
+            let tq = tk.min(self.t_end);
+            let mut r = f(tq);
+            r.time_s = tq;
+            self.rows.push(r);
+            self.k += 1;
+        }
+    }
+}
+
+/// Mode word of a point.
+fn mode_of(plant: &Plant, p: &Point, d: &Discrete) -> Mode {
+    use crate::model::battery::li_ion::TempBand;
+    if !plant.has_converter() {
+        return Mode::Direct;
+    }
+    if !d.enabled || d.ov_shutdown {
+        return Mode::Lockout;
+    }
+    if d.stage == Stage::Done {
+        return Mode::Done;
+    }
+    if matches!(p.band, TempBand::TooCold | TempBand::TooHot) {
+        return Mode::TempHold;
+    }
+    if p.net.dropout && p.target_current_a > 0.0 {
+        return Mode::Dropout;
+    }
+    if !d.soft_done {
+        return Mode::SoftStart;
+    }
+    if d.stage == Stage::Float {
+        return Mode::Float;
+    }
+    if p.cv_active {
+        Mode::Cv
+    } else {
+        Mode::Cc
+    }
+}
+
+/// A trace row from a point.
+fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
+    TraceRow {
+        time_s: p.t,
+        crank_rpm: rad_s_to_rpm(p.crank_speed),
+        target_rpm: p.target_rpm,
+        generator_rpm: rad_s_to_rpm(p.gen_speed),
+        emf_v: p.emf_v,
+        generator_current_a: p.net.generator_current_a,
+        input_v: p.net.input_v,
+        duty: p.net.duty,
+        output_v: p.net.battery_v,
+        battery_v: p.net.battery_v,
+        battery_current_a: p.net.battery_current_a,
+        soc: y[SOC],
+        battery_temp_c: y[BATTERY_TEMP],
+        operator_power_w: p.operator_power_w,
+        mode: mode_of(plant, p, d),
+        charge_limit_v: p.charge_limit_v,
+        operator_torque_n_m: p.operator_torque_n_m,
+        w_prime_balance_j: y[W_PRIME],
+        winding_temp_c: y[WINDING_TEMP],
+        in_regulation: p.in_regulation,
+    }
+}
+
+/// Ledger totals from the initial and final states.
+fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
+    let b0 = Plant::battery_state(y0);
+    let b1 = Plant::battery_state(y);
+    Ledger {
+        operator_work_j: y[E_OPERATOR],
+        kinetic_change_j: plant.kinetic_j(y) - plant.kinetic_j(y0),
+        drive_loss_j: y[E_DRIVE],
+        friction_j: y[E_FRICTION],
+        copper_j: y[E_COPPER],
+        brush_j: y[E_BRUSH],
+        diode_j: y[E_DIODE],
+        converter_loss_j: y[E_CONVERTER],
+        battery_terminal_j: y[E_BATTERY_TERMINAL],
+        battery_ohmic_j: y[E_BATTERY_OHMIC],
+        battery_coulombic_j: y[E_BATTERY_COULOMBIC],
+        stored_chemical_j: y[E_STORED],
+        rc_change_j: plant.battery.rc_energy_j(&b1) - plant.battery.rc_energy_j(&b0),
+        charge_as: y[Q_BATTERY],
+    }
+}
+
+/// Named state dump for failure messages.
+fn describe(y: &State) -> String {
+    STATE_NAMES
+        .iter()
+        .zip(y.iter())
+        .take(SOFT_START + 1)
+        .map(|(n, v)| format!("{n}={v:.6e}"))
+        .collect::<Vec<_>>()
+        .join(", ")
+}

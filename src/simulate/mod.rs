@@ -1,0 +1,9 @@
+//! Time integration of the plant: segments between located events, fixed-grid trace sampling.
+
+pub mod engine;
+pub mod observe;
+pub mod plant;
+pub mod state;
+pub mod transitions;
+
+pub use engine::{simulate, Fidelity, SimError, SimOptions, SimResult};

@@ -1,0 +1,492 @@
+//! The whole chain assembled from the model parts: one pure evaluation f(t, x, mode) giving every
+//! algebraic quantity and the state derivative. Mode (discrete state) is fixed within a segment.
+
+use crate::model::battery::li_ion::TempBand;
+use crate::model::battery::{BatteryModel, BatteryPowers, BatteryState};
+use crate::model::converter::BuckModel;
+use crate::model::diode::DiodeModel;
+use crate::model::drive::DriveModel;
+use crate::model::generator::GeneratorModel;
+use crate::model::jitter::JitterTrack;
+use crate::model::network::{self, Load, NetworkPoint, Source};
+use crate::model::operator::OperatorModel;
+use crate::model::thermal::Lumped;
+use crate::scenario::profile::Profile;
+use crate::scenario::setup::{Alerts, Setup, Topology};
+use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
+
+use super::state::*;
+
+/// Crank bearing friction, N·m (acts on the crank side, in the friction ledger).
+const CRANK_BEARING_N_M: f64 = 0.05;
+/// Speed scale of the bearing friction smoothing, rad/s.
+const CRANK_BEARING_SMOOTH: f64 = 0.5;
+/// Input over-voltage shutdown releases below this fraction of the limit.
+pub const OV_RELEASE_FRACTION: f64 = 0.95;
+
+/// Charger stage (discrete).
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Stage {
+    /// Li-ion CC/CV charging, or lead-acid bulk.
+    Charging,
+    /// Lead-acid absorption (held at the absorption voltage).
+    Absorption,
+    /// Lead-acid float.
+    Float,
+    /// Li-ion charge terminated.
+    Done,
+}
+
+/// Discrete state, constant between located events.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Discrete {
+    /// Converter enabled (UVLO released); always true for direct.
+    pub enabled: bool,
+    /// Shut down by input over-voltage.
+    pub ov_shutdown: bool,
+    pub stage: Stage,
+    /// Time the absorption stage began, s.
+    pub absorption_since_s: f64,
+    /// Li-ion charge-temperature band.
+    pub band: TempBand,
+    /// Operator resting (hands off).
+    pub resting: bool,
+    /// Freewheel engaged (always true without a freewheel).
+    pub engaged: bool,
+    /// Soft-start ramp finished.
+    pub soft_done: bool,
+}
+
+/// Charger settings resolved with defaults.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Charger {
+    pub topology: Topology,
+    pub charge_current_a: f64,
+    pub cv_setpoint_v: Option<f64>,
+    pub float_setpoint_v: Option<f64>,
+    pub termination_current_a: f64,
+    pub absorption_exit_current_a: f64,
+    pub absorption_max_s: f64,
+    pub soft_start_s: f64,
+    pub uvlo_on_v: f64,
+    pub uvlo_off_v: f64,
+    pub input_overvoltage_v: f64,
+    pub overvoltage_shutdown: bool,
+}
+
+/// One target-cadence segment in absolute time.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct TargetSegment {
+    pub start_s: f64,
+    pub end_s: f64,
+    pub start_rpm: f64,
+    pub end_rpm: f64,
+}
+
+/// Everything the evaluation needs, built once per run.
+#[derive(Debug, Clone)]
+pub struct Plant {
+    pub ambient_c: f64,
+    pub generator: GeneratorModel,
+    pub diode: DiodeModel,
+    pub drive: DriveModel,
+    pub buck: BuckModel,
+    pub charger: Charger,
+    pub battery: BatteryModel,
+    pub winding: Lumped,
+    pub operator: OperatorModel,
+    pub segments: Vec<TargetSegment>,
+    pub cadence_scale: f64,
+    /// Operator's own cadence offset (Monte Carlo spread), rpm.
+    pub cadence_offset_rpm: f64,
+    pub jitter: JitterTrack,
+    pub ripple_fraction: f64,
+    pub ripple_phase_rad: f64,
+    pub alerts: Alerts,
+}
+
+/// Every algebraic quantity at one (t, x, mode).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Point {
+    pub t: f64,
+    pub target_rpm: f64,
+    pub cranking: bool,
+    pub crank_speed: f64,
+    pub gen_speed: f64,
+    pub emf_v: f64,
+    pub net: NetworkPoint,
+    pub target_current_a: f64,
+    pub cv_active: bool,
+    pub charge_limit_v: f64,
+    pub operator_torque_n_m: f64,
+    pub operator_command_n_m: f64,
+    pub operator_power_w: f64,
+    pub crank_accel: f64,
+    pub gen_accel: f64,
+    pub belt_torque_n_m: f64,
+    pub drive_loss_w: f64,
+    pub friction_w: f64,
+    pub copper_w: f64,
+    pub winding_ohm: f64,
+    pub battery_powers: BatteryPowers,
+    pub in_regulation: bool,
+    pub band: TempBand,
+}
+
+impl Plant {
+    /// Assembles the plant from a validated setup and profile and the drawn jitter.
+    pub fn new(
+        setup: &Setup,
+        profile: &Profile,
+        jitter: JitterTrack,
+        cadence_offset_rpm: f64,
+    ) -> Result<Self, String> {
+        let generator = GeneratorModel::from_config(&setup.generator);
+        let diode = DiodeModel::from_config(&setup.diode, setup.ambient_c)
+            .map_err(|e| format!("diode: {e}"))?;
+        let drive = DriveModel::from_config(&setup.drive, generator.inertia_kg_m2);
+        let battery = BatteryModel::from_config(&setup.battery);
+        let c = &setup.converter;
+        let cap = battery.capacity_ah();
+        let charger = Charger {
+            topology: c.topology,
+            charge_current_a: c.charge_current_a,
+            cv_setpoint_v: c.cv_setpoint_v,
+            float_setpoint_v: c.float_setpoint_v,
+            termination_current_a: c.termination_current_a.unwrap_or(cap / 10.0),
+            absorption_exit_current_a: c.absorption_exit_current_a.unwrap_or(cap / 50.0),
+            absorption_max_s: c.absorption_max_s,
+            soft_start_s: c.soft_start_s,
+            uvlo_on_v: c.uvlo_on_v,
+            uvlo_off_v: c.uvlo_off_v,
+            input_overvoltage_v: c.input_overvoltage_v,
+            overvoltage_shutdown: c.overvoltage_shutdown,
+        };
+        let mut segments = Vec::with_capacity(profile.segments.len());
+        let mut t = 0.0;
+        for s in &profile.segments {
+            segments.push(TargetSegment {
+                start_s: t,
+                end_s: t + s.duration_s,
+                start_rpm: s.cadence_rpm,
+                end_rpm: s.end_cadence_rpm.unwrap_or(s.cadence_rpm),
+            });
+            t += s.duration_s;
+        }
+        let (ripple_fraction, ripple_phase_rad) = if profile.jitter.enabled {
+            (
+                profile.jitter.ripple_fraction,
+                profile.jitter.ripple_phase_rad,
+            )
+        } else {
+            (0.0, 0.0)
+        };
+        Ok(Self {
+            ambient_c: setup.ambient_c,
+            generator,
+            diode,
+            drive,
+            buck: BuckModel::from_config(c),
+            charger,
+            battery,
+            winding: Lumped {
+                heat_capacity_j_per_k: setup.generator.winding_heat_capacity_j_per_k,
+                conductance_w_per_k: setup.generator.winding_to_ambient_w_per_k,
+            },
+            operator: OperatorModel::from_config(&profile.operator),
+            segments,
+            cadence_scale: profile.cadence_scale,
+            cadence_offset_rpm,
+            jitter,
+            ripple_fraction,
+            ripple_phase_rad,
+            alerts: setup.alerts.clone(),
+        })
+    }
+
+    /// Whether the battery is a lithium chemistry.
+    pub fn battery_is_lithium(&self) -> bool {
+        matches!(self.battery, BatteryModel::LiIon(_))
+    }
+
+    /// Whether the charger is a converter with UVLO and stages (not direct).
+    pub fn has_converter(&self) -> bool {
+        self.charger.topology != Topology::Direct
+    }
+
+    /// Planned target cadence (segments × scale + offset), rpm, and its slope, rpm/s; no wander.
+    pub fn planned_rpm(&self, t: f64) -> (f64, f64) {
+        let seg = self
+            .segments
+            .iter()
+            .find(|s| t < s.end_s)
+            .or(self.segments.last());
+        let Some(s) = seg else { return (0.0, 0.0) };
+        let len = (s.end_s - s.start_s).max(1e-12);
+        let u = ((t - s.start_s) / len).clamp(0.0, 1.0);
+        let slope = if t < s.end_s {
+            (s.end_rpm - s.start_rpm) / len
+        } else {
+            0.0
+        };
+        let rpm = s.start_rpm + (s.end_rpm - s.start_rpm) * u;
+        if rpm <= 0.0 {
+            return (0.0, 0.0);
+        }
+        (
+            (rpm + self.cadence_offset_rpm).max(0.0) * self.cadence_scale,
+            slope * self.cadence_scale,
+        )
+    }
+
+    /// Times at which the planned target has a kink (segment boundaries), s.
+    pub fn segment_boundaries(&self) -> impl Iterator<Item = f64> + '_ {
+        self.segments.iter().map(|s| s.end_s)
+    }
+
+    /// Battery state view of the state vector.
+    pub fn battery_state(y: &State) -> BatteryState {
+        BatteryState {
+            soc: y[SOC],
+            v_rc_v: y[V_RC],
+            temp_c: y[BATTERY_TEMP],
+        }
+    }
+
+    /// CV (or absorption/float) set point of the battery terminals in force, V.
+    pub fn voltage_setpoint_v(&self, d: &Discrete, temp_c: f64) -> f64 {
+        if d.stage == Stage::Float {
+            if let Some(v) = self.charger.float_setpoint_v {
+                return v;
+            }
+            if let Some(v) = self.battery.float_v(temp_c) {
+                return v;
+            }
+        }
+        if let Some(v) = self.charger.cv_setpoint_v {
+            return v;
+        }
+        self.battery.charge_limit_v(temp_c)
+    }
+
+    /// Band of the battery temperature (Standard for lead-acid).
+    pub fn band(&self, temp_c: f64) -> TempBand {
+        match &self.battery {
+            BatteryModel::LiIon(m) => m.band(temp_c),
+            BatteryModel::LeadAcid(_) => TempBand::Standard,
+        }
+    }
+
+    /// Evaluates every algebraic quantity at (t, y) in mode `d`.
+    pub fn eval(&self, t: f64, y: &State, d: &Discrete) -> Point {
+        let bs = Self::battery_state(y);
+        let omega_c = y[CRANK_SPEED];
+        let omega_g = y[GEN_SPEED];
+        let (planned, slope_rpm) = self.planned_rpm(t);
+        let cranking = planned > 0.0 && !d.resting;
+        let target_rpm = if cranking {
+            (planned + self.jitter.wander_rpm(t) * self.cadence_scale).max(0.0)
+        } else {
+            0.0
+        };
+
+        // Electrical network.
+        let emf = self.generator.emf_v(omega_g);
+        let r_w = self.generator.resistance_ohm(y[WINDING_TEMP]);
+        let src = Source {
+            generator: &self.generator,
+            diode: &self.diode,
+            emf_v: emf,
+            resistance_ohm: r_w,
+        };
+        let band = self.band(bs.temp_c);
+        let (load, target_current, cv_active) = self.load(d, &bs, band, y[SOFT_START]);
+        let net = network::solve(&src, load, &self.battery, &bs);
+        let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
+
+        // Mechanics.
+        let tau_em = self.generator.torque_n_m(net.generator_current_a);
+        let tau_fric = self.drive.friction_n_m(omega_g);
+        let bearing = CRANK_BEARING_N_M * (omega_c / CRANK_BEARING_SMOOTH).tanh();
+        let omega_t = rpm_to_rad_s(target_rpm);
+        let (tau_op, tau_cmd) = if cranking {
+            let j_eff = self.drive.crank_inertia_kg_m2
+                + self.drive.ratio * self.drive.ratio * self.drive.shaft_inertia_kg_m2
+                    / self.drive.efficiency;
+            let ff = j_eff * rpm_to_rad_s(slope_rpm);
+            let cmd = self
+                .operator
+                .command_n_m(omega_t, omega_c, y[OP_INTEGRATOR], ff);
+            let env = self.operator.envelope_n_m(omega_c, y[W_PRIME]);
+            let sat = cmd.clamp(0.0, env);
+            let ripple =
+                1.0 + self.ripple_fraction * (2.0 * y[CRANK_ANGLE] + self.ripple_phase_rad).cos();
+            (sat * ripple, cmd)
+        } else {
+            (0.0, 0.0)
+        };
+        let (crank_accel, gen_accel, belt, drive_loss) = if d.engaged {
+            let c = self
+                .drive
+                .coupled(tau_op - bearing, tau_em + tau_fric, omega_c);
+            (
+                c.crank_accel,
+                c.crank_accel * self.drive.ratio,
+                c.crank_belt_torque_n_m,
+                c.loss_w,
+            )
+        } else {
+            let jc = self.drive.crank_inertia_kg_m2.max(1e-9);
+            let js = self.drive.shaft_inertia_kg_m2.max(1e-12);
+            ((tau_op - bearing) / jc, -(tau_em + tau_fric) / js, 0.0, 0.0)
+        };
+
+        let powers = self
+            .battery
+            .powers(net.battery_current_a, net.battery_v, &bs);
+        let in_regulation = if self.has_converter() {
+            d.enabled && !d.ov_shutdown && (!net.dropout || target_current <= 0.0)
+        } else {
+            true
+        };
+        Point {
+            t,
+            target_rpm,
+            cranking,
+            crank_speed: omega_c,
+            gen_speed: omega_g,
+            emf_v: emf,
+            net,
+            target_current_a: target_current,
+            cv_active,
+            charge_limit_v,
+            operator_torque_n_m: tau_op,
+            operator_command_n_m: tau_cmd,
+            operator_power_w: tau_op * omega_c,
+            crank_accel,
+            gen_accel,
+            belt_torque_n_m: belt,
+            drive_loss_w: drive_loss,
+            friction_w: tau_fric * omega_g + bearing * omega_c,
+            copper_w: net.generator_current_a * net.generator_current_a * r_w,
+            winding_ohm: r_w,
+            battery_powers: powers,
+            in_regulation,
+            band,
+        }
+    }
+
+    /// The load on the input node and the charger's current target (A) and whether CV limits it.
+    fn load(
+        &self,
+        d: &Discrete,
+        bs: &BatteryState,
+        band: TempBand,
+        soft: f64,
+    ) -> (Load<'_>, f64, bool) {
+        if !self.has_converter() {
+            return (Load::Direct, 0.0, false);
+        }
+        if !d.enabled || d.ov_shutdown {
+            return (Load::Off, 0.0, false);
+        }
+        let hold = matches!(band, TempBand::TooCold | TempBand::TooHot) || d.stage == Stage::Done;
+        if hold {
+            return (
+                Load::Buck {
+                    model: &self.buck,
+                    target_a: 0.0,
+                },
+                0.0,
+                false,
+            );
+        }
+        let fraction = match (&self.battery, band) {
+            (BatteryModel::LiIon(m), TempBand::Cool) => m.window.cool_current_fraction,
+            _ => 1.0,
+        };
+        let i_cc = self.charger.charge_current_a * fraction;
+        let v_set = self.voltage_setpoint_v(d, bs.temp_c);
+        let i_cv = self.battery.current_at_v(v_set, bs).max(0.0);
+        let cv_active = i_cv < i_cc;
+        let ramp = if d.soft_done {
+            1.0
+        } else {
+            soft.clamp(0.0, 1.0)
+        };
+        let target = ramp * i_cc.min(i_cv);
+        (
+            Load::Buck {
+                model: &self.buck,
+                target_a: target,
+            },
+            target,
+            cv_active,
+        )
+    }
+
+    /// State derivative at a point (pure: depends on `p`, `y` and `d` only).
+    pub fn derivatives(&self, p: &Point, y: &State, d: &Discrete, dy: &mut State) {
+        let bs = Self::battery_state(y);
+        let ib = p.net.battery_current_a;
+        let ig = p.net.generator_current_a;
+        dy[CRANK_ANGLE] = y[CRANK_SPEED];
+        dy[CRANK_SPEED] = p.crank_accel;
+        dy[GEN_SPEED] = p.gen_accel;
+        dy[OP_INTEGRATOR] = if p.cranking {
+            let env = self.operator.envelope_n_m(p.crank_speed, y[W_PRIME]);
+            let sat = p.operator_command_n_m.clamp(0.0, env);
+            self.operator.integrator_rate(
+                rpm_to_rad_s(p.target_rpm),
+                p.crank_speed,
+                p.operator_command_n_m,
+                sat,
+            )
+        } else {
+            -y[OP_INTEGRATOR] / self.operator.ti_s
+        };
+        dy[W_PRIME] = self
+            .operator
+            .w_prime_rate(p.operator_power_w.max(0.0), y[W_PRIME]);
+        dy[SOC] = self.battery.soc_rate(ib, &bs);
+        dy[V_RC] = self.battery.v_rc_rate(ib, &bs);
+        dy[BATTERY_TEMP] = self.battery.thermal().rate_k_per_s(
+            p.battery_powers.heat_w(),
+            bs.temp_c,
+            self.ambient_c,
+        );
+        dy[WINDING_TEMP] = self
+            .winding
+            .rate_k_per_s(p.copper_w, y[WINDING_TEMP], self.ambient_c);
+        dy[SOFT_START] =
+            if self.has_converter() && d.enabled && !d.soft_done && self.charger.soft_start_s > 0.0
+            {
+                1.0 / self.charger.soft_start_s
+            } else {
+                0.0
+            };
+        dy[E_OPERATOR] = p.operator_power_w;
+        dy[E_DRIVE] = p.drive_loss_w;
+        dy[E_FRICTION] = p.friction_w;
+        dy[E_COPPER] = p.copper_w;
+        dy[E_BRUSH] = p.net.brush_v * ig;
+        dy[E_DIODE] = p.net.diode_v * ig;
+        dy[E_CONVERTER] = p.net.losses.total_w();
+        dy[E_BATTERY_TERMINAL] = p.net.battery_v * ib;
+        dy[E_BATTERY_OHMIC] = p.battery_powers.ohmic_w;
+        dy[E_BATTERY_COULOMBIC] = p.battery_powers.coulombic_loss_w;
+        dy[E_STORED] = p.battery_powers.stored_w;
+        dy[Q_BATTERY] = ib;
+    }
+
+    /// Kinetic energy of crank and shaft, J.
+    pub fn kinetic_j(&self, y: &State) -> f64 {
+        0.5 * self.drive.crank_inertia_kg_m2 * y[CRANK_SPEED].powi(2)
+            + 0.5 * self.drive.shaft_inertia_kg_m2 * y[GEN_SPEED].powi(2)
+    }
+
+    /// Crank cadence, rpm.
+    pub fn crank_rpm(y: &State) -> f64 {
+        rad_s_to_rpm(y[CRANK_SPEED])
+    }
+}

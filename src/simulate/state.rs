@@ -1,0 +1,75 @@
+//! Layout of the integrated state vector: one named offset per state, no anonymous slots.
+
+use ode_solvers::SVector;
+
+/// Number of integrated states (physics plus energy-ledger quadratures).
+pub const N_STATES: usize = 22;
+
+/// The state vector type handed to the integrator.
+pub type State = SVector<f64, N_STATES>;
+
+/// Crank angle θ, rad (for the two-phase torque ripple).
+pub const CRANK_ANGLE: usize = 0;
+/// Crank speed, rad/s.
+pub const CRANK_SPEED: usize = 1;
+/// Generator shaft speed, rad/s.
+pub const GEN_SPEED: usize = 2;
+/// Operator's cadence-tracking integrator, N·m.
+pub const OP_INTEGRATOR: usize = 3;
+/// Operator's remaining anaerobic reserve W′, J.
+pub const W_PRIME: usize = 4;
+/// Battery state of charge, 0 … 1.
+pub const SOC: usize = 5;
+/// Li-ion RC-branch voltage, V.
+pub const V_RC: usize = 6;
+/// Battery temperature, °C.
+pub const BATTERY_TEMP: usize = 7;
+/// Generator winding temperature, °C.
+pub const WINDING_TEMP: usize = 8;
+/// Converter soft-start progress, 0 … 1.
+pub const SOFT_START: usize = 9;
+
+/// Energy ledger (quadratures of every power flow), J; charge in A·s.
+pub const E_OPERATOR: usize = 10;
+pub const E_DRIVE: usize = 11;
+pub const E_FRICTION: usize = 12;
+pub const E_COPPER: usize = 13;
+pub const E_BRUSH: usize = 14;
+pub const E_DIODE: usize = 15;
+pub const E_CONVERTER: usize = 16;
+pub const E_BATTERY_TERMINAL: usize = 17;
+pub const E_BATTERY_OHMIC: usize = 18;
+pub const E_BATTERY_COULOMBIC: usize = 19;
+pub const E_STORED: usize = 20;
+pub const Q_BATTERY: usize = 21;
+
+/// Whether every entry is finite.
+pub fn all_finite(y: &State) -> bool {
+    y.iter().all(|v| v.is_finite())
+}
+
+/// Names of the states for failure reports.
+pub const STATE_NAMES: [&str; N_STATES] = [
+    "crank_angle_rad",
+    "crank_speed_rad_s",
+    "generator_speed_rad_s",
+    "operator_integrator_n_m",
+    "w_prime_j",
+    "soc",
+    "v_rc_v",
+    "battery_temp_c",
+    "winding_temp_c",
+    "soft_start",
+    "e_operator_j",
+    "e_drive_j",
+    "e_friction_j",
+    "e_copper_j",
+    "e_brush_j",
+    "e_diode_j",
+    "e_converter_j",
+    "e_battery_terminal_j",
+    "e_battery_ohmic_j",
+    "e_battery_coulombic_j",
+    "e_stored_j",
+    "q_battery_as",
+];

@@ -1,0 +1,142 @@
+//! Mode changes (discrete events): which become due at a point, and what they change.
+
+use crate::model::battery::BatteryModel;
+
+use super::plant::{Discrete, Plant, Point, Stage, OV_RELEASE_FRACTION};
+use super::state::*;
+
+/// A discrete change of mode.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Transition {
+    /// UVLO releases: the converter starts (soft-start from zero).
+    Enable,
+    /// Input fell below the UVLO off threshold.
+    Disable,
+    /// Input above its limit with shutdown configured.
+    OvShutdown,
+    /// EMF back below the release level after an over-voltage shutdown.
+    OvRelease,
+    /// Soft-start ramp complete.
+    SoftDone,
+    /// Li-ion: CV current below the termination current.
+    Terminate,
+    /// Lead-acid: absorption voltage reached.
+    ToAbsorption,
+    /// Lead-acid: absorption complete (current or time criterion).
+    ToFloat,
+    /// Li-ion charge-temperature band changed.
+    Band,
+    /// Freewheel: belt torque reversed, the shaft overruns.
+    Disengage,
+    /// Freewheel: crank caught up with the shaft.
+    Engage,
+}
+
+/// The first transition due at point `p` in mode `d`, if any.
+pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transition> {
+    if plant.has_converter() {
+        let c = &plant.charger;
+        if d.ov_shutdown {
+            if p.emf_v < OV_RELEASE_FRACTION * c.input_overvoltage_v {
+                return Some(Transition::OvRelease);
+            }
+        } else if d.enabled {
+            if c.overvoltage_shutdown && p.net.input_v > c.input_overvoltage_v {
+                return Some(Transition::OvShutdown);
+            }
+            if p.net.input_v < c.uvlo_off_v {
+                return Some(Transition::Disable);
+            }
+            if !d.soft_done && y[SOFT_START] >= 1.0 {
+                return Some(Transition::SoftDone);
+            }
+            let regulating = p.cv_active && !p.net.dropout && d.soft_done;
+            match (&plant.battery, d.stage) {
+                (BatteryModel::LiIon(_), Stage::Charging) => {
+                    if regulating && p.net.battery_current_a < c.termination_current_a {
+                        return Some(Transition::Terminate);
+                    }
+                }
+                (BatteryModel::LeadAcid(_), Stage::Charging) => {
+                    if regulating {
+                        return Some(Transition::ToAbsorption);
+                    }
+                }
+                (BatteryModel::LeadAcid(_), Stage::Absorption) => {
+                    let timed_out = p.t - d.absorption_since_s >= c.absorption_max_s;
+                    if timed_out
+                        || (regulating && p.net.battery_current_a < c.absorption_exit_current_a)
+                    {
+                        return Some(Transition::ToFloat);
+                    }
+                }
+                _ => {}
+            }
+        } else if p.net.input_v >= c.uvlo_on_v {
+            return Some(Transition::Enable);
+        }
+        if p.band != d.band {
+            return Some(Transition::Band);
+        }
+    }
+    if plant.drive.freewheel {
+        if d.engaged {
+            if p.belt_torque_n_m < 0.0 {
+                return Some(Transition::Disengage);
+            }
+        } else if plant.drive.ratio * p.crank_speed >= p.gen_speed {
+            return Some(Transition::Engage);
+        }
+    }
+    None
+}
+
+/// Applies a transition at time `t`, possibly resetting states (soft-start, clutch impact).
+pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d: &mut Discrete) {
+    match tr {
+        Transition::Enable => {
+            d.enabled = true;
+            y[SOFT_START] = 0.0;
+            d.soft_done = plant.charger.soft_start_s <= 0.0;
+        }
+        Transition::Disable => {
+            d.enabled = false;
+            y[SOFT_START] = 0.0;
+            d.soft_done = false;
+        }
+        Transition::OvShutdown => {
+            d.ov_shutdown = true;
+            y[SOFT_START] = 0.0;
+            d.soft_done = false;
+        }
+        Transition::OvRelease => {
+            d.ov_shutdown = false;
+            d.enabled = false;
+        }
+        Transition::SoftDone => {
+            y[SOFT_START] = 1.0;
+            d.soft_done = true;
+        }
+        Transition::Terminate => d.stage = Stage::Done,
+        Transition::ToAbsorption => {
+            d.stage = Stage::Absorption;
+            d.absorption_since_s = t;
+        }
+        Transition::ToFloat => d.stage = Stage::Float,
+        Transition::Band => d.band = p.band,
+        Transition::Disengage => d.engaged = false,
+        Transition::Engage => {
+            // Perfectly plastic clutch impact: common speed conserves angular momentum (referred to
+            // the crank); the small kinetic-energy difference is booked as friction.
+            let n = plant.drive.ratio;
+            let jc = plant.drive.crank_inertia_kg_m2;
+            let js = plant.drive.shaft_inertia_kg_m2;
+            let before = plant.kinetic_j(y);
+            let wc = (jc * y[CRANK_SPEED] + n * js * y[GEN_SPEED]) / (jc + n * n * js);
+            y[CRANK_SPEED] = wc;
+            y[GEN_SPEED] = n * wc;
+            y[E_FRICTION] += (before - plant.kinetic_j(y)).max(0.0);
+            d.engaged = true;
+        }
+    }
+}
