@@ -62,6 +62,8 @@ pub struct Operator {
     pub tracking_gain_n_m_per_rpm: f64,
     /// Integral time of cadence tracking, s (0.05 … 100).
     pub tracking_time_s: f64,
+    /// Time to bring the crank up to the target after a start or a rest, s (0 … 30).
+    pub spin_up_s: f64,
     /// Spreads drawn per Monte Carlo run (standard deviations); none by default.
     pub spread: Spread,
 }
@@ -76,6 +78,7 @@ impl Default for Operator {
             peak_power_w: 140.0,
             tracking_gain_n_m_per_rpm: 0.25,
             tracking_time_s: 1.5,
+            spin_up_s: 2.0,
             spread: Spread::default(),
         }
     }

@@ -466,6 +466,7 @@ pub fn profile(p: &Profile) -> Vec<Violation> {
         10.0,
     );
     c.range("operator.tracking_time_s", o.tracking_time_s, 0.05, 100.0);
+    c.range("operator.spin_up_s", o.spin_up_s, 0.0, 30.0);
     c.range(
         "operator.spread.critical_power_w",
         o.spread.critical_power_w,

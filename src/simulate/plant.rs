@@ -100,6 +100,10 @@ pub struct Plant {
     /// Operator's own cadence offset (Monte Carlo spread), rpm.
     pub cadence_offset_rpm: f64,
     pub jitter: JitterTrack,
+    /// Times at which the operator starts cranking (session start, after rests and planned
+    /// pauses), sorted; the target ramps up over `spin_up_s` from each.
+    pub crank_starts: Vec<f64>,
+    pub spin_up_s: f64,
     pub ripple_fraction: f64,
     pub ripple_phase_rad: f64,
     pub alerts: Alerts,
@@ -181,6 +185,14 @@ impl Plant {
         } else {
             (0.0, 0.0)
         };
+        let mut crank_starts = vec![0.0];
+        for w in segments.windows(2) {
+            if w[0].end_rpm <= 0.0 && w[1].start_rpm.max(w[1].end_rpm) > 0.0 {
+                crank_starts.push(w[1].start_s);
+            }
+        }
+        crank_starts.extend(jitter.rests.iter().map(|r| r.end_s));
+        crank_starts.sort_by(f64::total_cmp);
         Ok(Self {
             ambient_c: setup.ambient_c,
             generator,
@@ -198,6 +210,8 @@ impl Plant {
             cadence_scale: profile.cadence_scale,
             cadence_offset_rpm,
             jitter,
+            crank_starts,
+            spin_up_s: profile.operator.spin_up_s,
             ripple_fraction,
             ripple_phase_rad,
             alerts: setup.alerts.clone(),
@@ -239,9 +253,26 @@ impl Plant {
         )
     }
 
-    /// Times at which the planned target has a kink (segment boundaries), s.
+    /// Times at which the planned target has a kink (segment boundaries, ends of spin-up), s.
     pub fn segment_boundaries(&self) -> impl Iterator<Item = f64> + '_ {
-        self.segments.iter().map(|s| s.end_s)
+        self.segments
+            .iter()
+            .map(|s| s.end_s)
+            .chain(self.crank_starts.iter().map(|t| t + self.spin_up_s))
+    }
+
+    /// Spin-up factor 0 … 1: how far the operator has brought the target up since the last start.
+    pub fn spin_up(&self, t: f64) -> f64 {
+        if self.spin_up_s <= 0.0 {
+            return 1.0;
+        }
+        let k = self.crank_starts.partition_point(|&s| s <= t);
+        let since = if k == 0 {
+            t
+        } else {
+            t - self.crank_starts[k - 1]
+        };
+        (since / self.spin_up_s).clamp(0.0, 1.0)
     }
 
     /// Battery state view of the state vector.
@@ -284,8 +315,9 @@ impl Plant {
         let omega_g = y[GEN_SPEED];
         let (planned, slope_rpm) = self.planned_rpm(t);
         let cranking = planned > 0.0 && !d.resting;
+        let spin = self.spin_up(t);
         let target_rpm = if cranking {
-            (planned + self.jitter.wander_rpm(t) * self.cadence_scale).max(0.0)
+            (planned + self.jitter.wander_rpm(t) * self.cadence_scale).max(0.0) * spin
         } else {
             0.0
         };
@@ -313,7 +345,12 @@ impl Plant {
             let j_eff = self.drive.crank_inertia_kg_m2
                 + self.drive.ratio * self.drive.ratio * self.drive.shaft_inertia_kg_m2
                     / self.drive.efficiency;
-            let ff = j_eff * rpm_to_rad_s(slope_rpm);
+            let spin_slope = if spin < 1.0 {
+                planned / self.spin_up_s
+            } else {
+                0.0
+            };
+            let ff = j_eff * rpm_to_rad_s(slope_rpm * spin + spin_slope);
             let cmd = self
                 .operator
                 .command_n_m(omega_t, omega_c, y[OP_INTEGRATOR], ff);
