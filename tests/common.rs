@@ -1,0 +1,65 @@
+//! Shared helpers for the integration tests: a temp work dir per test and the real binary.
+
+#![allow(dead_code)]
+
+use std::path::{Path, PathBuf};
+
+use assert_cmd::Command;
+
+/// A fresh working directory for one test (removed when dropped).
+pub struct WorkDir {
+    pub dir: tempfile::TempDir,
+}
+
+impl WorkDir {
+    /// Creates an empty temporary folder.
+    pub fn new() -> Self {
+        Self {
+            dir: tempfile::tempdir().expect("temp dir"),
+        }
+    }
+
+    /// Path inside the work dir.
+    pub fn path(&self, rel: &str) -> PathBuf {
+        self.dir.path().join(rel)
+    }
+
+    /// The crankcharge binary, run in this folder.
+    pub fn cmd(&self) -> Command {
+        let mut c = Command::cargo_bin("crankcharge").expect("binary built");
+        c.current_dir(self.dir.path());
+        c
+    }
+
+    /// Reads a file of the work dir as text.
+    pub fn read(&self, rel: &str) -> String {
+        std::fs::read_to_string(self.path(rel)).unwrap_or_else(|e| panic!("read {rel}: {e}"))
+    }
+}
+
+/// Root of the repository (for shipped files).
+pub fn repo() -> &'static Path {
+    Path::new(env!("CARGO_MANIFEST_DIR"))
+}
+
+/// Parses a CSV file into a header and rows of strings.
+pub fn read_csv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
+    let mut r = csv::Reader::from_path(path).unwrap_or_else(|e| panic!("csv {}: {e}", path.display()));
+    let header = r.headers().expect("header").iter().map(String::from).collect();
+    let rows = r
+        .records()
+        .map(|rec| rec.expect("record").iter().map(String::from).collect())
+        .collect();
+    (header, rows)
+}
+
+/// Column of a CSV as f64 by name.
+pub fn column(header: &[String], rows: &[Vec<String>], name: &str) -> Vec<f64> {
+    let k = header
+        .iter()
+        .position(|h| h == name)
+        .unwrap_or_else(|| panic!("no column {name}"));
+    rows.iter()
+        .map(|r| r[k].parse::<f64>().unwrap_or_else(|_| panic!("{name}: not a number: {}", r[k])))
+        .collect()
+}

@@ -1,0 +1,6 @@
+//! All integration tests in one binary: the real CLI, studies, and validation against outside values.
+
+mod common;
+mod run_cli;
+mod studies_cli;
+mod validation;
