@@ -31,13 +31,3 @@ pub const PROFILES: &[Embedded] = &[
     embed!("sprint-and-rest", "cranking"),
     embed!("uneven", "cranking"),
 ];
-
-/// Looks up a shipped setup by name.
-pub fn setup(name: &str) -> Option<&'static Embedded> {
-    SETUPS.iter().find(|e| e.name == name)
-}
-
-/// Looks up a shipped profile by name.
-pub fn profile(name: &str) -> Option<&'static Embedded> {
-    PROFILES.iter().find(|e| e.name == name)
-}

@@ -31,12 +31,9 @@ pub enum InputKind {
 impl SourceText {
     /// Reads a path, or a shipped name (`demo`, `steady`…); None gives the embedded default.
     pub fn resolve(arg: Option<&str>, kind: InputKind) -> Result<Self, InputError> {
-        let (list, lookup): (
-            &[demo::Embedded],
-            fn(&str) -> Option<&'static demo::Embedded>,
-        ) = match kind {
-            InputKind::Setup => (demo::SETUPS, demo::setup),
-            InputKind::Profile => (demo::PROFILES, demo::profile),
+        let list: &[demo::Embedded] = match kind {
+            InputKind::Setup => demo::SETUPS,
+            InputKind::Profile => demo::PROFILES,
         };
         let Some(arg) = arg else {
             let e = &list[0];
@@ -54,7 +51,7 @@ impl SourceText {
                     reason: e.to_string(),
                 });
         }
-        if let Some(e) = lookup(arg) {
+        if let Some(e) = list.iter().find(|e| e.name == arg) {
             return Ok(Self::embedded(e));
         }
         let names: Vec<&str> = list.iter().map(|e| e.name).collect();

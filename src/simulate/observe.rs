@@ -109,7 +109,6 @@ struct Open {
     start_s: f64,
     peak: f64,
     unit: &'static str,
-    worse_is_larger: bool,
     detail: String,
 }
 
@@ -152,13 +151,12 @@ impl Observer {
                 self.close(k, o, t);
             }
             if code != 0 {
-                let (v, unit, larger) = peak_of(WATCHED[k], p, y);
+                let (v, unit, _) = peak_of(WATCHED[k], p, y);
                 self.open[k] = Some(Open {
                     code,
                     start_s: t,
                     peak: v,
                     unit,
-                    worse_is_larger: larger,
                     detail: detail_of(WATCHED[k], code, p, plant),
                 });
             }
@@ -175,7 +173,6 @@ impl Observer {
     }
 
     fn close(&mut self, k: usize, o: Open, t: f64) {
-        let _ = o.worse_is_larger;
         self.events.push(Event {
             kind: WATCHED[k],
             start_s: o.start_s,

@@ -52,15 +52,13 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             }
             let regulating = p.cv_active && !p.net.dropout && d.soft_done;
             match (&plant.battery, d.stage) {
-                (BatteryModel::LiIon(_), Stage::Charging) => {
-                    if regulating && p.net.battery_current_a < c.termination_current_a {
-                        return Some(Transition::Terminate);
-                    }
+                (BatteryModel::LiIon(_), Stage::Charging)
+                    if regulating && p.net.battery_current_a < c.termination_current_a =>
+                {
+                    return Some(Transition::Terminate);
                 }
-                (BatteryModel::LeadAcid(_), Stage::Charging) => {
-                    if regulating {
-                        return Some(Transition::ToAbsorption);
-                    }
+                (BatteryModel::LeadAcid(_), Stage::Charging) if regulating => {
+                    return Some(Transition::ToAbsorption);
                 }
                 (BatteryModel::LeadAcid(_), Stage::Absorption) => {
                     let timed_out = p.t - d.absorption_since_s >= c.absorption_max_s;
