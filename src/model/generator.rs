@@ -59,11 +59,17 @@ impl GeneratorModel {
 
     /// Brush drop, smoothed through zero current: V_b·tanh(i/i_s), V.
     pub fn brush_drop(&self, current_a: f64) -> f64 {
+        if self.brush_drop_v == 0.0 {
+            return 0.0;
+        }
         self.brush_drop_v * (current_a / BRUSH_SMOOTH_A).tanh()
     }
 
     /// Derivative of [`Self::brush_drop`] with respect to current, Ω.
     pub fn brush_drop_slope(&self, current_a: f64) -> f64 {
+        if self.brush_drop_v == 0.0 {
+            return 0.0;
+        }
         let t = (current_a / BRUSH_SMOOTH_A).tanh();
         self.brush_drop_v * (1.0 - t * t) / BRUSH_SMOOTH_A
     }

@@ -12,7 +12,11 @@ impl Pchip {
     /// Builds the interpolant; `x` must be strictly increasing with at least two knots.
     pub fn new(x: &[f64], y: &[f64]) -> Option<Self> {
         let n = x.len();
-        if n < 2 || y.len() != n || x.windows(2).any(|w| w[1].partial_cmp(&w[0]) != Some(std::cmp::Ordering::Greater)) {
+        if n < 2
+            || y.len() != n
+            || x.windows(2)
+                .any(|w| w[1].partial_cmp(&w[0]) != Some(std::cmp::Ordering::Greater))
+        {
             return None;
         }
         let h: Vec<f64> = x.windows(2).map(|w| w[1] - w[0]).collect();

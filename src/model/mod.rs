@@ -9,4 +9,5 @@ pub mod interp;
 pub mod jitter;
 pub mod network;
 pub mod operator;
+pub mod roots;
 pub mod thermal;

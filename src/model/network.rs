@@ -6,13 +6,14 @@
 //! operating points; the physical one is the smaller current (higher input voltage), reached from
 //! open circuit. Regulated and dropout branches meet continuously at the dropout edge.
 
-use crate::model::battery::{BatteryModel, BatteryState};
+use crate::model::battery::Terminal;
 use crate::model::converter::{BuckModel, ConverterLosses};
 use crate::model::diode::DiodeModel;
 use crate::model::generator::GeneratorModel;
+use crate::model::roots::root_in;
 
 /// Absolute tolerance of the current solves, A.
-const CURRENT_TOL_A: f64 = 1e-10;
+const CURRENT_TOL_A: f64 = 1e-11;
 /// Samples used to look for a regulated operating point when the dropout edge is short of current.
 const FOLD_SAMPLES: usize = 8;
 
@@ -80,40 +81,41 @@ pub struct NetworkPoint {
     pub losses: ConverterLosses,
 }
 
-/// Solves the network for the given source, load and battery state.
-pub fn solve(src: &Source, load: Load, battery: &BatteryModel, bs: &BatteryState) -> NetworkPoint {
+/// Solves the network for the given source, load and battery terminal.
+pub fn solve(src: &Source, load: Load, term: &Terminal) -> NetworkPoint {
     match load {
-        Load::Off => off_point(src, battery, bs),
-        Load::Direct => direct_point(src, battery, bs),
-        Load::Buck { model, target_a } => buck_point(src, model, target_a.max(0.0), battery, bs),
+        Load::Off => off_point(src, term),
+        Load::Direct => direct_point(src, term),
+        Load::Buck { model, target_a } => buck_point(src, model, target_a.max(0.0), term),
     }
 }
 
-fn off_point(src: &Source, battery: &BatteryModel, bs: &BatteryState) -> NetworkPoint {
-    let (vb, _) = battery.terminal_v(0.0, bs);
+fn off_point(src: &Source, term: &Terminal) -> NetworkPoint {
     NetworkPoint {
         input_v: src.emf_v.max(0.0),
-        battery_v: vb,
+        battery_v: term.v(0.0).0,
         ..NetworkPoint::default()
     }
 }
 
-fn direct_point(src: &Source, battery: &BatteryModel, bs: &BatteryState) -> NetworkPoint {
-    // g(i) = node_v(i) − V_batt(i), decreasing in i.
-    let g = |i: f64| src.node_v(i) - battery.terminal_v(i, bs).0;
-    let rest = battery.terminal_v(0.0, bs).0;
-    let threshold = src.diode.threshold_v();
+fn direct_point(src: &Source, term: &Terminal) -> NetworkPoint {
+    // f(i) = V_batt(i) − node_v(i), increasing in i; its root is the generator current.
+    let f = |i: f64| {
+        let (vb, sb) = term.v(i);
+        (vb - src.node_v(i), sb + src.node_slope(i))
+    };
+    let rest = term.v(0.0).0;
     let r = src.resistance_ohm.max(1e-9);
-    let i = if src.emf_v - threshold > rest {
+    let i = if src.emf_v - src.diode.threshold_v() > rest {
         let hi = (src.emf_v - rest) / r;
-        bracket_root(|i| -g(i), 0.0, hi, CURRENT_TOL_A)
+        root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, f)
     } else if !src.diode.blocks_reverse() && src.emf_v < rest {
         let lo = (src.emf_v - rest) / r;
-        bracket_root(|i| -g(i), lo, 0.0, CURRENT_TOL_A)
+        root_in(lo, 0.0, 0.5 * lo, CURRENT_TOL_A, f)
     } else {
         0.0
     };
-    let (vb, _) = battery.terminal_v(i, bs);
+    let vb = term.v(i).0;
     NetworkPoint {
         generator_current_a: i,
         input_v: vb,
@@ -127,38 +129,67 @@ fn direct_point(src: &Source, battery: &BatteryModel, bs: &BatteryState) -> Netw
     }
 }
 
-fn buck_point(
-    src: &Source,
-    buck: &BuckModel,
-    target: f64,
-    battery: &BatteryModel,
-    bs: &BatteryState,
-) -> NetworkPoint {
-    let vo_target = battery.terminal_v(target, bs).0;
+/// Battery current the buck passes at duty D_max from input `v`, and its slope dI/dv.
+/// Solves D·(v − V_sw − I·R_on + V_D) − V_D − I·R_L = V_batt(I) for I ≥ 0.
+fn dropout_current(buck: &BuckModel, term: &Terminal, v: f64, cap: f64) -> (f64, f64) {
+    let d = buck.max_duty;
+    let r_conv = d * buck.switch_resistance_ohm + buck.inductor_resistance_ohm;
+    match term {
+        Terminal::Linear { rest_v, r_ohm } => {
+            let den = (r_conv + r_ohm).max(1e-12);
+            let i = (d * (v - buck.switch_drop_v + buck.catch_drop_v) - buck.catch_drop_v - rest_v)
+                / den;
+            if i <= 0.0 {
+                (0.0, 0.0)
+            } else {
+                (i.min(cap), d / den)
+            }
+        }
+        Terminal::Curve { .. } => {
+            let res = |ib: f64| {
+                let (vb, sb) = term.v(ib);
+                (-buck.dropout_residual(v, vb, ib), sb + r_conv)
+            };
+            if res(0.0).0 >= 0.0 {
+                return (0.0, 0.0);
+            }
+            let i = root_in(0.0, cap.max(1e-12), 0.5 * cap, CURRENT_TOL_A, res);
+            let slope = term.v(i).1;
+            (i, d / (r_conv + slope).max(1e-12))
+        }
+    }
+}
+
+fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> NetworkPoint {
+    let vo_target = term.v(target).0;
     let v_edge = buck.dropout_input_v(vo_target, target);
     let i_cap = buck.input_current_a(buck.max_duty, target);
     let r = src.resistance_ohm.max(1e-9);
 
-    // Regulated branch: input current for the target at node voltage v.
-    let reg_in = |v: f64| {
-        buck.input_current_a(
-            buck.ccm_duty(v, vo_target, target).min(buck.max_duty),
-            target,
-        )
+    // Regulated branch: d(v) = num/(v − c) for the target current.
+    let num = vo_target + buck.catch_drop_v + target * buck.inductor_resistance_ohm;
+    let c = buck.switch_drop_v + target * buck.switch_resistance_ohm - buck.catch_drop_v;
+    let fixed = buck.quiescent_current_a + buck.switching_current_a(target);
+    let g_reg = |i: f64| {
+        let v = src.node_v(i);
+        let den = (v - c).max(1e-12);
+        let g = i - (target * num / den + fixed);
+        let dg = 1.0 - target * num / (den * den) * src.node_slope(i);
+        (g, dg)
     };
-    let g_reg = |i: f64| i - reg_in(src.node_v(i));
 
     // Generator current at the dropout edge (node voltage = v_edge).
     let i_edge = if src.emf_v > v_edge {
         let hi = (src.emf_v - v_edge) / r;
-        bracket_root(|i| v_edge - src.node_v(i), 0.0, hi, CURRENT_TOL_A)
+        root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, |i| {
+            (v_edge - src.node_v(i), src.node_slope(i))
+        })
     } else {
         0.0
     };
 
     if i_edge > 0.0 {
-        let g_edge = g_reg(i_edge);
-        let bracket = if g_edge >= 0.0 {
+        let bracket = if g_reg(i_edge).0 >= 0.0 {
             Some((0.0, i_edge))
         } else {
             // Short of current at the edge: a regulated point may still exist before the fold.
@@ -166,7 +197,7 @@ fn buck_point(
             let mut found = None;
             for k in 1..FOLD_SAMPLES {
                 let x = i_edge * k as f64 / FOLD_SAMPLES as f64;
-                if g_reg(x) >= 0.0 {
+                if g_reg(x).0 >= 0.0 {
                     found = Some((prev, x));
                     break;
                 }
@@ -175,7 +206,8 @@ fn buck_point(
             found
         };
         if let Some((lo, hi)) = bracket {
-            let i = bracket_root(g_reg, lo, hi, CURRENT_TOL_A);
+            let x0 = (target * num / (src.emf_v - c).max(1e-12) + fixed).clamp(lo, hi);
+            let i = root_in(lo, hi, x0, CURRENT_TOL_A, g_reg);
             let v = src.node_v(i);
             let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
             return buck_report(src, buck, i, v, d, target, vo_target, false);
@@ -183,27 +215,17 @@ fn buck_point(
     }
 
     // Dropout branch: duty at D_max, the converter passes what the input allows.
-    let drop_current = |v: f64| -> f64 {
-        let res0 = buck.dropout_residual(v, battery.terminal_v(0.0, bs).0, 0.0);
-        if res0 <= 0.0 {
-            return 0.0;
-        }
-        bracket_root(
-            |ib| -buck.dropout_residual(v, battery.terminal_v(ib, bs).0, ib),
-            0.0,
-            target.max(1e-12),
-            CURRENT_TOL_A,
-        )
+    let k_in = buck.max_duty + buck.switching_current_a(1.0);
+    let g_drop = |i: f64| {
+        let v = src.node_v(i);
+        let (ib, dib) = dropout_current(buck, term, v, target);
+        let g = i - (k_in * ib + buck.quiescent_current_a);
+        (g, 1.0 + k_in * dib * src.node_slope(i))
     };
-    let g_drop = |i: f64| i - buck.input_current_a(buck.max_duty, drop_current(src.node_v(i)));
-    let i = if g_drop(i_edge) >= 0.0 {
-        i_edge
-    } else {
-        bracket_root(g_drop, i_edge, i_cap.max(i_edge), CURRENT_TOL_A)
-    };
+    let i = root_in(i_edge, i_cap.max(i_edge), i_edge, CURRENT_TOL_A, g_drop);
     let v = src.node_v(i);
-    let ib = drop_current(v);
-    let vo = battery.terminal_v(ib, bs).0;
+    let (ib, _) = dropout_current(buck, term, v, target);
+    let vo = term.v(ib).0;
     buck_report(src, buck, i, v, buck.max_duty, ib, vo, ib < target)
 }
 
@@ -232,48 +254,4 @@ fn buck_report(
         brush_v: src.generator.brush_drop(i),
         losses: buck.losses(d, ib, v),
     }
-}
-
-/// Root of `f` on [lo, hi] where f(lo) ≤ 0 ≤ f(hi), by the Illinois variant of regula falsi
-/// (superlinear, always bracketed). Returns an end point when the signs do not bracket.
-pub fn bracket_root(f: impl Fn(f64) -> f64, mut lo: f64, mut hi: f64, tol: f64) -> f64 {
-    let mut f_lo = f(lo);
-    if f_lo >= 0.0 {
-        return lo;
-    }
-    let mut f_hi = f(hi);
-    if f_hi <= 0.0 {
-        return hi;
-    }
-    let mut side = 0i8;
-    let mut x = lo;
-    for _ in 0..100 {
-        x = (lo * f_hi - hi * f_lo) / (f_hi - f_lo);
-        if !(x > lo && x < hi) {
-            x = 0.5 * (lo + hi);
-        }
-        let fx = f(x);
-        if fx == 0.0 || hi - lo <= tol {
-            return x;
-        }
-        if fx < 0.0 {
-            lo = x;
-            f_lo = fx;
-            if side == -1 {
-                f_hi *= 0.5;
-            }
-            side = -1;
-        } else {
-            hi = x;
-            f_hi = fx;
-            if side == 1 {
-                f_lo *= 0.5;
-            }
-            side = 1;
-        }
-        if hi - lo <= tol {
-            break;
-        }
-    }
-    x
 }

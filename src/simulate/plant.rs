@@ -2,7 +2,7 @@
 //! algebraic quantity and the state derivative. Mode (discrete state) is fixed within a segment.
 
 use crate::model::battery::li_ion::TempBand;
-use crate::model::battery::{BatteryModel, BatteryPowers, BatteryState};
+use crate::model::battery::{BatteryModel, BatteryPowers, BatteryState, Terminal};
 use crate::model::converter::BuckModel;
 use crate::model::diode::DiodeModel;
 use crate::model::drive::DriveModel;
@@ -332,8 +332,9 @@ impl Plant {
             resistance_ohm: r_w,
         };
         let band = self.band(bs.temp_c);
-        let (load, target_current, cv_active) = self.load(d, &bs, band, y[SOFT_START]);
-        let net = network::solve(&src, load, &self.battery, &bs);
+        let term = self.battery.terminal(&bs);
+        let (load, target_current, cv_active) = self.load(d, &bs, &term, band, y[SOFT_START]);
+        let net = network::solve(&src, load, &term);
         let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
 
         // Mechanics.
@@ -418,6 +419,7 @@ impl Plant {
         &self,
         d: &Discrete,
         bs: &BatteryState,
+        term: &Terminal,
         band: TempBand,
         soft: f64,
     ) -> (Load<'_>, f64, bool) {
@@ -444,7 +446,7 @@ impl Plant {
         };
         let i_cc = self.charger.charge_current_a * fraction;
         let v_set = self.voltage_setpoint_v(d, bs.temp_c);
-        let i_cv = self.battery.current_at_v(v_set, bs).max(0.0);
+        let i_cv = term.current_at(v_set).max(0.0);
         let cv_active = i_cv < i_cc;
         let ramp = if d.soft_done {
             1.0

@@ -7,7 +7,8 @@
 //! here (A = 1.0, B = 0.27) so that C/10 at half charge sits near 2.2 V/cell, as VRLA charge curves
 //! show; the efficiency and gassing laws are Copetti's as published.
 
-use super::{solve_increasing, thermal_of, BatteryState};
+use super::{thermal_of, BatteryState};
+use crate::model::roots::newton_bracketed;
 use crate::model::thermal::Lumped;
 use crate::scenario::setup::{Battery, LeadAcidKind};
 
@@ -148,7 +149,7 @@ impl LeadAcidModel {
         if self.terminal_v(hi, s).0 < v {
             return hi;
         }
-        solve_increasing(0.0, hi, 0.0, 1e-9 * self.capacity_ah, |i| {
+        newton_bracketed(0.0, hi, 0.0, 1e-9 * self.capacity_ah, |i| {
             let (vt, dv) = self.terminal_v(i, s);
             (vt - v, dv)
         })

@@ -80,6 +80,23 @@ impl BatteryModel {
         }
     }
 
+    /// A view of the terminal characteristic at fixed state, cheap to evaluate many times.
+    pub fn terminal<'a>(&'a self, s: &BatteryState) -> Terminal<'a> {
+        match self {
+            BatteryModel::LiIon(m) => {
+                let (r0, _, _) = m.pack_rc(s.temp_c);
+                Terminal::Linear {
+                    rest_v: m.ocv_v(s.soc) + s.v_rc_v,
+                    r_ohm: r0,
+                }
+            }
+            BatteryModel::LeadAcid(m) => Terminal::Curve {
+                model: m,
+                state: *s,
+            },
+        }
+    }
+
     /// Current at which the terminal voltage equals `v`, A (negative if `v` is below the rest voltage).
     pub fn current_at_v(&self, v: f64, s: &BatteryState) -> f64 {
         match self {
@@ -189,36 +206,40 @@ pub(crate) fn thermal_of(b: &Battery) -> Lumped {
     }
 }
 
-/// Safeguarded Newton–bisection for a monotone increasing `f` on [lo, hi] with f(lo) ≤ 0 ≤ f(hi).
-/// `f` returns value and slope. Returns the root to `tol` (absolute in x).
-pub fn solve_increasing(
-    mut lo: f64,
-    mut hi: f64,
-    x0: f64,
-    tol: f64,
-    f: impl Fn(f64) -> (f64, f64),
-) -> f64 {
-    let mut x = x0.clamp(lo, hi);
-    for _ in 0..60 {
-        let (fx, dfx) = f(x);
-        if fx == 0.0 {
-            return x;
+/// Terminal voltage as a function of current at a frozen battery state.
+#[derive(Debug, Clone, Copy)]
+pub enum Terminal<'a> {
+    /// V = rest + I·R (Thevenin pack with its RC voltage frozen).
+    Linear { rest_v: f64, r_ohm: f64 },
+    /// Lead-acid charge curve.
+    Curve {
+        model: &'a LeadAcidModel,
+        state: BatteryState,
+    },
+}
+
+impl Terminal<'_> {
+    /// Terminal voltage and slope at current `i`.
+    pub fn v(&self, i: f64) -> (f64, f64) {
+        match self {
+            Terminal::Linear { rest_v, r_ohm } => (rest_v + i * r_ohm, *r_ohm),
+            Terminal::Curve { model, state } => model.terminal_v(i, state),
         }
-        if fx < 0.0 {
-            lo = x;
-        } else {
-            hi = x;
-        }
-        let newton = if dfx > 0.0 { x - fx / dfx } else { f64::NAN };
-        let next = if newton.is_finite() && newton > lo && newton < hi {
-            newton
-        } else {
-            0.5 * (lo + hi)
-        };
-        if (next - x).abs() <= tol || hi - lo <= tol {
-            return next;
-        }
-        x = next;
     }
-    x
+
+    /// Current at which the terminal voltage equals `v`.
+    pub fn current_at(&self, v: f64) -> f64 {
+        match self {
+            Terminal::Linear { rest_v, r_ohm } => {
+                if *r_ohm > 0.0 {
+                    (v - rest_v) / r_ohm
+                } else if v > *rest_v {
+                    f64::INFINITY
+                } else {
+                    f64::NEG_INFINITY
+                }
+            }
+            Terminal::Curve { model, state } => model.current_at_v(v, state),
+        }
+    }
 }
