@@ -1,6 +1,7 @@
 //! All integration tests in one binary: the real CLI, studies, and validation against outside values.
 
 mod common;
+mod fidelity;
 mod run_cli;
 mod studies_cli;
 mod validation;

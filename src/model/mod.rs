@@ -1,6 +1,8 @@
 //! Pure physics of the charging chain, SI units, no integrator and no I/O.
 
 pub mod battery;
+pub mod circuit;
+pub mod controller;
 pub mod converter;
 pub mod diode;
 pub mod drive;

@@ -17,8 +17,10 @@ use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
 use super::transitions::{apply, due, Transition};
 
-/// Longest segment between restarts, s (bounds the memory of the continuous output).
-const MAX_SEGMENT_S: f64 = 10.0;
+/// Longest segment between restarts, s (bounds the memory of the continuous output): the fast
+/// fidelity takes steps of milliseconds, the detailed one of microseconds.
+const MAX_SEGMENT_FAST_S: f64 = 10.0;
+const MAX_SEGMENT_DETAILED_S: f64 = 0.05;
 /// Located switching times are within this of the true crossing, s.
 const EVENT_TOL_S: f64 = 1e-7;
 /// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
@@ -68,8 +70,6 @@ pub enum SimError {
     },
     #[error("the state became non-finite at t = {t_s:.6} s; state: {state}")]
     NonFinite { t_s: f64, state: String },
-    #[error("the fidelity `{0}` is not available yet")]
-    Unsupported(&'static str),
 }
 
 /// Totals of the energy ledger, J (charge in A·s).
@@ -88,6 +88,8 @@ pub struct Ledger {
     pub battery_coulombic_j: f64,
     pub stored_chemical_j: f64,
     pub rc_change_j: f64,
+    /// Change of the energy in inductances and capacitors (detailed fidelity), J.
+    pub field_change_j: f64,
     pub charge_as: f64,
 }
 
@@ -104,7 +106,8 @@ impl Ledger {
             + self.battery_ohmic_j
             + self.battery_coulombic_j
             + self.stored_chemical_j
-            + self.rc_change_j;
+            + self.rc_change_j
+            + self.field_change_j;
         (self.operator_work_j - out).abs() / self.operator_work_j.abs().max(1.0)
     }
 }
@@ -134,6 +137,7 @@ pub struct SimResult {
 #[derive(Debug, Clone, Copy)]
 struct StepEnd {
     t: f64,
+    y: State,
     p: Point,
 }
 
@@ -180,7 +184,7 @@ impl System<f64, State> for Rhs<'_> {
             Some((tc, p)) if tc == t => p,
             _ => self.plant.eval(t, y, &self.disc),
         };
-        self.rec.steps.push(StepEnd { t, p });
+        self.rec.steps.push(StepEnd { t, y: *y, p });
         self.rec.last_state = Some(*y);
         if due(self.plant, &p, y, &self.disc).is_some() {
             self.rec.stop = Some(Stop::Due);
@@ -190,21 +194,26 @@ impl System<f64, State> for Rhs<'_> {
     }
 }
 
-/// Initial state vector of a session.
+/// Initial state vector of a session: at rest; in the detailed fidelity the output capacitor
+/// (and, for a direct connection, the input capacitor) sits at the battery's rest voltage.
 pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> State {
     let mut y = State::zeros();
     y[W_PRIME] = plant.operator.w_prime_j;
     y[SOC] = soc_start;
     y[BATTERY_TEMP] = battery_temp_c;
     y[WINDING_TEMP] = plant.ambient_c;
+    if plant.fidelity == Fidelity::Detailed {
+        let rest = plant.battery.terminal(&Plant::battery_state(&y)).v(0.0).0;
+        y[OUTPUT_V] = rest;
+        if !plant.has_converter() {
+            y[INPUT_V] = rest;
+        }
+    }
     y
 }
 
 /// Runs one session.
 pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult, SimError> {
-    if opts.fidelity == Fidelity::Detailed {
-        return Err(SimError::Unsupported("detailed"));
-    }
     let t_end = opts.duration_s;
     let mut time_events: Vec<f64> = plant
         .segment_boundaries()
@@ -242,11 +251,15 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         while next_event < time_events.len() && time_events[next_event] <= t {
             next_event += 1;
         }
+        let max_segment = match opts.fidelity {
+            Fidelity::Fast => MAX_SEGMENT_FAST_S,
+            Fidelity::Detailed => MAX_SEGMENT_DETAILED_S,
+        };
         let mut t_stop = time_events
             .get(next_event)
             .copied()
             .unwrap_or(t_end)
-            .min(t + MAX_SEGMENT_S);
+            .min(t + max_segment);
         if disc.stage == Stage::Absorption {
             let deadline = disc.absorption_since_s + plant.charger.absorption_max_s;
             if deadline > t && deadline < t_stop {
@@ -337,7 +350,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
                 let yb = dense(b);
                 (yb, plant.eval(b, &yb, &disc))
             } else {
-                (dense(b), step.p)
+                (step.y, step.p)
             };
             watch(plant, &disc, &mut observer, a, b, &yb, &pb, &dense);
             observer.touch(&pb, &yb);
@@ -569,6 +582,7 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         battery_coulombic_j: y[E_BATTERY_COULOMBIC],
         stored_chemical_j: y[E_STORED],
         rc_change_j: plant.battery.rc_energy_j(&b1) - plant.battery.rc_energy_j(&b0),
+        field_change_j: plant.field_energy_j(y) - plant.field_energy_j(y0),
         charge_as: y[Q_BATTERY],
     }
 }

@@ -3,6 +3,8 @@
 
 use crate::model::battery::li_ion::TempBand;
 use crate::model::battery::{BatteryModel, BatteryPowers, BatteryState, Terminal};
+use crate::model::circuit::{self, CircuitConstants, FastRates, FastStates};
+use crate::model::controller::{self, ControlInput, ControllerGains};
 use crate::model::converter::BuckModel;
 use crate::model::diode::DiodeModel;
 use crate::model::drive::DriveModel;
@@ -15,6 +17,7 @@ use crate::scenario::profile::Profile;
 use crate::scenario::setup::{Alerts, Setup, Topology};
 use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
 
+use super::engine::Fidelity;
 use super::state::*;
 
 /// Crank bearing friction, N·m (acts on the crank side, in the friction ledger).
@@ -86,6 +89,7 @@ pub struct TargetSegment {
 /// Everything the evaluation needs, built once per run.
 #[derive(Debug, Clone)]
 pub struct Plant {
+    pub fidelity: Fidelity,
     pub ambient_c: f64,
     pub generator: GeneratorModel,
     pub diode: DiodeModel,
@@ -107,6 +111,26 @@ pub struct Plant {
     pub ripple_fraction: f64,
     pub ripple_phase_rad: f64,
     pub alerts: Alerts,
+    /// Detailed fidelity: circuit constants and loop gains.
+    pub circuit: CircuitConstants,
+    pub gains: ControllerGains,
+}
+
+/// What the charger asks of the converter at one instant.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Request {
+    /// Locked out or shut down.
+    Off,
+    /// Diode-only connection.
+    Direct,
+    /// Charging: CC limit (after the temperature band), voltage set point, soft-start ramp;
+    /// `hold` when charging is refused or done.
+    Charge {
+        cc_limit_a: f64,
+        v_set: f64,
+        ramp: f64,
+        hold: bool,
+    },
 }
 
 /// Every algebraic quantity at one (t, x, mode).
@@ -135,15 +159,29 @@ pub struct Point {
     pub battery_powers: BatteryPowers,
     pub in_regulation: bool,
     pub band: TempBand,
+    /// Detailed fidelity: rates of the fast states and of the two loop integrators.
+    pub fast_rates: FastRates,
+    pub ctrl_rates: (f64, f64),
 }
 
 impl Plant {
-    /// Assembles the plant from a validated setup and profile and the drawn jitter.
+    /// Assembles the fast-fidelity plant from a validated setup and profile and the drawn jitter.
     pub fn new(
         setup: &Setup,
         profile: &Profile,
         jitter: JitterTrack,
         cadence_offset_rpm: f64,
+    ) -> Result<Self, String> {
+        Self::with_fidelity(setup, profile, jitter, cadence_offset_rpm, Fidelity::Fast)
+    }
+
+    /// Assembles the plant for the given fidelity.
+    pub fn with_fidelity(
+        setup: &Setup,
+        profile: &Profile,
+        jitter: JitterTrack,
+        cadence_offset_rpm: f64,
+        fidelity: Fidelity,
     ) -> Result<Self, String> {
         let generator = GeneratorModel::from_config(&setup.generator);
         let diode = DiodeModel::from_config(&setup.diode, setup.ambient_c)
@@ -193,12 +231,29 @@ impl Plant {
         }
         crank_starts.extend(jitter.rests.iter().map(|r| r.end_s));
         crank_starts.sort_by(f64::total_cmp);
+        let buck = BuckModel::from_config(c);
+        let start = BatteryState {
+            soc: setup.battery.soc_start,
+            v_rc_v: 0.0,
+            temp_c: setup.battery.temp_start_c.unwrap_or(setup.ambient_c),
+        };
+        let slope = battery.terminal(&start).v(0.1 * cap).1;
+        let v_nominal = c
+            .uvlo_on_v
+            .max(battery.charge_limit_v(setup.ambient_c) + 2.0);
         Ok(Self {
+            fidelity,
+            circuit: CircuitConstants {
+                armature_inductance_h: setup.generator.inductance_h.max(1e-6),
+                input_capacitance_f: c.input_capacitance_f,
+                output_capacitance_f: c.output_capacitance_f,
+            },
+            gains: ControllerGains::design(&buck, v_nominal, slope),
             ambient_c: setup.ambient_c,
             generator,
             diode,
             drive,
-            buck: BuckModel::from_config(c),
+            buck,
             charger,
             battery,
             winding: Lumped {
@@ -333,8 +388,20 @@ impl Plant {
         };
         let band = self.band(bs.temp_c);
         let term = self.battery.terminal(&bs);
-        let (load, target_current, cv_active) = self.load(d, &bs, &term, band, y[SOFT_START]);
-        let net = network::solve(&src, load, &term);
+        let request = self.request(d, bs.temp_c, band, y[SOFT_START]);
+        let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
+            Fidelity::Fast => {
+                let (load, target, cv) = self.fast_load(request, &term);
+                (
+                    network::solve(&src, load, &term),
+                    target,
+                    cv,
+                    FastRates::default(),
+                    (0.0, 0.0),
+                )
+            }
+            Fidelity::Detailed => self.detailed_network(&src, request, &term, y),
+        };
         let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
 
         // Mechanics.
@@ -411,57 +478,137 @@ impl Plant {
             battery_powers: powers,
             in_regulation,
             band,
+            fast_rates,
+            ctrl_rates,
         }
     }
 
-    /// The load on the input node and the charger's current target (A) and whether CV limits it.
-    fn load(
+    /// Fast fidelity: the ideal controller holds min(CC limit, the CV current) at once.
+    fn fast_load(&self, r: Request, term: &Terminal) -> (Load<'_>, f64, bool) {
+        match r {
+            Request::Off => (Load::Off, 0.0, false),
+            Request::Direct => (Load::Direct, 0.0, false),
+            Request::Charge {
+                cc_limit_a,
+                v_set,
+                ramp,
+                hold,
+            } => {
+                if hold {
+                    return (
+                        Load::Buck {
+                            model: &self.buck,
+                            target_a: 0.0,
+                        },
+                        0.0,
+                        false,
+                    );
+                }
+                let i_cv = term.current_at(v_set).max(0.0);
+                let target = ramp * cc_limit_a.min(i_cv);
+                (
+                    Load::Buck {
+                        model: &self.buck,
+                        target_a: target,
+                    },
+                    target,
+                    i_cv < cc_limit_a,
+                )
+            }
+        }
+    }
+
+    /// Detailed fidelity: the network from its integrated states and the two control loops.
+    #[allow(clippy::type_complexity)]
+    fn detailed_network(
         &self,
-        d: &Discrete,
-        bs: &BatteryState,
+        src: &Source,
+        r: Request,
         term: &Terminal,
-        band: TempBand,
-        soft: f64,
-    ) -> (Load<'_>, f64, bool) {
+        y: &State,
+    ) -> (NetworkPoint, f64, bool, FastRates, (f64, f64)) {
+        let x = FastStates {
+            armature_a: y[ARMATURE_I],
+            input_v: y[INPUT_V],
+            inductor_a: y[INDUCTOR_I],
+            output_v: y[OUTPUT_V],
+        };
+        match r {
+            Request::Direct => {
+                let (p, rates) =
+                    circuit::evaluate(src, &self.circuit, term, circuit::Drive::Direct, &x);
+                (p, 0.0, false, rates, (0.0, 0.0))
+            }
+            Request::Off => {
+                let (p, rates) = circuit::evaluate(
+                    src,
+                    &self.circuit,
+                    term,
+                    circuit::Drive::Off(&self.buck),
+                    &x,
+                );
+                (p, 0.0, false, rates, (0.0, 0.0))
+            }
+            Request::Charge {
+                cc_limit_a,
+                v_set,
+                ramp,
+                hold,
+            } => {
+                let out = controller::control(
+                    &self.gains,
+                    &self.buck,
+                    &ControlInput {
+                        cc_limit_a: if hold { 0.0 } else { cc_limit_a },
+                        v_set,
+                        ramp,
+                        input_v: x.input_v,
+                        output_v: x.output_v,
+                        inductor_a: x.inductor_a,
+                        voltage_integrator: y[CTRL_V],
+                        current_integrator: y[CTRL_I],
+                    },
+                );
+                let drive = circuit::Drive::Switching {
+                    buck: &self.buck,
+                    duty: out.duty,
+                };
+                let (mut p, rates) = circuit::evaluate(src, &self.circuit, term, drive, &x);
+                p.dropout = out.saturated;
+                (
+                    p,
+                    out.current_ref_a,
+                    out.cv_active && !hold,
+                    rates,
+                    (out.voltage_rate, out.current_rate),
+                )
+            }
+        }
+    }
+
+    /// What the charger asks for in mode `d` at battery temperature `temp_c`.
+    fn request(&self, d: &Discrete, temp_c: f64, band: TempBand, soft: f64) -> Request {
         if !self.has_converter() {
-            return (Load::Direct, 0.0, false);
+            return Request::Direct;
         }
         if !d.enabled || d.ov_shutdown {
-            return (Load::Off, 0.0, false);
+            return Request::Off;
         }
         let hold = matches!(band, TempBand::TooCold | TempBand::TooHot) || d.stage == Stage::Done;
-        if hold {
-            return (
-                Load::Buck {
-                    model: &self.buck,
-                    target_a: 0.0,
-                },
-                0.0,
-                false,
-            );
-        }
         let fraction = match (&self.battery, band) {
             (BatteryModel::LiIon(m), TempBand::Cool) => m.window.cool_current_fraction,
             _ => 1.0,
         };
-        let i_cc = self.charger.charge_current_a * fraction;
-        let v_set = self.voltage_setpoint_v(d, bs.temp_c);
-        let i_cv = term.current_at(v_set).max(0.0);
-        let cv_active = i_cv < i_cc;
-        let ramp = if d.soft_done {
-            1.0
-        } else {
-            soft.clamp(0.0, 1.0)
-        };
-        let target = ramp * i_cc.min(i_cv);
-        (
-            Load::Buck {
-                model: &self.buck,
-                target_a: target,
+        Request::Charge {
+            cc_limit_a: self.charger.charge_current_a * fraction,
+            v_set: self.voltage_setpoint_v(d, temp_c),
+            ramp: if d.soft_done {
+                1.0
+            } else {
+                soft.clamp(0.0, 1.0)
             },
-            target,
-            cv_active,
-        )
+            hold,
+        }
     }
 
     /// State derivative at a point (pure: depends on `p`, `y` and `d` only).
@@ -516,6 +663,29 @@ impl Plant {
         dy[E_BATTERY_COULOMBIC] = p.battery_powers.coulombic_loss_w;
         dy[E_STORED] = p.battery_powers.stored_w;
         dy[Q_BATTERY] = ib;
+        dy[ARMATURE_I] = p.fast_rates.armature;
+        dy[INPUT_V] = p.fast_rates.input;
+        dy[INDUCTOR_I] = p.fast_rates.inductor;
+        dy[OUTPUT_V] = p.fast_rates.output;
+        dy[CTRL_V] = p.ctrl_rates.0;
+        dy[CTRL_I] = p.ctrl_rates.1;
+    }
+
+    /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.
+    pub fn field_energy_j(&self, y: &State) -> f64 {
+        match self.fidelity {
+            Fidelity::Fast => 0.0,
+            Fidelity::Detailed => circuit::field_energy_j(
+                &self.circuit,
+                self.buck.inductance_h,
+                &FastStates {
+                    armature_a: y[ARMATURE_I],
+                    input_v: y[INPUT_V],
+                    inductor_a: y[INDUCTOR_I],
+                    output_v: y[OUTPUT_V],
+                },
+            ),
+        }
     }
 
     /// Kinetic energy of crank and shaft, J.

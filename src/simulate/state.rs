@@ -3,7 +3,7 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 22;
+pub const N_STATES: usize = 28;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
@@ -43,6 +43,20 @@ pub const E_BATTERY_COULOMBIC: usize = 19;
 pub const E_STORED: usize = 20;
 pub const Q_BATTERY: usize = 21;
 
+/// Detailed fidelity only (held at zero by the fast fidelity):
+/// armature current, A.
+pub const ARMATURE_I: usize = 22;
+/// Input capacitor voltage, V.
+pub const INPUT_V: usize = 23;
+/// Buck inductor current, A.
+pub const INDUCTOR_I: usize = 24;
+/// Output capacitor voltage, V.
+pub const OUTPUT_V: usize = 25;
+/// Voltage-loop integrator (current reference), A.
+pub const CTRL_V: usize = 26;
+/// Current-loop integrator (duty trim), 1.
+pub const CTRL_I: usize = 27;
+
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
     y.iter().all(|v| v.is_finite())
@@ -72,4 +86,10 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "e_battery_coulombic_j",
     "e_stored_j",
     "q_battery_as",
+    "armature_a",
+    "input_v",
+    "inductor_a",
+    "output_v",
+    "voltage_loop_a",
+    "current_loop",
 ];

@@ -95,6 +95,8 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
         Transition::Enable => {
             d.enabled = true;
             y[SOFT_START] = 0.0;
+            y[CTRL_V] = 0.0;
+            y[CTRL_I] = 0.0;
             d.soft_done = plant.charger.soft_start_s <= 0.0;
         }
         Transition::Disable => {

@@ -58,8 +58,14 @@ pub fn run_session(sc: &Scenario, rs: &RunSettings) -> Result<Session, SessionEr
         .duration_s
         .unwrap_or_else(|| sc.profile.total_duration_s());
     let jitter = JitterTrack::draw(&sc.profile.jitter, seed, duration);
-    let plant = Plant::new(&sc.setup, &sc.profile, jitter, rs.cadence_offset_rpm)
-        .map_err(SessionError::Setup)?;
+    let plant = Plant::with_fidelity(
+        &sc.setup,
+        &sc.profile,
+        jitter,
+        rs.cadence_offset_rpm,
+        rs.fidelity,
+    )
+    .map_err(SessionError::Setup)?;
     let so = &sc.setup.solver;
     let opts = SimOptions {
         duration_s: duration,

@@ -1,0 +1,165 @@
+//! The electrical network with every state integrated (detailed fidelity): armature current with
+//! L_a, input and output capacitor voltages, inductor current averaged over a switching period in
+//! CCM or DCM (full-order averaged model: the catch diode conducts for d2 ≤ 1 − d).
+//! The fast fidelity's [`crate::model::network`] is this network with these states at rest.
+
+use crate::model::battery::Terminal;
+use crate::model::converter::BuckModel;
+use crate::model::network::{NetworkPoint, Source};
+
+/// The fast electrical states.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct FastStates {
+    pub armature_a: f64,
+    pub input_v: f64,
+    pub inductor_a: f64,
+    pub output_v: f64,
+}
+
+/// Their rates.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct FastRates {
+    pub armature: f64,
+    pub input: f64,
+    pub inductor: f64,
+    pub output: f64,
+}
+
+/// Circuit constants of the detailed network.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct CircuitConstants {
+    pub armature_inductance_h: f64,
+    pub input_capacitance_f: f64,
+    pub output_capacitance_f: f64,
+}
+
+/// What the converter does this instant.
+#[derive(Debug, Clone, Copy)]
+pub enum Drive<'a> {
+    /// Locked out: duty 0, the inductor empties through the catch diode.
+    Off(&'a BuckModel),
+    /// Switching at `duty`.
+    Switching { buck: &'a BuckModel, duty: f64 },
+    /// No converter: the input capacitor sits across the battery.
+    Direct,
+}
+
+/// Armature current rate L·di/dt = E − i·R − V_b − V_D − v_in; a blocking diode holds i at 0.
+fn armature_rate(src: &Source, k: &CircuitConstants, i_raw: f64, v_in: f64) -> (f64, f64) {
+    let blocks = src.diode.blocks_reverse();
+    let i = if blocks { i_raw.max(0.0) } else { i_raw };
+    let push = src.node_v(i) - v_in;
+    let threshold = src.diode.threshold_v();
+    let rate = if blocks && i_raw <= 0.0 && push - threshold <= 0.0 {
+        0.0
+    } else if blocks && i_raw <= 0.0 {
+        (push - threshold) / k.armature_inductance_h
+    } else {
+        push / k.armature_inductance_h
+    };
+    (i, rate)
+}
+
+/// Evaluates the network from its states: the operating point (same fields as the fast solve)
+/// and the state rates.
+pub fn evaluate(
+    src: &Source,
+    k: &CircuitConstants,
+    term: &Terminal,
+    drive: Drive,
+    x: &FastStates,
+) -> (NetworkPoint, FastRates) {
+    let (i_a, di_a) = armature_rate(src, k, x.armature_a, x.input_v);
+    match drive {
+        Drive::Direct => {
+            let ib = term.current_at(x.input_v);
+            let p = NetworkPoint {
+                generator_current_a: i_a,
+                input_v: x.input_v,
+                duty: 1.0,
+                balance_duty: 1.0,
+                battery_current_a: ib,
+                battery_v: x.input_v,
+                diode_v: src.diode.forward_v(i_a),
+                brush_v: src.generator.brush_drop(i_a),
+                ..NetworkPoint::default()
+            };
+            let r = FastRates {
+                armature: di_a,
+                input: (i_a - ib) / k.input_capacitance_f,
+                inductor: 0.0,
+                output: 0.0,
+            };
+            (p, r)
+        }
+        Drive::Off(buck) | Drive::Switching { buck, .. } => {
+            let d = match drive {
+                Drive::Switching { duty, .. } => duty,
+                _ => 0.0,
+            };
+            let i_l = x.inductor_a.max(0.0);
+            let v_o = x.output_v;
+            let v_in = x.input_v;
+            let a = v_in - buck.switch_drop_v - i_l * buck.switch_resistance_ohm - v_o;
+            let b = v_o + buck.catch_drop_v;
+            let period = 1.0 / buck.switching_frequency_hz;
+            let (d2, dcm) = if d > 0.0 && a > 0.0 {
+                let d2 = 2.0 * buck.inductance_h * i_l / (d * period * a) - d;
+                if d2 < 1.0 - d {
+                    (d2.max(0.0), true)
+                } else {
+                    (1.0 - d, false)
+                }
+            } else if i_l > 0.0 {
+                (1.0 - d, false)
+            } else {
+                (0.0, d <= 0.0)
+            };
+            let mut di_l =
+                (d * a - d2 * b - i_l * buck.inductor_resistance_ohm) / buck.inductance_h;
+            if x.inductor_a <= 0.0 && di_l < 0.0 {
+                di_l = 0.0;
+            }
+            let switching = d > 0.0;
+            let i_in = if switching {
+                let share = if d + d2 > 0.0 { d / (d + d2) } else { 1.0 };
+                share * i_l + buck.quiescent_current_a + buck.switching_current_a(i_l)
+            } else {
+                0.0
+            };
+            let ib = term.current_at(v_o);
+            let loss = v_in * i_in - v_o * i_l - i_l * buck.inductance_h * di_l;
+            let p = NetworkPoint {
+                generator_current_a: i_a,
+                input_v: v_in,
+                duty: d,
+                balance_duty: d,
+                dcm,
+                battery_current_a: ib,
+                battery_v: v_o,
+                dropout: false,
+                diode_v: src.diode.forward_v(i_a),
+                brush_v: src.generator.brush_drop(i_a),
+                losses: crate::model::converter::ConverterLosses {
+                    switch_w: loss,
+                    ..Default::default()
+                },
+            };
+            let r = FastRates {
+                armature: di_a,
+                input: (i_a - i_in) / k.input_capacitance_f,
+                inductor: di_l,
+                output: (i_l - ib) / k.output_capacitance_f,
+            };
+            (p, r)
+        }
+    }
+}
+
+/// Energy held in the fast elements, J: ½L_a·i² + ½C_in·v_in² + ½L·i_L² + ½C_o·v_o².
+pub fn field_energy_j(k: &CircuitConstants, inductance_h: f64, x: &FastStates) -> f64 {
+    0.5 * k.armature_inductance_h * x.armature_a * x.armature_a
+        + 0.5 * k.input_capacitance_f * x.input_v * x.input_v
+        + 0.5 * inductance_h * x.inductor_a * x.inductor_a
+        + 0.5 * k.output_capacitance_f * x.output_v * x.output_v
+}
