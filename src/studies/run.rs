@@ -151,7 +151,7 @@ fn report(s: &Session, dir: &std::path::Path) {
     say(&format!(
         "  in regulation {:.1} % of cranking time ({:.1} s lost); max battery {:.3} V vs limit {:.3} V",
         100.0 * m.in_regulation_fraction,
-        m.regulation_loss_s,
+        m.regulation_loss_s.abs(),
         m.max_battery_v,
         m.charge_limit_v
     ));

@@ -9,21 +9,23 @@ use crate::units::c_to_k;
 
 /// SOC knots of the built-in OCV curves.
 const SOC_KNOTS: [f64; 12] = [0.0, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0];
-/// Typical NMC cell OCV, V (a generic curve of the usual shape, not a particular cell).
+/// Typical NMC cell OCV, V (a generic curve of the usual shape, not a particular cell). SOC 1 is
+/// defined as full at the CV voltage, so the top knot equals the chemistry's CV voltage. SOC 1 is
+/// defined as full at the CV voltage, so the top knot equals the chemistry's CV voltage.
 const OCV_NMC: [f64; 12] = [
-    3.00, 3.40, 3.50, 3.59, 3.64, 3.69, 3.74, 3.81, 3.90, 3.98, 4.07, 4.18,
+    3.00, 3.40, 3.50, 3.59, 3.64, 3.69, 3.74, 3.81, 3.90, 3.99, 4.09, 4.20,
 ];
 /// Typical LCO cell OCV, V.
 const OCV_LCO: [f64; 12] = [
-    3.00, 3.45, 3.57, 3.66, 3.71, 3.75, 3.79, 3.85, 3.93, 4.01, 4.09, 4.19,
+    3.00, 3.45, 3.57, 3.66, 3.71, 3.75, 3.79, 3.85, 3.93, 4.01, 4.10, 4.20,
 ];
 /// Typical NCA cell OCV, V.
 const OCV_NCA: [f64; 12] = [
-    3.00, 3.35, 3.46, 3.56, 3.62, 3.67, 3.72, 3.79, 3.88, 3.97, 4.06, 4.17,
+    3.00, 3.35, 3.46, 3.56, 3.62, 3.67, 3.72, 3.79, 3.88, 3.97, 4.07, 4.19,
 ];
 /// Typical LiFePO4 cell OCV, V: long flat plateau, steep ends.
 const OCV_LFP: [f64; 12] = [
-    2.50, 3.05, 3.15, 3.22, 3.26, 3.28, 3.29, 3.30, 3.31, 3.32, 3.34, 3.45,
+    2.50, 3.05, 3.15, 3.22, 3.26, 3.28, 3.29, 3.30, 3.31, 3.32, 3.35, 3.60,
 ];
 /// OCV slope beyond full (overcharge region), V per unit SOC per cell.
 const OVERFULL_SLOPE_V: f64 = 3.0;
