@@ -44,8 +44,14 @@ pub fn repo() -> &'static Path {
 
 /// Parses a CSV file into a header and rows of strings.
 pub fn read_csv(path: &Path) -> (Vec<String>, Vec<Vec<String>>) {
-    let mut r = csv::Reader::from_path(path).unwrap_or_else(|e| panic!("csv {}: {e}", path.display()));
-    let header = r.headers().expect("header").iter().map(String::from).collect();
+    let mut r =
+        csv::Reader::from_path(path).unwrap_or_else(|e| panic!("csv {}: {e}", path.display()));
+    let header = r
+        .headers()
+        .expect("header")
+        .iter()
+        .map(String::from)
+        .collect();
     let rows = r
         .records()
         .map(|rec| rec.expect("record").iter().map(String::from).collect())
@@ -60,6 +66,9 @@ pub fn column(header: &[String], rows: &[Vec<String>], name: &str) -> Vec<f64> {
         .position(|h| h == name)
         .unwrap_or_else(|| panic!("no column {name}"));
     rows.iter()
-        .map(|r| r[k].parse::<f64>().unwrap_or_else(|_| panic!("{name}: not a number: {}", r[k])))
+        .map(|r| {
+            r[k].parse::<f64>()
+                .unwrap_or_else(|_| panic!("{name}: not a number: {}", r[k]))
+        })
         .collect()
 }

@@ -221,8 +221,10 @@ fn place_at(
     col: usize,
 ) -> Place {
     for (o, path) in paths {
-        let spans = [ronpath::locate(text, path), ronpath::locate_key(text, path)];
-        for s in spans.into_iter().flatten() {
+        // The value, and the key of every level (an inserted `a: (b: (c: v))` may be blamed at `a`).
+        let spans = std::iter::once(ronpath::locate(text, path))
+            .chain((1..=path.len()).map(|k| ronpath::locate_key(text, &path[..k])));
+        for s in spans.flatten() {
             let (end_line, end_col) = ronpath::line_col(text, s.end);
             let after_start = (line, col) >= (s.line, s.col);
             let before_end = (line, col) <= (end_line, end_col);

@@ -5,12 +5,15 @@ use crate::model::battery::BatteryModel;
 use super::plant::{Discrete, Plant, Point, Stage, OV_RELEASE_FRACTION};
 use super::state::*;
 
+/// Margin by which the input must exceed the battery before the charger wakes from sleep, V.
+pub const SLEEP_HYSTERESIS_V: f64 = 0.1;
+
 /// A discrete change of mode.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Transition {
     /// UVLO releases: the converter starts (soft-start from zero).
     Enable,
-    /// Input fell below the UVLO off threshold.
+    /// Input fell below the UVLO off threshold, or below the battery (sleep).
     Disable,
     /// Input above its limit with shutdown configured.
     OvShutdown,
@@ -44,7 +47,8 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             if c.overvoltage_shutdown && p.net.input_v > c.input_overvoltage_v {
                 return Some(Transition::OvShutdown);
             }
-            if p.net.input_v < c.uvlo_off_v {
+            // UVLO, or sleep: an input below the battery cannot charge it.
+            if p.net.input_v < c.uvlo_off_v || p.net.input_v < p.net.battery_v {
                 return Some(Transition::Disable);
             }
             if !d.soft_done && y[SOFT_START] >= 1.0 {
@@ -70,7 +74,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 }
                 _ => {}
             }
-        } else if p.net.input_v >= c.uvlo_on_v {
+        } else if p.net.input_v >= c.uvlo_on_v && p.net.input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V {
             return Some(Transition::Enable);
         }
         if p.band != d.band {

@@ -148,12 +148,18 @@ fn report(s: &Session, dir: &std::path::Path) {
         m.peak_operator_power_w,
         100.0 * m.efficiency_crank_to_battery
     ));
+    let regulation = if m.topology == "direct" {
+        "no converter (direct)".to_string()
+    } else {
+        format!(
+            "in regulation {:.1} % of cranking time ({:.1} s lost)",
+            100.0 * m.in_regulation_fraction,
+            m.regulation_loss_s
+        )
+    };
     say(&format!(
-        "  in regulation {:.1} % of cranking time ({:.1} s lost); max battery {:.3} V vs limit {:.3} V",
-        100.0 * m.in_regulation_fraction,
-        m.regulation_loss_s.abs(),
-        m.max_battery_v,
-        m.charge_limit_v
+        "  {regulation}; max battery {:.3} V vs limit {:.3} V",
+        m.max_battery_v, m.charge_limit_v
     ));
     say(&format!(
         "  energy ledger closes to {:.2e}; {} alerts; verdict: {}",
