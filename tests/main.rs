@@ -2,6 +2,7 @@
 
 mod common;
 mod fidelity;
+mod hardening;
 mod run_cli;
 mod studies_cli;
 mod validation;

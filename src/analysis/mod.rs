@@ -1,6 +1,7 @@
 //! Reading results: trace, events, summary figures and statistics. Never reaches back into the model.
 
 pub mod events;
+pub mod fit;
 pub mod stats;
 pub mod summary;
 pub mod trace;

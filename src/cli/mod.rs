@@ -31,6 +31,16 @@ pub struct Cli {
 pub enum Command {
     /// Simulate one charging session and write trace, events, summary and charts.
     Run(RunArgs),
+    /// Static design figures of a setup (no simulation), then the cautions.
+    Check(crate::studies::check::CheckArgs),
+    /// Run every setup with every crank profile on one seed and tabulate the results.
+    Compare(crate::studies::compare::CompareArgs),
+    /// One run per value of a setup or profile field.
+    Sweep(crate::studies::sweep::SweepArgs),
+    /// A population of operators (seeds and capacities) in parallel, with percentiles.
+    Montecarlo(crate::studies::montecarlo::MontecarloArgs),
+    /// Fit a generator's back-EMF constant and resistance to measured points.
+    FitGenerator(crate::studies::fit::FitArgs),
 }
 
 /// A failure classified by exit code.
@@ -58,6 +68,11 @@ impl Failure {
 pub fn run(cli: Cli) -> i32 {
     let outcome = match cli.command {
         Command::Run(a) => crate::studies::run::run(&a),
+        Command::Check(a) => crate::studies::check::run(&a),
+        Command::Compare(a) => crate::studies::compare::run(&a),
+        Command::Sweep(a) => crate::studies::sweep::run(&a),
+        Command::Montecarlo(a) => crate::studies::montecarlo::run(&a),
+        Command::FitGenerator(a) => crate::studies::fit::run(&a),
     };
     match outcome {
         Ok(code) => code,

@@ -1,4 +1,10 @@
-//! Studies built on the one session engine: run, and (later) compare, sweep, Monte Carlo.
+//! Studies built on the one session engine: run, compare, sweep, Monte Carlo; and the two that
+//! run no session: check (static design figures) and fit (generator constants from measurements).
 
+pub mod check;
+pub mod compare;
+pub mod fit;
+pub mod montecarlo;
 pub mod run;
 pub mod session;
+pub mod sweep;

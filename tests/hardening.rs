@@ -1,0 +1,249 @@
+//! Hardening: random mutations of shipped files, degenerate designs and long sessions either run
+//! correctly (finite outputs, closed ledger) or are refused with a message; never a panic.
+
+use std::time::Duration;
+
+use proptest::prelude::*;
+use proptest::test_runner::{Config, RngAlgorithm, TestRng, TestRunner};
+
+use crate::common::{read_csv, repo, WorkDir};
+
+/// Every numeric cell of a CSV must be finite (text cells such as `mode` are skipped).
+fn assert_finite_csv(path: &std::path::Path) {
+    let (header, rows) = read_csv(path);
+    for (r, row) in rows.iter().enumerate() {
+        for (c, cell) in row.iter().enumerate() {
+            if let Ok(v) = cell.parse::<f64>() {
+                assert!(v.is_finite(), "{}: row {r} column {} = {cell}", path.display(), header[c]);
+            } else {
+                let lower = cell.to_ascii_lowercase();
+                assert!(
+                    !(lower.contains("nan") || lower.contains("inf")),
+                    "{}: row {r} column {} = {cell}",
+                    path.display(),
+                    header[c]
+                );
+            }
+        }
+    }
+}
+
+/// Byte ranges of the numeric literals of a RON text.
+fn number_spans(text: &str) -> Vec<(usize, usize)> {
+    let b = text.as_bytes();
+    let mut out = Vec::new();
+    let mut i = 0;
+    while i < b.len() {
+        let starts = b[i].is_ascii_digit() && (i == 0 || !(b[i - 1].is_ascii_alphanumeric() || b[i - 1] == b'_'));
+        if starts {
+            let s = if i > 0 && b[i - 1] == b'-' { i - 1 } else { i };
+            let mut j = i;
+            while j < b.len() && (b[j].is_ascii_digit() || matches!(b[j], b'.' | b'e' | b'E' | b'-' | b'+')) {
+                j += 1;
+            }
+            out.push((s, j));
+            i = j;
+        } else {
+            i += 1;
+        }
+    }
+    out
+}
+
+/// One mutation of a text.
+#[derive(Debug, Clone)]
+enum Mutation {
+    /// Replace the k-th number with a new literal.
+    Number(usize, String),
+    /// Delete `len` bytes at a position (fraction of the length).
+    Delete(f64, usize),
+    /// Insert a token at a position.
+    Insert(f64, String),
+}
+
+fn mutation() -> impl Strategy<Value = Mutation> {
+    let literal = prop_oneof![
+        (-1e6f64..1e6).prop_map(|v| format!("{v}")),
+        (-10.0f64..10.0).prop_map(|v| format!("{v:.3}")),
+        Just("0".to_string()),
+        Just("0.0".to_string()),
+        Just("-1".to_string()),
+        Just("1e30".to_string()),
+        Just("-1e-30".to_string()),
+        Just("NaN".to_string()),
+        Just("inf".to_string()),
+        Just("\"text\"".to_string()),
+        Just("true".to_string()),
+    ];
+    prop_oneof![
+        4 => (0usize..200, literal).prop_map(|(k, v)| Mutation::Number(k, v)),
+        1 => (0.0f64..1.0, 1usize..6).prop_map(|(p, n)| Mutation::Delete(p, n)),
+        1 => (0.0f64..1.0, prop_oneof![Just(")"), Just("("), Just(","), Just("x: 1,"), Just("["), Just("\"")])
+            .prop_map(|(p, t)| Mutation::Insert(p, t.to_string())),
+    ]
+}
+
+fn apply(text: &str, m: &Mutation) -> String {
+    let at = |p: f64| {
+        let mut k = ((text.len() as f64) * p) as usize;
+        while k < text.len() && !text.is_char_boundary(k) {
+            k += 1;
+        }
+        k.min(text.len())
+    };
+    match m {
+        Mutation::Number(k, v) => {
+            let spans = number_spans(text);
+            if spans.is_empty() {
+                return text.to_string();
+            }
+            let (s, e) = spans[k % spans.len()];
+            format!("{}{}{}", &text[..s], v, &text[e..])
+        }
+        Mutation::Delete(p, n) => {
+            let s = at(*p);
+            let mut e = (s + n).min(text.len());
+            while e < text.len() && !text.is_char_boundary(e) {
+                e += 1;
+            }
+            format!("{}{}", &text[..s], &text[e..])
+        }
+        Mutation::Insert(p, t) => {
+            let s = at(*p);
+            format!("{}{}{}", &text[..s], t, &text[s..])
+        }
+    }
+}
+
+#[test]
+fn random_mutations_of_a_shipped_setup_run_or_are_refused_clearly() {
+    let original = std::fs::read_to_string(repo().join("profiles/setups/demo.ron")).expect("demo setup");
+    let config = Config {
+        cases: 150,
+        failure_persistence: None,
+        ..Config::default()
+    };
+    let mut runner = TestRunner::new_with_rng(config, TestRng::deterministic_rng(RngAlgorithm::ChaCha));
+    let wd = WorkDir::new();
+    let counts = std::cell::RefCell::new([0usize; 4]);
+    let result = runner.run(&mutation(), |m| {
+        let text = apply(&original, &m);
+        std::fs::write(wd.path("mutated.ron"), &text).expect("write");
+        let out = wd
+            .cmd()
+            .args(["run", "mutated.ron", "--duration", "15", "--no-plot", "--out", "out"])
+            .timeout(Duration::from_secs(60))
+            .output()
+            .expect("binary runs");
+        let code = out.status.code().unwrap_or(-1);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        prop_assert!((0..=3).contains(&code), "exit {code} for {m:?}; stderr: {stderr}");
+        counts.borrow_mut()[code as usize] += 1;
+        if code >= 2 {
+            prop_assert!(stderr.contains("error"), "silent refusal (exit {code}) for {m:?}");
+        } else {
+            assert_finite_csv(&wd.path("out/trace.csv"));
+            assert_finite_csv(&wd.path("out/events.csv"));
+            let summary = std::fs::read_to_string(wd.path("out/summary.json")).expect("summary");
+            let v: serde_json::Value = serde_json::from_str(&summary).expect("summary is JSON");
+            prop_assert!(!summary.contains("null"), "null (non-finite) in summary for {m:?}");
+            let err = v["energy_balance_error"].as_f64().unwrap_or(1.0);
+            prop_assert!(err < 1e-3, "ledger error {err} for {m:?}");
+        }
+        Ok(())
+    });
+    result.unwrap_or_else(|e| panic!("{e}"));
+    let counts = counts.into_inner();
+    // The mutations must exercise both outcomes, or the test proves little.
+    assert!(counts[0] + counts[1] > 10, "too few accepted runs: {counts:?}");
+    assert!(counts[2] > 10, "too few refusals: {counts:?}");
+}
+
+/// Runs the demo with overrides for 30 s; returns (exit code, stderr, summary if written).
+fn demo_with(sets: &[&str]) -> (i32, String, Option<serde_json::Value>) {
+    let wd = WorkDir::new();
+    let mut args = vec!["run", "--duration", "30", "--no-plot", "--out", "out"];
+    for s in sets {
+        args.push("--set");
+        args.push(s);
+    }
+    let out = wd.cmd().args(&args).timeout(Duration::from_secs(120)).output().expect("runs");
+    let code = out.status.code().unwrap_or(-1);
+    let summary = std::fs::read_to_string(wd.path("out/summary.json"))
+        .ok()
+        .and_then(|s| serde_json::from_str(&s).ok());
+    if code <= 1 {
+        assert_finite_csv(&wd.path("out/trace.csv"));
+    }
+    (code, String::from_utf8_lossy(&out.stderr).into_owned(), summary)
+}
+
+#[test]
+fn degenerate_designs_are_refused_with_a_reason_or_simulated() {
+    // Refused: the message names the field.
+    for (set, field) in [
+        ("generator.resistance_ohm=0", "generator.resistance_ohm"),
+        ("drive.crank_inertia_kg_m2=0", "drive.crank_inertia_kg_m2"),
+        ("generator.inertia_kg_m2=0", "generator.inertia_kg_m2"),
+        ("drive.stages.0.ratio=0", "drive.stages.0.ratio"),
+        ("drive.stages.0.ratio=1000", "drive.stages.0.ratio"),
+        ("battery.capacity_ah=0", "battery.capacity_ah"),
+        ("battery.soc_start=1.5", "battery.soc_start"),
+        ("converter.uvlo_off_v=20", "converter.uvlo_off_v"),
+    ] {
+        let (code, stderr, _) = demo_with(&[set]);
+        assert_eq!(code, 2, "{set}: {stderr}");
+        assert!(stderr.contains(field), "{set}: message does not name {field}: {stderr}");
+    }
+    // Simulated: edge values inside the ranges give finite outputs and a closed ledger.
+    for sets in [
+        vec!["battery.soc_start=0"],
+        vec!["battery.soc_start=1"],
+        vec!["battery.capacity_ah=0.01"],
+        vec!["drive.stages.0.ratio=0.05"],
+        vec!["drive.stages.0.ratio=60"],
+        vec!["generator.resistance_ohm=0.001"],
+        vec!["generator.back_emf_v_per_krpm=0.5"],
+        vec!["drive.flywheel_inertia_kg_m2=0", "generator.inertia_kg_m2=1e-7"],
+        vec!["drive.freewheel=true"],
+    ] {
+        let (code, stderr, summary) = demo_with(&sets);
+        assert!(code == 0 || code == 1 || code == 3, "{sets:?}: exit {code}: {stderr}");
+        if code == 3 {
+            assert!(stderr.contains("t = "), "{sets:?}: a failure must say when: {stderr}");
+            continue;
+        }
+        let s = summary.expect("summary written");
+        let err = s["energy_balance_error"].as_f64().expect("number");
+        assert!(err < 1e-3, "{sets:?}: ledger error {err}");
+    }
+    // A generator that never reaches the battery voltage charges nothing and says so.
+    let (code, _, summary) = demo_with(&["generator.back_emf_v_per_krpm=0.5"]);
+    assert_eq!(code, 0);
+    let s = summary.expect("summary");
+    assert!(s["charge_delivered_ah"].as_f64().unwrap().abs() < 1e-6);
+    assert!(s["regulation_loss_s"].as_f64().unwrap() > 20.0, "{s}");
+}
+
+#[test]
+fn a_two_hour_session_completes_with_its_ledger_closed_and_its_grid_intact() {
+    let wd = WorkDir::new();
+    wd.cmd()
+        .args(["run", "--duration", "2h", "--no-plot", "--out", "long"])
+        .timeout(Duration::from_secs(300))
+        .assert()
+        .success();
+    let (header, rows) = read_csv(&wd.path("long/trace.csv"));
+    let t = crate::common::column(&header, &rows, "time_s");
+    assert_eq!(t.len(), 72_001, "0.1 s grid over 7200 s");
+    assert!((t[t.len() - 1] - 7200.0).abs() < 1e-9);
+    for w in t.windows(2) {
+        assert!((w[1] - w[0] - 0.1).abs() < 1e-6, "grid broken at {}", w[0]);
+    }
+    let s: serde_json::Value = serde_json::from_str(&wd.read("long/summary.json")).expect("json");
+    assert!(s["energy_balance_error"].as_f64().unwrap() < 1e-3);
+    // Common practice: a CC/CV charger terminates in CV below its termination current (C/10 by
+    // default), which leaves a Li-ion cell roughly 95-99 % full, never past full.
+    let soc_end = s["soc_end"].as_f64().unwrap();
+    assert!(soc_end > 0.9 && soc_end <= 1.0, "soc_end {soc_end}");
+}
