@@ -8,7 +8,9 @@ fn main() {
     let code = match std::panic::catch_unwind(|| crankcharge::cli::run(cli)) {
         Ok(code) => code,
         Err(_) => {
-            eprintln!("crankcharge: internal error (please report it with the inputs that caused it)");
+            eprintln!(
+                "crankcharge: internal error (please report it with the inputs that caused it)"
+            );
             crankcharge::cli::EXIT_SIM
         }
     };

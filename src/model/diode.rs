@@ -128,15 +128,30 @@ impl DiodeModel {
     }
 }
 
-/// Shockley parameters (I_s, n·V_T) through two datasheet points with a known series resistance:
-/// n·V_T = ((V2 − I2·Rs) − (V1 − I1·Rs)) / ln(I2/I1), I_s = I1 / (exp((V1 − I1·Rs)/(n·V_T)) − 1).
+/// Shockley parameters (I_s, n·V_T) through two datasheet points with a known series resistance,
+/// exact for V = n·V_T·ln(1 + I/I_s) + I·Rs:
+/// n·V_T = ((V2 − I2·Rs) − (V1 − I1·Rs)) / ln((I2 + I_s)/(I1 + I_s)),
+/// I_s = I1 / (exp((V1 − I1·Rs)/(n·V_T)) − 1), iterated from I_s = 0 (contracts by ≈ I_s/I).
 pub fn shockley_from_points(p1: (f64, f64), p2: (f64, f64), rs: f64) -> Option<(f64, f64)> {
     let (i1, v1) = p1;
     let (i2, v2) = p2;
     if i1 <= 0.0 || i2 <= 0.0 || (i2 - i1).abs() < 1e-12 * i1.max(i2) {
         return None;
     }
-    let n_vt = ((v2 - i2 * rs) - (v1 - i1 * rs)) / (i2 / i1).ln();
+    let dv = (v2 - i2 * rs) - (v1 - i1 * rs);
+    let mut n_vt = dv / (i2 / i1).ln();
+    for _ in 0..50 {
+        let is = i1 / ((v1 - i1 * rs) / n_vt).exp_m1();
+        if !(is.is_finite() && is > 0.0) {
+            break;
+        }
+        let next = dv / ((i2 + is) / (i1 + is)).ln();
+        let done = (next - n_vt).abs() <= 1e-15 * n_vt.abs();
+        n_vt = next;
+        if done {
+            break;
+        }
+    }
     if !(n_vt > 1e-4 && n_vt < 1.0) {
         return None;
     }

@@ -92,7 +92,8 @@ impl OperatorModel {
     }
 }
 
-/// dW′/dt = −(P − CP) for P > CP; (W′0 − W′)·(CP − P)/W′0 for P ≤ CP (Skiba et al. 2015 form).
+/// dW′/dt = −(P − CP) for P > CP; (W′0 − W′)·(CP − P)/W′0 for P ≤ CP (the differential form of
+/// the W′-balance model of Skiba et al.).
 pub fn w_prime_balance_rate(cp_w: f64, w0_j: f64, p_w: f64, w_j: f64) -> f64 {
     if p_w > cp_w {
         if w_j > 0.0 {

@@ -390,7 +390,7 @@ pub struct Battery {
     /// Lead-acid: the compensated limit is clamped to at most this, V/cell; default 2.50.
     #[serde(default)]
     pub max_compensated_v_per_cell: Option<f64>,
-    /// Lead-acid: the compensated limit is clamped to at least this, V/cell; default 2.25.
+    /// Lead-acid: the compensated limit is clamped to at least this, V/cell; default 2.20.
     #[serde(default)]
     pub min_compensated_v_per_cell: Option<f64>,
     /// Mass, kg (0.001 … 1000).

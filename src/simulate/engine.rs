@@ -68,6 +68,12 @@ pub enum SimError {
         reason: String,
         state: String,
     },
+    #[error("the mode keeps changing at t = {t_s:.6} s ({changes}); state: {state}")]
+    Chatter {
+        t_s: f64,
+        changes: String,
+        state: String,
+    },
     #[error("the state became non-finite at t = {t_s:.6} s; state: {state}")]
     NonFinite { t_s: f64, state: String },
 }
@@ -241,7 +247,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let mut sampler = Sampler::new(opts.trace_interval_s, t_end);
     let evals = Cell::new(0u64);
 
-    cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats);
+    cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats)?;
     let p0 = plant.eval(t, &y, &disc);
     observer.set(t, &codes(plant, &p0, &y, &disc), plant, &p0, &y);
     let mut h_guess: f64 = 0.0;
@@ -376,7 +382,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             disc.resting = resting;
             stats.mode_changes += 1;
         }
-        cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats);
+        cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats)?;
         let p = plant.eval(t, &y, &disc);
         observer.set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
     }
@@ -397,7 +403,8 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     })
 }
 
-/// Applies every transition due at (t, y) until none is, recording charge completion.
+/// Applies every transition due at (t, y) until none is, recording charge completion. A mode that
+/// keeps flipping at one instant is a modelling error and is reported, not looped over.
 fn cascade(
     plant: &Plant,
     t: f64,
@@ -405,13 +412,15 @@ fn cascade(
     disc: &mut Discrete,
     observer: &mut Observer,
     stats: &mut SolverStats,
-) {
+) -> Result<(), SimError> {
+    let mut applied = Vec::new();
     for _ in 0..MAX_CASCADE {
         let p = plant.eval(t, y, disc);
         let Some(tr) = due(plant, &p, y, disc) else {
-            break;
+            return Ok(());
         };
         apply(plant, tr, t, &p, y, disc);
+        applied.push(tr);
         stats.mode_changes += 1;
         if tr == Transition::Terminate {
             observer.instant(
@@ -423,6 +432,15 @@ fn cascade(
             );
         }
     }
+    let p = plant.eval(t, y, disc);
+    if due(plant, &p, y, disc).is_none() {
+        return Ok(());
+    }
+    Err(SimError::Chatter {
+        t_s: t,
+        changes: format!("{applied:?}"),
+        state: describe(y),
+    })
 }
 
 /// Locates changes of the watched conditions inside (a, b] and applies them.

@@ -159,6 +159,9 @@ pub struct Point {
     pub battery_powers: BatteryPowers,
     pub in_regulation: bool,
     pub band: TempBand,
+    /// Input voltage the converter would see at its quiescent draw (what UVLO and sleep compare
+    /// before enabling, so that enabling cannot at once undo itself), V.
+    pub idle_input_v: f64,
     /// Detailed fidelity: rates of the fast states and of the two loop integrators.
     pub fast_rates: FastRates,
     pub ctrl_rates: (f64, f64),
@@ -403,6 +406,10 @@ impl Plant {
             Fidelity::Detailed => self.detailed_network(&src, request, &term, y),
         };
         let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
+        let idle_input_v = match (request, self.fidelity) {
+            (Request::Off, Fidelity::Fast) => src.node_v(self.buck.quiescent_current_a),
+            _ => net.input_v,
+        };
 
         // Mechanics.
         let tau_em = self.generator.torque_n_m(net.generator_current_a);
@@ -478,6 +485,7 @@ impl Plant {
             battery_powers: powers,
             in_regulation,
             band,
+            idle_input_v,
             fast_rates,
             ctrl_rates,
         }

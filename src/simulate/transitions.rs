@@ -74,7 +74,9 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 }
                 _ => {}
             }
-        } else if p.net.input_v >= c.uvlo_on_v && p.net.input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V {
+        } else if p.idle_input_v >= c.uvlo_on_v
+            && p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V
+        {
             return Some(Transition::Enable);
         }
         if p.band != d.band {

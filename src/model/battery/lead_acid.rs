@@ -105,7 +105,7 @@ impl LeadAcidModel {
         self.cells
             * self
                 .compensated(self.float_v_per_cell, temp_c)
-                .min(self.absorption_v_per_cell)
+                .min(self.compensated(self.absorption_v_per_cell, temp_c))
     }
 
     /// Cell voltage at current `i` (battery amps, charging positive).
