@@ -254,6 +254,9 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let mut next_event = 0usize;
 
     while t < t_end {
+        if t_end - t <= 1e-9 * t_end.max(1.0) {
+            break;
+        }
         while next_event < time_events.len() && time_events[next_event] <= t {
             next_event += 1;
         }
@@ -266,6 +269,13 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             .copied()
             .unwrap_or(t_end)
             .min(t + max_segment);
+        // Snap to a time event a rounding sliver away: a 1e-15 s segment would make the solver
+        // report a step-size underflow.
+        if let Some(&te) = time_events.get(next_event) {
+            if te > t_stop && te - t_stop <= 1e-9 * te.abs().max(1.0) {
+                t_stop = te;
+            }
+        }
         if disc.stage == Stage::Absorption {
             let deadline = disc.absorption_since_s + plant.charger.absorption_max_s;
             if deadline > t && deadline < t_stop {
@@ -317,7 +327,21 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
                 state: describe(rec.last_state.as_ref().unwrap_or(&y)),
             });
         }
-        let dense = |tq: f64| model.evaluate(tq).unwrap_or(y);
+        // Evaluate inside the model's range: grid times a few ulps past the last step must not
+        // fall back to a stale state.
+        let (lo_b, hi_b) = if rec.steps.is_empty() {
+            (t, t)
+        } else {
+            model.bounds()
+        };
+        let dense = |tq: f64| {
+            if rec.steps.is_empty() {
+                return y;
+            }
+            model
+                .evaluate(tq.clamp(lo_b, hi_b))
+                .unwrap_or_else(|| rec.last_state.unwrap_or(y))
+        };
 
         // End of the valid part: the located switching time, or the segment end.
         let n = rec.steps.len();

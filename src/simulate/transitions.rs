@@ -88,8 +88,13 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             if p.belt_torque_n_m < 0.0 {
                 return Some(Transition::Disengage);
             }
-        } else if plant.drive.ratio * p.crank_speed >= p.gen_speed {
-            return Some(Transition::Engage);
+        } else {
+            // Re-engage when the crank catches up with the shaft and is gaining on it (the relative
+            // acceleration test keeps the clutch from re-engaging the instant it let go).
+            let n = plant.drive.ratio;
+            if n * p.crank_speed >= p.gen_speed && n * p.crank_accel > p.gen_accel {
+                return Some(Transition::Engage);
+            }
         }
     }
     None
