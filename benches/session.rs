@@ -23,14 +23,38 @@ struct Case {
 fn main() {
     let quick = std::env::args().any(|a| a == "--quick");
     let cases = [
-        Case { setup: "demo", fidelity: Fidelity::Fast, duration_s: 600.0 },
-        Case { setup: "lead-acid-direct", fidelity: Fidelity::Fast, duration_s: 600.0 },
-        Case { setup: "demo", fidelity: Fidelity::Detailed, duration_s: if quick { 2.0 } else { 10.0 } },
-        Case { setup: "lead-acid-direct", fidelity: Fidelity::Detailed, duration_s: if quick { 2.0 } else { 10.0 } },
+        Case {
+            setup: "demo",
+            fidelity: Fidelity::Fast,
+            duration_s: 600.0,
+        },
+        Case {
+            setup: "lead-acid-direct",
+            fidelity: Fidelity::Fast,
+            duration_s: 600.0,
+        },
+        Case {
+            setup: "demo",
+            fidelity: Fidelity::Detailed,
+            duration_s: if quick { 2.0 } else { 10.0 },
+        },
+        Case {
+            setup: "lead-acid-direct",
+            fidelity: Fidelity::Detailed,
+            duration_s: if quick { 2.0 } else { 10.0 },
+        },
     ];
     println!(
         "{:<18} {:<9} {:>9} {:>10} {:>10} {:>9} {:>12} {:>9} {:>12}",
-        "setup", "fidelity", "sim [s]", "wall [ms]", "accepted", "rejected", "evaluations", "ns/eval", "real-time x"
+        "setup",
+        "fidelity",
+        "sim [s]",
+        "wall [ms]",
+        "accepted",
+        "rejected",
+        "evaluations",
+        "ns/eval",
+        "real-time x"
     );
     for c in &cases {
         let setup = SourceText::resolve(Some(c.setup), InputKind::Setup).expect("shipped setup");
