@@ -4,6 +4,7 @@ use serde::Serialize;
 
 use super::events::{Event, EventKind};
 use super::trace::Trace;
+use crate::simulate::engine::{Ledger, SolverStats};
 
 /// Verdict of a run: `ok`, one flag, or a list of flags.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]
@@ -35,31 +36,6 @@ impl Verdict {
             Verdict::Many(v) => v.clone(),
         }
     }
-}
-
-/// Energy ledger as written in the summary, J.
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct LedgerOut {
-    pub operator_work_j: f64,
-    pub kinetic_change_j: f64,
-    pub drive_loss_j: f64,
-    pub friction_j: f64,
-    pub copper_j: f64,
-    pub brush_j: f64,
-    pub diode_j: f64,
-    pub converter_loss_j: f64,
-    pub battery_internal_loss_j: f64,
-    pub battery_stored_j: f64,
-}
-
-/// Solver figures as written in the summary.
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct SolverOut {
-    pub evaluations: u64,
-    pub accepted_steps: u64,
-    pub rejected_steps: u64,
-    pub segments: u64,
-    pub mode_changes: u64,
 }
 
 /// The contract keys of `summary.json`, then extras.
@@ -96,8 +72,10 @@ pub struct Summary {
     pub max_battery_temp_c: f64,
     pub efficiency_crank_to_battery: f64,
     pub overrides: Vec<String>,
-    pub ledger: LedgerOut,
-    pub solver: SolverOut,
+    /// Every term of the energy ledger, J.
+    pub ledger: Ledger,
+    /// Integrator figures.
+    pub solver: SolverStats,
 }
 
 /// Total duration of the events of one kind, s.

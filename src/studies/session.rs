@@ -4,7 +4,7 @@
 use std::time::Instant;
 
 use crate::analysis::events::EventKind;
-use crate::analysis::summary::{self, LedgerOut, SolverOut, Summary, Verdict};
+use crate::analysis::summary::{self, Summary, Verdict};
 use crate::model::jitter::JitterTrack;
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
@@ -248,24 +248,7 @@ fn summarise(
             .iter()
             .map(|o| format!("{}={}", o.key, o.value))
             .collect(),
-        ledger: LedgerOut {
-            operator_work_j: led.operator_work_j,
-            kinetic_change_j: led.kinetic_change_j,
-            drive_loss_j: led.drive_loss_j,
-            friction_j: led.friction_j,
-            copper_j: led.copper_j,
-            brush_j: led.brush_j,
-            diode_j: led.diode_j,
-            converter_loss_j: led.converter_loss_j,
-            battery_internal_loss_j: led.battery_ohmic_j + led.battery_coulombic_j,
-            battery_stored_j: led.stored_chemical_j + led.rc_change_j,
-        },
-        solver: SolverOut {
-            evaluations: r.stats.evaluations,
-            accepted_steps: r.stats.accepted_steps,
-            rejected_steps: r.stats.rejected_steps,
-            segments: r.stats.segments,
-            mode_changes: r.stats.mode_changes,
-        },
+        ledger: *led,
+        solver: r.stats,
     }
 }
