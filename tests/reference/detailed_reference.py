@@ -33,6 +33,7 @@ import math
 import pathlib
 import re
 import sys
+import time
 
 import numpy as np
 from scipy.integrate import solve_ivp
@@ -619,7 +620,13 @@ COLUMNS = ["time_s", "crank_rpm", "target_rpm", "generator_rpm", "emf_v", "gener
            "battery_temp_c", "winding_temp_c", "operator_power_w", "operator_torque_n_m", "mode"]
 
 
-def run(m, duration, grid_dt, rtol, atol_all):
+def run(m, duration, grid_dt, rtol, atol_all, method="Radau", max_step=0.01, stats=None):
+    """Integrates `duration` s from rest; (grid rows, events, accepted steps).
+
+    `method` and `max_step` are solve_ivp's (the fixture uses the defaults). If `stats` is a dict,
+    the solver's counters summed over the segments are added to it: nfev, njev, nlu, steps and
+    solve_s (wall time inside solve_ivp, perf_counter).
+    """
     t, y = 0.0, m.initial_state()
     enabled, soft_done = False, m.t_soft <= 0.0
     # Kinks of the planned target: the end of the spin-up ramp and the segment ends.
@@ -658,8 +665,14 @@ def run(m, duration, grid_dt, rtol, atol_all):
         fun = lambda tt, yy, e=enabled, s=soft_done: m.evaluate(tt, yy, e, s)[1]
         atol = np.full(m.N, atol_all)
         atol[m.W_PRIME] = 1e-7  # J: the reserve sits at 9 kJ
-        sol = solve_ivp(fun, (t, t_stop), y, method="Radau", rtol=rtol, atol=atol,
-                        dense_output=True, events=ev_funcs, max_step=0.01)
+        t_wall = time.perf_counter()
+        sol = solve_ivp(fun, (t, t_stop), y, method=method, rtol=rtol, atol=atol,
+                        dense_output=True, events=ev_funcs, max_step=max_step)
+        if stats is not None:
+            stats["solve_s"] = stats.get("solve_s", 0.0) + time.perf_counter() - t_wall
+            for key in ("nfev", "njev", "nlu"):
+                stats[key] = stats.get(key, 0) + int(getattr(sol, key, 0) or 0)
+            stats["steps"] = stats.get("steps", 0) + len(sol.t) - 1
         if sol.status < 0:
             sys.exit(f"solve_ivp failed at t = {sol.t[-1]}: {sol.message}")
         n_steps += len(sol.t) - 1
@@ -706,6 +719,25 @@ def run(m, duration, grid_dt, rtol, atol_all):
         rows.append(out)
         k += 1
     return rows, sorted(events, key=lambda e: e[1]), n_steps
+
+
+def build_model():
+    """The demo + steady scenario of the fixture, after checking the copied constants."""
+    check_constants_against_sources()
+    return Model(read_setup(SETUP_FILE), read_profile(PROFILE_FILE))
+
+
+def integrate(method="Radau", duration_s=DURATION_S, rtol=RTOL, atol=ATOL, max_step=0.01,
+              model=None):
+    """For other scripts (tests/reference/timing.py): one integration of the fixture's scenario
+    with solve_ivp `method`, nothing written. Returns (grid rows, events, stats) with stats as in
+    `run` (nfev, njev, nlu, steps, solve_s). Pass `model` (from `build_model`) to leave reading
+    the files out of a timed call."""
+    m = model if model is not None else build_model()
+    stats = {}
+    rows, events, _ = run(m, duration_s, 0.1, rtol, atol, method=method, max_step=max_step,
+                          stats=stats)
+    return rows, events, stats
 
 
 def check_unmodelled(m, t, y, enabled, soft_done):
