@@ -4,7 +4,7 @@
 //! The fast fidelity's [`crate::model::network`] is this network with these states at rest.
 
 use crate::model::battery::Terminal;
-use crate::model::converter::BuckModel;
+use crate::model::converter::{BuckBoostModel, BuckModel, ConverterLosses, LinearModel};
 use crate::model::network::{NetworkPoint, Source};
 
 /// The fast electrical states.
@@ -40,6 +40,17 @@ pub enum Drive<'a> {
     Off(&'a BuckModel),
     /// Switching at `duty`.
     Switching { buck: &'a BuckModel, duty: f64 },
+    /// Buck-boost switching at `duty` (0 when locked out: the inductor empties through both diodes).
+    BuckBoost {
+        model: &'a BuckBoostModel,
+        duty: f64,
+    },
+    /// Linear charger passing `current_a` (limited by its headroom); `on` false when locked out.
+    Linear {
+        model: &'a LinearModel,
+        current_a: f64,
+        on: bool,
+    },
     /// No converter: the input capacitor sits across the battery.
     Direct,
 }
@@ -71,6 +82,53 @@ pub fn evaluate(
 ) -> (NetworkPoint, FastRates) {
     let (i_a, di_a) = armature_rate(src, k, x.armature_a, x.input_v);
     match drive {
+        Drive::BuckBoost { model, duty } => buck_boost(src, k, term, model, duty, x, i_a, di_a),
+        Drive::Linear {
+            model,
+            current_a,
+            on,
+        } => {
+            let v_in = x.input_v;
+            let v_o = x.output_v;
+            let pass = if on {
+                current_a.max(0.0).min(model.max_current_a(v_in, v_o))
+            } else {
+                0.0
+            };
+            let iq = if on { model.quiescent_current_a } else { 0.0 };
+            let ib = term.current_at(v_o);
+            let p = NetworkPoint {
+                generator_current_a: i_a,
+                input_v: v_in,
+                duty: if v_in > 0.0 {
+                    (v_o / v_in).clamp(0.0, 1.0)
+                } else {
+                    1.0
+                },
+                balance_duty: if v_in > 0.0 {
+                    (v_o / v_in).clamp(0.0, 1.0)
+                } else {
+                    1.0
+                },
+                battery_current_a: ib,
+                battery_v: v_o,
+                diode_v: src.diode.forward_v(i_a),
+                brush_v: src.generator.brush_drop(i_a),
+                losses: ConverterLosses {
+                    switch_w: pass * (v_in - v_o),
+                    quiescent_w: v_in * iq,
+                    ..Default::default()
+                },
+                ..NetworkPoint::default()
+            };
+            let r = FastRates {
+                armature: di_a,
+                input: (i_a - pass - iq) / k.input_capacitance_f,
+                inductor: 0.0,
+                output: (pass - ib) / k.output_capacitance_f,
+            };
+            (p, r)
+        }
         Drive::Direct => {
             let ib = term.current_at(x.input_v);
             let p = NetworkPoint {
@@ -154,6 +212,80 @@ pub fn evaluate(
             (p, r)
         }
     }
+}
+
+/// Full-order averaged buck-boost: on-interval slope a = v_in − 2V_sw − 2·i_L·R_on, off-interval
+/// b = v_o + 2V_D; the diodes conduct for d2 = 2L·i_L/(d·T·a) − d when that is below 1 − d (DCM),
+/// else 1 − d. The input takes the share d/(d + d2) of i_L, the output d2/(d + d2).
+#[allow(clippy::too_many_arguments)]
+fn buck_boost(
+    src: &Source,
+    k: &CircuitConstants,
+    term: &Terminal,
+    bb: &BuckBoostModel,
+    d: f64,
+    x: &FastStates,
+    i_a: f64,
+    di_a: f64,
+) -> (NetworkPoint, FastRates) {
+    let i_l = x.inductor_a.max(0.0);
+    let v_in = x.input_v;
+    let v_o = x.output_v;
+    let a = v_in - 2.0 * bb.switch_drop_v - 2.0 * i_l * bb.switch_resistance_ohm;
+    let b = bb.off_v(v_o);
+    let period = 1.0 / bb.switching_frequency_hz;
+    let (d2, dcm) = if d > 0.0 && a > 0.0 {
+        let d2 = 2.0 * bb.inductance_h * i_l / (d * period * a) - d;
+        if d2 < 1.0 - d {
+            (d2.max(0.0), true)
+        } else {
+            (1.0 - d, false)
+        }
+    } else if i_l > 0.0 {
+        (1.0 - d, false)
+    } else {
+        (0.0, false)
+    };
+    let mut di_l = (d * a - d2 * b - i_l * bb.inductor_resistance_ohm) / bb.inductance_h;
+    if x.inductor_a <= 0.0 && di_l < 0.0 {
+        di_l = 0.0;
+    }
+    let (share_in, share_out) = if d + d2 > 0.0 {
+        (d / (d + d2), d2 / (d + d2))
+    } else {
+        (0.0, 0.0)
+    };
+    let i_in = if d > 0.0 {
+        share_in * i_l + bb.quiescent_current_a + bb.switching_fraction() * i_l
+    } else {
+        0.0
+    };
+    let i_out = share_out * i_l;
+    let ib = term.current_at(v_o);
+    let loss = v_in * i_in - v_o * i_out - i_l * bb.inductance_h * di_l;
+    let p = NetworkPoint {
+        generator_current_a: i_a,
+        input_v: v_in,
+        duty: d,
+        balance_duty: d,
+        dcm,
+        battery_current_a: ib,
+        battery_v: v_o,
+        dropout: false,
+        diode_v: src.diode.forward_v(i_a),
+        brush_v: src.generator.brush_drop(i_a),
+        losses: ConverterLosses {
+            switch_w: loss,
+            ..Default::default()
+        },
+    };
+    let r = FastRates {
+        armature: di_a,
+        input: (i_a - i_in) / k.input_capacitance_f,
+        inductor: di_l,
+        output: (i_out - ib) / k.output_capacitance_f,
+    };
+    (p, r)
 }
 
 /// Energy held in the fast elements, J: ½L_a·i² + ½C_in·v_in² + ½L·i_L² + ½C_o·v_o².

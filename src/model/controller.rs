@@ -2,7 +2,7 @@
 //! reference (CV) and an inner current loop that sets the duty (CC); the lower demand wins, with
 //! anti-windup by back-calculation. The fast fidelity is this controller at its ideal limit.
 
-use crate::model::converter::BuckModel;
+use crate::model::converter::{BuckBoostModel, BuckModel, LinearModel};
 
 /// Loop gains, designed from the converter and battery at build time.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -17,6 +17,10 @@ pub struct ControllerGains {
     pub ki_v: f64,
     /// Back-calculation time of both integrators, s.
     pub anti_windup_s: f64,
+    /// Input-floor error scale: volts of output error per volt of input error (the plant sets it
+    /// to 0.05·R_batt/R_source, so the input loop crosses over a twentieth as fast as the voltage
+    /// loop, under the armature-inductance/input-capacitor resonance).
+    pub input_error_scale: f64,
 }
 
 impl ControllerGains {
@@ -33,6 +37,7 @@ impl ControllerGains {
             kp_v: 0.1 / r,
             ki_v: wc_v / r,
             anti_windup_s: 4.0 / wc_v,
+            input_error_scale: 1.0,
         }
     }
 }
@@ -66,15 +71,14 @@ pub struct ControlInput {
     pub inductor_a: f64,
     pub voltage_integrator: f64,
     pub current_integrator: f64,
+    /// Input-voltage floor, V (switching chargers): the lower of the two error demands wins.
+    pub input_floor_v: Option<f64>,
 }
 
 /// Evaluates both loops. Feed-forward duty (V_o + V_D)/(V_in − V_sw + V_D) keeps the current loop's
 /// integrator small across input changes.
 pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> ControlOutput {
-    let e_v = x.v_set - x.output_v;
-    let i_v = x.voltage_integrator + g.kp_v * e_v;
-    let i_v_clamped = i_v.clamp(0.0, x.cc_limit_a);
-    let current_ref = x.ramp.clamp(0.0, 1.0) * x.cc_limit_a.min(i_v.max(0.0));
+    let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
     let e_i = current_ref - x.inductor_a;
     let den = x.input_v - buck.switch_drop_v + buck.catch_drop_v;
     let d_ff = if den > 0.0 {
@@ -84,12 +88,82 @@ pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> Contr
     };
     let d_cmd = d_ff + g.kp_i * e_i + x.current_integrator;
     let duty = d_cmd.clamp(0.0, buck.max_duty);
+    let saturated = d_cmd >= buck.max_duty && current_ref > 0.0;
     ControlOutput {
         duty,
         current_ref_a: current_ref,
-        cv_active: i_v < x.cc_limit_a,
-        saturated: d_cmd >= buck.max_duty && current_ref > 0.0,
-        voltage_rate: g.ki_v * e_v + (i_v_clamped - i_v) / g.anti_windup_s,
+        cv_active,
+        saturated,
+        voltage_rate: voltage_rate(g, x, e_v, i_v),
         current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
+    }
+}
+
+/// Voltage loop shared by every topology: (current reference, CV active, error, PI output).
+fn voltage_loop(x: &ControlInput, g: &ControllerGains) -> (f64, bool, f64, f64) {
+    let e_out = x.v_set - x.output_v;
+    let e_in = x
+        .input_floor_v
+        .map_or(f64::INFINITY, |f| g.input_error_scale * (x.input_v - f));
+    let e_v = e_out.min(e_in);
+    let i_v = x.voltage_integrator + g.kp_v * e_v;
+    let current_ref = x.ramp.clamp(0.0, 1.0) * x.cc_limit_a.min(i_v.max(0.0));
+    (current_ref, i_v < x.cc_limit_a && e_out <= e_in, e_v, i_v)
+}
+
+/// Voltage-integrator rate: integral of the error plus back-calculation to the [0, CC] clamp.
+fn voltage_rate(g: &ControllerGains, x: &ControlInput, e_v: f64, i_v: f64) -> f64 {
+    let i_v_clamped = i_v.clamp(0.0, x.cc_limit_a);
+    g.ki_v * e_v + (i_v_clamped - i_v) / g.anti_windup_s
+}
+
+/// Buck-boost loops: the voltage loop sets the battery-current reference I_ref; the inner loop
+/// holds the inductor at I_ref/(1 − d_ss), where d_ss is the steady CCM duty for I_ref with every
+/// drop (so in steady CCM the battery gets exactly I_ref); d_ss is also the feed-forward duty.
+/// The current loop's plant gain di_L/dd ≈ (V_in + V_o)/L: design the gains with V_in + V_o.
+pub fn control_buck_boost(
+    g: &ControllerGains,
+    bb: &BuckBoostModel,
+    x: &ControlInput,
+) -> ControlOutput {
+    let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
+    let d_ss = bb.ccm_duty(x.input_v, x.output_v.max(0.0), current_ref);
+    let d_ff = if d_ss.is_finite() {
+        d_ss.clamp(0.0, bb.max_duty)
+    } else {
+        bb.max_duty
+    };
+    let il_ref = current_ref / (1.0 - d_ff);
+    let e_i = il_ref - x.inductor_a;
+    let d_cmd = d_ff + g.kp_i * e_i + x.current_integrator;
+    let duty = d_cmd.clamp(0.0, bb.max_duty);
+    let saturated = d_cmd >= bb.max_duty && current_ref > 0.0;
+    ControlOutput {
+        duty,
+        current_ref_a: current_ref,
+        cv_active,
+        saturated,
+        voltage_rate: voltage_rate(g, x, e_v, i_v),
+        current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
+    }
+}
+
+/// Linear charger: the voltage loop sets the pass current directly (no inner loop; the current
+/// integrator rests); saturated when the headroom cannot pass the reference (dropout).
+pub fn control_linear(g: &ControllerGains, lin: &LinearModel, x: &ControlInput) -> ControlOutput {
+    let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
+    let room = lin.max_current_a(x.input_v, x.output_v);
+    let saturated = current_ref > 0.0 && room < current_ref;
+    ControlOutput {
+        duty: if x.input_v > 0.0 {
+            (x.output_v / x.input_v).clamp(0.0, 1.0)
+        } else {
+            1.0
+        },
+        current_ref_a: current_ref,
+        cv_active,
+        saturated,
+        voltage_rate: voltage_rate(g, x, e_v, i_v),
+        current_rate: -x.current_integrator / g.anti_windup_s,
     }
 }

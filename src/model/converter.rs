@@ -134,3 +134,193 @@ pub fn buck_conversion_ratio(d: f64, k: f64) -> f64 {
         2.0 / (1.0 + (1.0 + 4.0 * k / (d * d)).sqrt())
     }
 }
+
+/// Averaged non-inverting two-switch buck-boost charger (both switches on for d, both diodes
+/// conduct for 1 − d; Erickson & Maksimović ch. 2 for the ideal ratio M = D/(1 − D), ch. 3 for the
+/// loss terms in the volt-second balance). It regulates whether the input is above or below the
+/// battery, up to its own D_max.
+///
+/// CCM inductor balance with inductor current I_L and battery current I = (1 − d)·I_L:
+/// d·(V_in − 2·V_sw − 2·I_L·R_on) − (1 − d)·(V_o + 2·V_D) − I_L·R_L = 0.
+/// Input current d·I_L + I_q + ½·I_L·t_tr·f_sw.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct BuckBoostModel {
+    pub max_duty: f64,
+    /// Drop of each of the two switches when on, V.
+    pub switch_drop_v: f64,
+    /// On-resistance of each switch, Ω.
+    pub switch_resistance_ohm: f64,
+    /// Drop of each of the two diodes, V.
+    pub diode_drop_v: f64,
+    pub inductor_resistance_ohm: f64,
+    pub inductance_h: f64,
+    pub switching_frequency_hz: f64,
+    pub switch_transition_s: f64,
+    pub quiescent_current_a: f64,
+}
+
+impl BuckBoostModel {
+    /// Builds the model from the converter configuration.
+    pub fn from_config(c: &Converter) -> Self {
+        Self {
+            max_duty: c.max_duty,
+            switch_drop_v: c.switch_drop_v,
+            switch_resistance_ohm: c.switch_resistance_ohm,
+            diode_drop_v: c.catch_diode_drop_v,
+            inductor_resistance_ohm: c.inductor_resistance_ohm,
+            inductance_h: c.inductance_h,
+            switching_frequency_hz: c.switching_frequency_hz,
+            switch_transition_s: c.switch_transition_s,
+            quiescent_current_a: c.quiescent_current_a,
+        }
+    }
+
+    /// ½·t_tr·f_sw: switching-loss current per ampere of inductor current, referred to the input.
+    pub fn switching_fraction(&self) -> f64 {
+        0.5 * self.switch_transition_s * self.switching_frequency_hz
+    }
+
+    /// Off-interval voltage across the inductor (magnitude) at output `v_o`, V.
+    pub fn off_v(&self, v_o: f64) -> f64 {
+        v_o + 2.0 * self.diode_drop_v
+    }
+
+    /// Duty that satisfies the balance for inductor current `i_l` at `v_in`, `v_o`.
+    pub fn duty_for_inductor(&self, v_in: f64, v_o: f64, i_l: f64) -> f64 {
+        let b = self.off_v(v_o);
+        let den = v_in - 2.0 * self.switch_drop_v - 2.0 * i_l * self.switch_resistance_ohm + b;
+        if den <= 0.0 {
+            return f64::INFINITY;
+        }
+        (b + i_l * self.inductor_resistance_ohm) / den
+    }
+
+    /// CCM duty for battery current `i` at `v_in`, `v_o`: the smaller root of
+    /// A·d² − (A + B − 2·R_on·I)·d + (B + R_L·I) = 0 with A = V_in − 2V_sw + B, B = V_o + 2V_D
+    /// (the balance multiplied by 1 − d). Infinity when no duty below 1 delivers `i`.
+    pub fn ccm_duty(&self, v_in: f64, v_o: f64, i: f64) -> f64 {
+        let b = self.off_v(v_o);
+        let a = v_in - 2.0 * self.switch_drop_v + b;
+        if a <= 0.0 {
+            return f64::INFINITY;
+        }
+        let p = a + b - 2.0 * self.switch_resistance_ohm * i;
+        let q = b + self.inductor_resistance_ohm * i;
+        let disc = p * p - 4.0 * a * q;
+        if disc < 0.0 || p <= 0.0 {
+            return f64::INFINITY;
+        }
+        // Smaller root, written to avoid cancellation.
+        let d = 2.0 * q / (p + disc.sqrt());
+        if d < 1.0 {
+            d
+        } else {
+            f64::INFINITY
+        }
+    }
+
+    /// Input voltage at which the duty for (`v_o`, `i`) reaches D_max: the dropout edge, V.
+    pub fn dropout_input_v(&self, v_o: f64, i: f64) -> f64 {
+        let d = self.max_duty;
+        let i_l = i / (1.0 - d);
+        ((1.0 - d) * self.off_v(v_o) + i_l * self.inductor_resistance_ohm) / d
+            + 2.0 * self.switch_drop_v
+            + 2.0 * i_l * self.switch_resistance_ohm
+    }
+
+    /// Battery current passed at duty D_max from input `v_in` into a battery at `v_o`, A (may be
+    /// negative: then it passes none): the balance solved for I at fixed V_o.
+    pub fn dropout_current_at(&self, v_in: f64, v_o: f64) -> f64 {
+        let d = self.max_duty;
+        let r = (2.0 * d * self.switch_resistance_ohm + self.inductor_resistance_ohm) / (1.0 - d);
+        let drive = d * (v_in - 2.0 * self.switch_drop_v) - (1.0 - d) * self.off_v(v_o);
+        drive / r.max(1e-12)
+    }
+
+    /// Input current at duty `d` and battery current `i`, A.
+    pub fn input_current_a(&self, d: f64, i: f64) -> f64 {
+        let i_l = i / (1.0 - d).max(1e-9);
+        d * i_l + self.quiescent_current_a + self.switching_fraction() * i_l
+    }
+
+    /// Losses at duty `d`, battery current `i`, input `v_in` (CCM balance).
+    pub fn losses(&self, d: f64, i: f64, v_in: f64) -> ConverterLosses {
+        let i_l = i / (1.0 - d).max(1e-9);
+        ConverterLosses {
+            switch_w: d * i_l * 2.0 * (self.switch_drop_v + i_l * self.switch_resistance_ohm),
+            catch_diode_w: (1.0 - d) * i_l * 2.0 * self.diode_drop_v,
+            inductor_w: i_l * i_l * self.inductor_resistance_ohm,
+            quiescent_w: v_in * self.quiescent_current_a,
+            switching_w: v_in * self.switching_fraction() * i_l,
+        }
+    }
+
+    /// Duty actually applied, reporting discontinuous conduction when the ripple would reverse
+    /// the inductor current: DCM when I_L < a·d·T/(2L), a = V_in − 2V_sw − 2·I_L·R_on; then the
+    /// energy per cycle ½·L·i_pk²·f_sw carries the input power: d = √(2·L·I_in/(a·T)) with
+    /// I_in = d_ccm·I_L (ideal limit |M| = D/√K, Erickson & Maksimović Table 5.2).
+    pub fn reported_duty(&self, v_in: f64, i: f64, d_ccm: f64) -> (f64, bool) {
+        if i <= 0.0 || d_ccm >= 1.0 {
+            return (d_ccm, false);
+        }
+        let i_l = i / (1.0 - d_ccm);
+        let a = v_in - 2.0 * self.switch_drop_v - 2.0 * i_l * self.switch_resistance_ohm;
+        if a <= 0.0 {
+            return (d_ccm, false);
+        }
+        let period = 1.0 / self.switching_frequency_hz;
+        if i_l >= a * d_ccm * period / (2.0 * self.inductance_h) {
+            return (d_ccm, false);
+        }
+        let d = (2.0 * self.inductance_h * d_ccm * i_l / (a * period)).sqrt();
+        (d.min(d_ccm), true)
+    }
+}
+
+/// Ideal non-inverting buck-boost CCM conversion ratio M = D/(1 − D)
+/// (Erickson & Maksimović ch. 2, magnitude of the inverting form).
+pub fn buck_boost_conversion_ratio(d: f64) -> f64 {
+    d / (1.0 - d)
+}
+
+/// Linear (series-pass) charger: the pass element drops V_in − V_o, the controller sets its
+/// current; in dropout the pass element is fully on and acts as a resistance
+/// R_pass = V_dropout / I_cc (so the headroom needed at the charge current is the dropout voltage).
+/// Input current I + I_q, so the efficiency is V_o·I/(V_in·(I + I_q)) ≈ V_o/V_in.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct LinearModel {
+    /// Headroom V_in − V_o needed at the charge current, V.
+    pub dropout_v: f64,
+    /// Pass resistance when fully on, Ω.
+    pub pass_resistance_ohm: f64,
+    pub quiescent_current_a: f64,
+}
+
+impl LinearModel {
+    /// Builds the model from the converter configuration.
+    pub fn from_config(c: &Converter) -> Self {
+        let dropout_v = c.dropout_v.unwrap_or(DEFAULT_DROPOUT_V);
+        Self {
+            dropout_v,
+            pass_resistance_ohm: dropout_v / c.charge_current_a.max(1e-6),
+            quiescent_current_a: c.quiescent_current_a,
+        }
+    }
+
+    /// Most current the pass element lets through from `v_in` into `v_o`, A.
+    pub fn max_current_a(&self, v_in: f64, v_o: f64) -> f64 {
+        ((v_in - v_o) / self.pass_resistance_ohm.max(1e-12)).max(0.0)
+    }
+
+    /// Pass-element and quiescent losses at battery current `i`, W.
+    pub fn losses(&self, i: f64, v_in: f64, v_o: f64) -> ConverterLosses {
+        ConverterLosses {
+            switch_w: i * (v_in - v_o),
+            quiescent_w: v_in * self.quiescent_current_a,
+            ..ConverterLosses::default()
+        }
+    }
+}
+
+/// Dropout voltage of a linear charger when the setup gives none, V.
+pub const DEFAULT_DROPOUT_V: f64 = 0.3;

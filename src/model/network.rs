@@ -7,10 +7,11 @@
 //! open circuit. Regulated and dropout branches meet continuously at the dropout edge.
 
 use crate::model::battery::Terminal;
-use crate::model::converter::{BuckModel, ConverterLosses};
+use crate::model::converter::{BuckBoostModel, BuckModel, ConverterLosses, LinearModel};
 use crate::model::diode::DiodeModel;
 use crate::model::generator::GeneratorModel;
 use crate::model::roots::root_in;
+use crate::scenario::setup::Topology;
 
 /// Absolute tolerance of the current solves, A.
 const CURRENT_TOL_A: f64 = 1e-11;
@@ -24,8 +25,55 @@ pub enum Load<'a> {
     Off,
     /// Buck charger enabled and asking for `target_a` into the battery.
     Buck { model: &'a BuckModel, target_a: f64 },
+    /// Buck-boost charger enabled and asking for `target_a` into the battery.
+    BuckBoost {
+        model: &'a BuckBoostModel,
+        target_a: f64,
+    },
+    /// Linear charger enabled and asking for `target_a` into the battery.
+    Linear {
+        model: &'a LinearModel,
+        target_a: f64,
+    },
+    /// A switching charger asking for `target_a` but trimming it so that its input stays at or
+    /// above `floor_v` (the operator is not dragged down into lock-out).
+    Floored {
+        conv: Converters<'a>,
+        target_a: f64,
+        floor_v: f64,
+    },
     /// Battery directly on the input node.
     Direct,
+}
+
+/// The converter models of one design, one of which the topology selects.
+#[derive(Debug, Clone, Copy)]
+pub struct Converters<'a> {
+    pub topology: Topology,
+    pub buck: &'a BuckModel,
+    pub buck_boost: &'a BuckBoostModel,
+    pub linear: &'a LinearModel,
+}
+
+impl<'a> Converters<'a> {
+    /// The load of the enabled charger asking for `target_a` (direct: the battery on the node).
+    pub fn charging(&self, target_a: f64) -> Load<'a> {
+        match self.topology {
+            Topology::Buck => Load::Buck {
+                model: self.buck,
+                target_a,
+            },
+            Topology::BuckBoost => Load::BuckBoost {
+                model: self.buck_boost,
+                target_a,
+            },
+            Topology::Linear => Load::Linear {
+                model: self.linear,
+                target_a,
+            },
+            Topology::Direct => Load::Direct,
+        }
+    }
 }
 
 /// The generator side of the network at one instant.
@@ -87,6 +135,15 @@ pub fn solve(src: &Source, load: Load, term: &Terminal) -> NetworkPoint {
         Load::Off => off_point(src, term),
         Load::Direct => direct_point(src, term),
         Load::Buck { model, target_a } => buck_point(src, model, target_a.max(0.0), term),
+        Load::BuckBoost { model, target_a } => {
+            buck_boost_point(src, model, target_a.max(0.0), term)
+        }
+        Load::Linear { model, target_a } => linear_point(src, model, target_a.max(0.0), term),
+        Load::Floored {
+            conv,
+            target_a,
+            floor_v,
+        } => floored_point(src, &conv, target_a.max(0.0), floor_v, term),
     }
 }
 
@@ -253,5 +310,282 @@ fn buck_report(
         diode_v: src.diode.forward_v(i),
         brush_v: src.generator.brush_drop(i),
         losses: buck.losses(d, ib, v),
+    }
+}
+
+/// Battery current the buck-boost passes at D_max from input `v` (at most `cap`), A.
+fn bb_dropout_current(bb: &BuckBoostModel, term: &Terminal, v: f64, cap: f64) -> f64 {
+    let res = |ib: f64| {
+        let (vb, sb) = term.v(ib);
+        let d = bb.max_duty;
+        let r = (2.0 * d * bb.switch_resistance_ohm + bb.inductor_resistance_ohm) / (1.0 - d);
+        // Increasing in ib: ib·r − drive(V_o(ib)).
+        (
+            ib - bb.dropout_current_at(v, vb),
+            1.0 + (1.0 - d) * sb / r.max(1e-12),
+        )
+    };
+    if res(0.0).0 >= 0.0 {
+        return 0.0;
+    }
+    root_in(0.0, cap.max(1e-12), 0.5 * cap, CURRENT_TOL_A, res)
+}
+
+/// Buck-boost operating point. The regulated branch is written in the generator current i:
+/// the inductor carries I_L = (i + I − I_q)/(1 + s) (s = ½·t_tr·f_sw), the duty is d = 1 − I/I_L, and
+/// the residual of the volt-second balance g(i) = d·(v(i) − 2V_sw − 2·I_L·R_on + B) − B − I_L·R_L
+/// rises from −B at d = 0. Its first root is the physical point (the smaller generator current of
+/// the constant-power pair); the branch ends where d reaches D_max, and the dropout branch
+/// (d = D_max, less current than asked) meets it there.
+fn buck_boost_point(
+    src: &Source,
+    bb: &BuckBoostModel,
+    target: f64,
+    term: &Terminal,
+) -> NetworkPoint {
+    let s = bb.switching_fraction();
+    let iq = bb.quiescent_current_a;
+    if target <= 0.0 {
+        let v = src.node_v(iq);
+        return bb_report(src, bb, iq, v, 0.0, 0.0, term.v(0.0).0, false);
+    }
+    let vo = term.v(target).0;
+    let b = bb.off_v(vo);
+    let inductor = |i: f64| (i + target - iq) / (1.0 + s);
+    let g_reg = |i: f64| {
+        let il = inductor(i).max(target);
+        let d = 1.0 - target / il;
+        let v = src.node_v(i);
+        let x = v - 2.0 * bb.switch_drop_v - 2.0 * il * bb.switch_resistance_ohm + b;
+        let g = d * x - b - il * bb.inductor_resistance_ohm;
+        let dil = 1.0 / (1.0 + s);
+        let dd = target / (il * il) * dil;
+        let dg = dd * x + d * (-src.node_slope(i) - 2.0 * bb.switch_resistance_ohm * dil)
+            - bb.inductor_resistance_ohm * dil;
+        (g, dg)
+    };
+    let d_max = bb.max_duty;
+    let i_min = iq + s * target;
+    let i_top = (d_max + s) * target / (1.0 - d_max) + iq;
+    let bracket = if g_reg(i_top).0 >= 0.0 {
+        Some((i_min, i_top))
+    } else {
+        // Short of current at D_max: a regulated point exists only if the residual's peak (the
+        // fold of the constant-power load) reaches zero. Golden-section search for the peak, so
+        // that a narrow regulated window near the fold is never missed.
+        let (x, gx) = peak_of(i_min, i_top, |i| g_reg(i).0);
+        (gx >= 0.0).then_some((i_min, x))
+    };
+    if let Some((lo, hi)) = bracket {
+        let i = root_in(lo, hi, lo, CURRENT_TOL_A, g_reg);
+        let il = inductor(i).max(target);
+        let d = (1.0 - target / il).clamp(0.0, d_max);
+        let v = src.node_v(i);
+        return bb_report(src, bb, i, v, d, target, vo, false);
+    }
+
+    // Dropout: duty at D_max; generator current i = (D + s)/(1 − D)·I_b + I_q.
+    let k_in = (d_max + s) / (1.0 - d_max);
+    let g_drop = |i: f64| {
+        let v = src.node_v(i);
+        let ib = bb_dropout_current(bb, term, v, target);
+        // Slope by a secant in v (the inner solve has no closed form for curved terminals).
+        let h = 1e-6;
+        let ib2 = bb_dropout_current(bb, term, v - h, target);
+        let dib_dv = (ib - ib2) / h;
+        (
+            i - (k_in * ib + iq),
+            1.0 + k_in * dib_dv * src.node_slope(i),
+        )
+    };
+    let i = root_in(i_min.min(iq), i_top, i_top, CURRENT_TOL_A, g_drop);
+    let v = src.node_v(i);
+    let ib = bb_dropout_current(bb, term, v, target);
+    let vo = term.v(ib).0;
+    bb_report(src, bb, i, v, d_max, ib, vo, ib < target)
+}
+
+#[allow(clippy::too_many_arguments)]
+fn bb_report(
+    src: &Source,
+    bb: &BuckBoostModel,
+    i: f64,
+    v: f64,
+    d: f64,
+    ib: f64,
+    vo: f64,
+    dropout: bool,
+) -> NetworkPoint {
+    let (duty, dcm) = bb.reported_duty(v, ib, d);
+    NetworkPoint {
+        generator_current_a: i,
+        input_v: v,
+        duty,
+        balance_duty: d,
+        dcm,
+        battery_current_a: ib,
+        battery_v: vo,
+        dropout,
+        diode_v: src.diode.forward_v(i),
+        brush_v: src.generator.brush_drop(i),
+        losses: bb.losses(d, ib, v),
+    }
+}
+
+/// Linear charger operating point: the generator carries I + I_q; in dropout the pass element is
+/// fully on (R_pass) and node_v(I_b + I_q) − V_batt(I_b) − I_b·R_pass = 0 sets the current.
+fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -> NetworkPoint {
+    let iq = lin.quiescent_current_a;
+    let (vo_t, _) = term.v(target);
+    let v_t = src.node_v(target + iq);
+    let (ib, dropout) = if lin.max_current_a(v_t, vo_t) >= target {
+        (target, false)
+    } else {
+        let f = |ib: f64| {
+            let (vb, sb) = term.v(ib);
+            (
+                vb + ib * lin.pass_resistance_ohm - src.node_v(ib + iq),
+                sb + lin.pass_resistance_ohm + src.node_slope(ib + iq),
+            )
+        };
+        (root_in(0.0, target, 0.5 * target, CURRENT_TOL_A, f), true)
+    };
+    let i = ib + iq;
+    let v = src.node_v(i);
+    let vo = term.v(ib).0;
+    NetworkPoint {
+        generator_current_a: i,
+        input_v: v,
+        duty: if v > 0.0 {
+            (vo / v).clamp(0.0, 1.0)
+        } else {
+            1.0
+        },
+        balance_duty: if v > 0.0 {
+            (vo / v).clamp(0.0, 1.0)
+        } else {
+            1.0
+        },
+        dcm: false,
+        battery_current_a: ib,
+        battery_v: vo,
+        dropout,
+        diode_v: src.diode.forward_v(i),
+        brush_v: src.generator.brush_drop(i),
+        losses: lin.losses(ib, v, vo),
+    }
+}
+
+/// Operating point of a charger holding its input at `floor_v` when the full target would pull it
+/// lower. At the floor the generator current i_f is fixed by node_v(i_f) = floor; the battery
+/// current I is the root of I_in(floor, I) = i_f on [0, target] (the converter's input current
+/// rises with I). If the target already keeps the input above the floor, that point stands.
+fn floored_point(
+    src: &Source,
+    conv: &Converters,
+    target: f64,
+    floor_v: f64,
+    term: &Terminal,
+) -> NetworkPoint {
+    let full = solve(src, conv.charging(target), term);
+    if full.input_v >= floor_v || target <= 0.0 || src.emf_v <= floor_v {
+        return full;
+    }
+    let r = src.resistance_ohm.max(1e-9);
+    let hi = (src.emf_v - floor_v) / r;
+    let i_f = root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, |i| {
+        (floor_v - src.node_v(i), src.node_slope(i))
+    });
+    // Duty and input current for battery current `ib` at the floor (None: beyond D_max).
+    let at = |ib: f64| -> Option<(f64, f64, f64)> {
+        let vo = term.v(ib).0;
+        match conv.topology {
+            Topology::BuckBoost => {
+                let bb = conv.buck_boost;
+                let d = bb.ccm_duty(floor_v, vo, ib);
+                (d <= bb.max_duty).then(|| (d, bb.input_current_a(d, ib), vo))
+            }
+            _ => {
+                let b = conv.buck;
+                let d = b.ccm_duty(floor_v, vo, ib);
+                (d <= b.max_duty).then(|| (d, b.input_current_a(d, ib), vo))
+            }
+        }
+    };
+    let f = |ib: f64| match at(ib) {
+        Some((_, i_in, _)) => i_in - i_f,
+        None => f64::MAX,
+    };
+    let (mut lo, mut hi) = (0.0, target);
+    if f(lo) >= 0.0 {
+        // Even the quiescent draw pulls the input under the floor: pass nothing.
+        return solve(src, conv.charging(0.0), term);
+    }
+    // Bisection (the residual jumps to +∞ past D_max, so no slopes).
+    for _ in 0..60 {
+        let mid = 0.5 * (lo + hi);
+        if f(mid) < 0.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+        if hi - lo <= CURRENT_TOL_A {
+            break;
+        }
+    }
+    let ib = lo;
+    let Some((d, _, vo)) = at(ib) else {
+        return full;
+    };
+    let mut p = match conv.topology {
+        Topology::BuckBoost => bb_report(src, conv.buck_boost, i_f, floor_v, d, ib, vo, false),
+        _ => buck_report(src, conv.buck, i_f, floor_v, d, ib, vo, false),
+    };
+    // Close the input balance exactly at the trimmed current (the bisection leaves ≤ 1e-11 A).
+    p.generator_current_a = match conv.topology {
+        Topology::BuckBoost => conv.buck_boost.input_current_a(d, ib),
+        _ => conv.buck.input_current_a(d, ib),
+    };
+    p.input_v = src.node_v(p.generator_current_a);
+    p.diode_v = src.diode.forward_v(p.generator_current_a);
+    p.brush_v = src.generator.brush_drop(p.generator_current_a);
+    p
+}
+
+/// Maximum of a unimodal `f` on [lo, hi] by golden-section search: (argmax, max).
+fn peak_of(mut lo: f64, mut hi: f64, f: impl Fn(f64) -> f64) -> (f64, f64) {
+    const INV_PHI: f64 = 0.618_033_988_749_894_8;
+    let tol = CURRENT_TOL_A.max(1e-12 * hi.abs());
+    let mut a = hi - INV_PHI * (hi - lo);
+    let mut b = lo + INV_PHI * (hi - lo);
+    let (mut fa, mut fb) = (f(a), f(b));
+    for _ in 0..200 {
+        if fa >= 0.0 {
+            return (a, fa);
+        }
+        if fb >= 0.0 {
+            return (b, fb);
+        }
+        if hi - lo <= tol {
+            break;
+        }
+        if fa > fb {
+            hi = b;
+            b = a;
+            fb = fa;
+            a = hi - INV_PHI * (hi - lo);
+            fa = f(a);
+        } else {
+            lo = a;
+            a = b;
+            fa = fb;
+            b = lo + INV_PHI * (hi - lo);
+            fb = f(b);
+        }
+    }
+    if fa > fb {
+        (a, fa)
+    } else {
+        (b, fb)
     }
 }

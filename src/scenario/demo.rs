@@ -22,6 +22,9 @@ macro_rules! embed {
 pub const SETUPS: &[Embedded] = &[
     embed!("demo", "setups"),
     embed!("lead-acid-direct", "setups"),
+    embed!("demo-buck-boost", "setups"),
+    embed!("lfp-linear", "setups"),
+    embed!("lead-acid-buck", "setups"),
 ];
 
 /// Shipped crank profiles; the first is the default.

@@ -148,6 +148,10 @@ pub struct Diode {
 pub enum Topology {
     /// Asynchronous buck charger with CC/CV control.
     Buck,
+    /// Non-inverting two-switch buck-boost charger: regulates above and below the battery voltage.
+    BuckBoost,
+    /// Linear (series-pass) charger: dropout voltage, efficiency V_o/V_in.
+    Linear,
     /// Diode only: the battery sits on the input node.
     Direct,
 }
@@ -157,6 +161,8 @@ impl Topology {
     pub fn as_str(self) -> &'static str {
         match self {
             Topology::Buck => "buck",
+            Topology::BuckBoost => "buck_boost",
+            Topology::Linear => "linear",
             Topology::Direct => "direct",
         }
     }
@@ -166,7 +172,7 @@ impl Topology {
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields)]
 pub struct Converter {
-    /// `buck` or `direct`.
+    /// `buck`, `buck_boost`, `linear` or `direct`.
     pub topology: Topology,
     /// Constant-current limit into the battery, A (0.001 … 50).
     #[serde(default = "default_charge_current")]
@@ -177,16 +183,19 @@ pub struct Converter {
     /// Float set point for lead-acid, V; default: the battery's float voltage.
     #[serde(default)]
     pub float_setpoint_v: Option<f64>,
-    /// Maximum duty cycle (0.1 … 1).
+    /// Maximum duty cycle (buck 0.1 … 1; buck-boost 0.1 … 0.95).
     #[serde(default = "default_max_duty")]
     pub max_duty: f64,
-    /// Fixed switch drop when on (bipolar saturation), V (0 … 3).
+    /// Fixed switch drop when on (bipolar saturation), V (0 … 3); each of the buck-boost's two.
     #[serde(default)]
     pub switch_drop_v: f64,
     /// Switch on-resistance, Ω (0 … 5).
     #[serde(default)]
     pub switch_resistance_ohm: f64,
-    /// Freewheel (catch) diode drop, V (0 … 2).
+    /// Linear charger: headroom V_in − V_o needed at the charge current, V (0.01 … 5); default 0.3.
+    #[serde(default)]
+    pub dropout_v: Option<f64>,
+    /// Freewheel (catch) diode drop, V (0 … 2); the buck-boost has two such diodes.
     #[serde(default = "default_catch_drop")]
     pub catch_diode_drop_v: f64,
     /// Inductor DC resistance, Ω (0 … 5).
@@ -213,6 +222,10 @@ pub struct Converter {
     /// Soft-start ramp of the current reference after enabling, s (0 … 10).
     #[serde(default = "default_soft_start")]
     pub soft_start_s: f64,
+    /// Switching chargers: input-voltage floor, V (0.5 … 1000, above `uvlo_off_v`); the charger
+    /// trims its current so that its input stays at or above it. None: no floor.
+    #[serde(default)]
+    pub input_floor_v: Option<f64>,
     /// Input over-voltage limit, V (1 … 1000).
     #[serde(default = "default_input_ov")]
     pub input_overvoltage_v: f64,

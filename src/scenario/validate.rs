@@ -212,8 +212,29 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         0.5,
         1000.0,
     );
-    if cv.topology == Topology::Buck {
-        c.range("converter.max_duty", cv.max_duty, 0.1, 1.0);
+    if cv.topology != Topology::Direct {
+        if cv.topology == Topology::BuckBoost {
+            // M = D/(1 − D) grows without bound towards D = 1; real parts stop near 0.9.
+            c.range("converter.max_duty", cv.max_duty, 0.1, 0.95);
+        } else {
+            c.range("converter.max_duty", cv.max_duty, 0.1, 1.0);
+        }
+        if cv.topology == Topology::Linear {
+            c.opt_range("converter.dropout_v", cv.dropout_v, 0.01, 5.0);
+            c.rule(
+                cv.input_floor_v.is_none(),
+                "converter.input_floor_v",
+                "set on a linear charger".into(),
+                "only on the switching chargers (buck, buck_boost)",
+            );
+        } else if let Some(floor) = cv.input_floor_v {
+            c.range(
+                "converter.input_floor_v",
+                floor,
+                cv.uvlo_off_v.max(0.5),
+                1000.0,
+            );
+        }
         c.range("converter.switch_drop_v", cv.switch_drop_v, 0.0, 3.0);
         c.range(
             "converter.switch_resistance_ohm",

@@ -5,7 +5,7 @@ use crate::model::battery::li_ion::TempBand;
 use crate::model::battery::{BatteryModel, BatteryPowers, BatteryState, Terminal};
 use crate::model::circuit::{self, CircuitConstants, FastRates, FastStates};
 use crate::model::controller::{self, ControlInput, ControllerGains};
-use crate::model::converter::BuckModel;
+use crate::model::converter::{BuckBoostModel, BuckModel, LinearModel};
 use crate::model::diode::DiodeModel;
 use crate::model::drive::DriveModel;
 use crate::model::generator::GeneratorModel;
@@ -75,6 +75,11 @@ pub struct Charger {
     pub uvlo_off_v: f64,
     pub input_overvoltage_v: f64,
     pub overvoltage_shutdown: bool,
+    /// The charger sleeps while its input is below the battery (buck, linear); a buck-boost
+    /// charges from there too.
+    pub sleeps_below_battery: bool,
+    /// Switching chargers: the input-voltage floor they hold by trimming their current, V.
+    pub input_floor_v: Option<f64>,
 }
 
 /// One target-cadence segment in absolute time.
@@ -95,6 +100,10 @@ pub struct Plant {
     pub diode: DiodeModel,
     pub drive: DriveModel,
     pub buck: BuckModel,
+    /// Buck-boost model (used when the topology is `buck_boost`).
+    pub buck_boost: BuckBoostModel,
+    /// Linear charger model (used when the topology is `linear`).
+    pub linear: LinearModel,
     pub charger: Charger,
     pub battery: BatteryModel,
     pub winding: Lumped,
@@ -206,6 +215,11 @@ impl Plant {
             uvlo_off_v: c.uvlo_off_v,
             input_overvoltage_v: c.input_overvoltage_v,
             overvoltage_shutdown: c.overvoltage_shutdown,
+            sleeps_below_battery: c.topology != Topology::BuckBoost,
+            input_floor_v: match c.topology {
+                Topology::Buck | Topology::BuckBoost => c.input_floor_v,
+                _ => None,
+            },
         };
         let mut segments = Vec::with_capacity(profile.segments.len());
         let mut t = 0.0;
@@ -244,6 +258,14 @@ impl Plant {
         let v_nominal = c
             .uvlo_on_v
             .max(battery.charge_limit_v(setup.ambient_c) + 2.0);
+        // The buck-boost's inductor sees V_in + V_o across a duty step.
+        let v_nominal = if c.topology == Topology::BuckBoost {
+            v_nominal + battery.charge_limit_v(setup.ambient_c)
+        } else {
+            v_nominal
+        };
+        let buck_boost = BuckBoostModel::from_config(c);
+        let linear = LinearModel::from_config(c);
         Ok(Self {
             fidelity,
             circuit: CircuitConstants {
@@ -251,12 +273,22 @@ impl Plant {
                 input_capacitance_f: c.input_capacitance_f,
                 output_capacitance_f: c.output_capacitance_f,
             },
-            gains: ControllerGains::design(&buck, v_nominal, slope),
+            gains: ControllerGains {
+                // Input loop: the source's resistance against the battery's slope, at a twentieth
+                // of the voltage loop's crossover, well under the armature-inductance/input-capacitor
+                // resonance (the charger is a negative resistance to its source).
+                input_error_scale: 0.05 * slope
+                    / (setup.generator.resistance_ohm + setup.diode.series_resistance_ohm)
+                        .max(1e-3),
+                ..ControllerGains::design(&buck, v_nominal, slope)
+            },
             ambient_c: setup.ambient_c,
             generator,
             diode,
             drive,
             buck,
+            buck_boost,
+            linear,
             charger,
             battery,
             winding: Lumped {
@@ -502,26 +534,26 @@ impl Plant {
                 ramp,
                 hold,
             } => {
+                let conv = network::Converters {
+                    topology: self.charger.topology,
+                    buck: &self.buck,
+                    buck_boost: &self.buck_boost,
+                    linear: &self.linear,
+                };
                 if hold {
-                    return (
-                        Load::Buck {
-                            model: &self.buck,
-                            target_a: 0.0,
-                        },
-                        0.0,
-                        false,
-                    );
+                    return (conv.charging(0.0), 0.0, false);
                 }
                 let i_cv = term.current_at(v_set).max(0.0);
                 let target = ramp * cc_limit_a.min(i_cv);
-                (
-                    Load::Buck {
-                        model: &self.buck,
+                let load = match self.charger.input_floor_v {
+                    Some(floor_v) => Load::Floored {
+                        conv,
                         target_a: target,
+                        floor_v,
                     },
-                    target,
-                    i_cv < cc_limit_a,
-                )
+                    None => conv.charging(target),
+                };
+                (load, target, i_cv < cc_limit_a)
             }
         }
     }
@@ -548,13 +580,19 @@ impl Plant {
                 (p, 0.0, false, rates, (0.0, 0.0))
             }
             Request::Off => {
-                let (p, rates) = circuit::evaluate(
-                    src,
-                    &self.circuit,
-                    term,
-                    circuit::Drive::Off(&self.buck),
-                    &x,
-                );
+                let drive = match self.charger.topology {
+                    Topology::BuckBoost => circuit::Drive::BuckBoost {
+                        model: &self.buck_boost,
+                        duty: 0.0,
+                    },
+                    Topology::Linear => circuit::Drive::Linear {
+                        model: &self.linear,
+                        current_a: 0.0,
+                        on: false,
+                    },
+                    _ => circuit::Drive::Off(&self.buck),
+                };
+                let (p, rates) = circuit::evaluate(src, &self.circuit, term, drive, &x);
                 (p, 0.0, false, rates, (0.0, 0.0))
             }
             Request::Charge {
@@ -563,23 +601,44 @@ impl Plant {
                 ramp,
                 hold,
             } => {
-                let out = controller::control(
-                    &self.gains,
-                    &self.buck,
-                    &ControlInput {
-                        cc_limit_a: if hold { 0.0 } else { cc_limit_a },
-                        v_set,
-                        ramp,
-                        input_v: x.input_v,
-                        output_v: x.output_v,
-                        inductor_a: x.inductor_a,
-                        voltage_integrator: y[CTRL_V],
-                        current_integrator: y[CTRL_I],
-                    },
-                );
-                let drive = circuit::Drive::Switching {
-                    buck: &self.buck,
-                    duty: out.duty,
+                let input = ControlInput {
+                    cc_limit_a: if hold { 0.0 } else { cc_limit_a },
+                    v_set,
+                    ramp,
+                    input_v: x.input_v,
+                    output_v: x.output_v,
+                    inductor_a: x.inductor_a,
+                    voltage_integrator: y[CTRL_V],
+                    current_integrator: y[CTRL_I],
+                    input_floor_v: self.charger.input_floor_v,
+                };
+                let (out, drive) = match self.charger.topology {
+                    Topology::BuckBoost => {
+                        let out =
+                            controller::control_buck_boost(&self.gains, &self.buck_boost, &input);
+                        let drive = circuit::Drive::BuckBoost {
+                            model: &self.buck_boost,
+                            duty: out.duty,
+                        };
+                        (out, drive)
+                    }
+                    Topology::Linear => {
+                        let out = controller::control_linear(&self.gains, &self.linear, &input);
+                        let drive = circuit::Drive::Linear {
+                            model: &self.linear,
+                            current_a: out.current_ref_a,
+                            on: true,
+                        };
+                        (out, drive)
+                    }
+                    _ => {
+                        let out = controller::control(&self.gains, &self.buck, &input);
+                        let drive = circuit::Drive::Switching {
+                            buck: &self.buck,
+                            duty: out.duty,
+                        };
+                        (out, drive)
+                    }
                 };
                 let (mut p, rates) = circuit::evaluate(src, &self.circuit, term, drive, &x);
                 p.dropout = out.saturated;

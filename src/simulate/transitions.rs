@@ -48,7 +48,9 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 return Some(Transition::OvShutdown);
             }
             // UVLO, or sleep: an input below the battery cannot charge it.
-            if p.net.input_v < c.uvlo_off_v || p.net.input_v < p.net.battery_v {
+            if p.net.input_v < c.uvlo_off_v
+                || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v)
+            {
                 return Some(Transition::Disable);
             }
             if !d.soft_done && y[SOFT_START] >= 1.0 {
@@ -75,7 +77,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 _ => {}
             }
         } else if p.idle_input_v >= c.uvlo_on_v
-            && p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V
+            && (!c.sleeps_below_battery || p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V)
         {
             return Some(Transition::Enable);
         }

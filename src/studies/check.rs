@@ -224,10 +224,13 @@ impl Statics<'_> {
     }
 
     fn buck(&self, target_a: f64) -> Load<'_> {
-        Load::Buck {
-            model: &self.plant.buck,
-            target_a,
+        network::Converters {
+            topology: self.plant.charger.topology,
+            buck: &self.plant.buck,
+            buck_boost: &self.plant.buck_boost,
+            linear: &self.plant.linear,
         }
+        .charging(target_a)
     }
 
     /// Whether the converter runs and holds `target_a` at a cadence (UVLO released by the open
@@ -366,7 +369,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
     let mut notes = Vec::new();
 
     let (converter, direct, at_profile) = match plant.charger.topology {
-        Topology::Buck => {
+        Topology::Buck | Topology::BuckBoost | Topology::Linear => {
             let c = &plant.charger;
             // Outside the charge window the charger holds off; the figures then describe the
             // design as it will charge once the battery is back in its window.

@@ -1,0 +1,524 @@
+//! Breadth: every topology and chemistry among the shipped setups, temperature rules, the
+//! buck-boost twin of the demo, the linear charger and the buck-boost conversion ratio.
+
+use std::path::{Path, PathBuf};
+
+use crankcharge::analysis::events::EventKind;
+use crankcharge::analysis::trace::Mode;
+use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel};
+use crankcharge::scenario::demo::SETUPS;
+use crankcharge::scenario::load::{InputKind, Override};
+use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::simulate::Fidelity;
+use crankcharge::studies::session::{run_session, RunSettings, Session};
+
+use crate::common::{repo, WorkDir};
+
+// ---------------------------------------------------------------------------------------------
+// Helpers (no expectations in here)
+// ---------------------------------------------------------------------------------------------
+
+fn setup_path(name: &str) -> PathBuf {
+    repo().join(format!("profiles/setups/{name}.ron"))
+}
+
+fn load(setup: &Path, sets: &[(&str, &str)]) -> Scenario {
+    let s = SourceText::resolve(Some(setup.to_str().expect("utf-8 path")), InputKind::Setup)
+        .unwrap_or_else(|e| panic!("setup {}: {e}", setup.display()));
+    let profile = repo().join("profiles/cranking/steady.ron");
+    let p = SourceText::resolve(Some(profile.to_str().expect("utf-8")), InputKind::Profile)
+        .unwrap_or_else(|e| panic!("profile: {e}"));
+    let ov: Vec<Override> = sets
+        .iter()
+        .map(|(k, v)| Override {
+            key: (*k).to_string(),
+            value: (*v).to_string(),
+        })
+        .collect();
+    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{}: {e}", setup.display()))
+}
+
+fn run(sc: &Scenario, duration_s: Option<f64>, fidelity: Fidelity) -> Session {
+    let rs = RunSettings {
+        duration_s,
+        seed: None,
+        fidelity,
+        cadence_offset_rpm: 0.0,
+    };
+    run_session(sc, &rs).unwrap_or_else(|e| panic!("{}: {e}", sc.setup.name))
+}
+
+/// Names of the shipped setup files in profiles/setups.
+fn shipped_names() -> Vec<String> {
+    let mut v: Vec<String> = std::fs::read_dir(repo().join("profiles/setups"))
+        .expect("profiles/setups")
+        .filter_map(|e| {
+            let p = e.ok()?.path();
+            (p.extension()? == "ron").then(|| p.file_stem()?.to_str().map(String::from))?
+        })
+        .collect();
+    v.sort();
+    v
+}
+
+fn ideal_buck_boost(inductance_h: f64, switching_frequency_hz: f64) -> BuckBoostModel {
+    BuckBoostModel {
+        max_duty: 0.95,
+        switch_drop_v: 0.0,
+        switch_resistance_ohm: 0.0,
+        diode_drop_v: 0.0,
+        inductor_resistance_ohm: 0.0,
+        inductance_h,
+        switching_frequency_hz,
+        switch_transition_s: 0.0,
+        quiescent_current_a: 0.0,
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Shipped setups
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn shipped_setups_cover_every_topology_and_the_chemistries() {
+    let names = shipped_names();
+    let mut embedded: Vec<String> = SETUPS.iter().map(|e| e.name.to_string()).collect();
+    embedded.sort();
+    assert_eq!(names, embedded, "every shipped setup file is embedded");
+    let mut topologies = Vec::new();
+    let mut chemistries = Vec::new();
+    for n in &names {
+        let text = std::fs::read_to_string(setup_path(n)).expect("setup text");
+        assert!(
+            text.contains("INVENTED DEMO DATA"),
+            "{n}: the shipped file says its data is invented"
+        );
+        let sc = load(&setup_path(n), &[]);
+        topologies.push(sc.setup.converter.topology.as_str());
+        chemistries.push(sc.setup.battery.chemistry.as_str());
+    }
+    for t in ["buck", "buck_boost", "linear", "direct"] {
+        assert!(
+            topologies.contains(&t),
+            "no shipped setup with topology {t}"
+        );
+    }
+    for c in ["nmc", "lfp", "lead_acid"] {
+        assert!(
+            chemistries.contains(&c),
+            "no shipped setup with chemistry {c}"
+        );
+    }
+}
+
+#[test]
+fn every_shipped_setup_closes_its_ledger_and_the_fidelities_agree_on_20_s() {
+    let names = shipped_names();
+    let results: Vec<(String, Session, Session)> = std::thread::scope(|s| {
+        let handles: Vec<_> = names
+            .iter()
+            .map(|n| {
+                s.spawn(move || {
+                    let sc = load(&setup_path(n), &[]);
+                    let fast = run(&sc, Some(20.0), Fidelity::Fast);
+                    let detailed = run(&sc, Some(20.0), Fidelity::Detailed);
+                    (n.clone(), fast, detailed)
+                })
+            })
+            .collect();
+        handles
+            .into_iter()
+            .map(|h| h.join().expect("run thread"))
+            .collect()
+    });
+    for (n, fast, detailed) in &results {
+        for s in [fast, detailed] {
+            let e = s.summary.energy_balance_error;
+            assert!(
+                e.is_finite() && e < 1e-3,
+                "{n} ({}): ledger closes to {e}",
+                s.summary.fidelity
+            );
+        }
+        let qf = fast.summary.charge_delivered_ah;
+        let qd = detailed.summary.charge_delivered_ah;
+        assert!(qf > 0.0, "{n}: the shipped setup charges in its first 20 s");
+        assert!(
+            (qf - qd).abs() <= 0.005 * qf,
+            "{n}: fast {qf} Ah vs detailed {qd} Ah differ by more than 0.5 %"
+        );
+    }
+}
+
+#[test]
+fn every_shipped_setup_runs_a_full_session_in_the_fast_fidelity() {
+    for n in shipped_names() {
+        let sc = load(&setup_path(&n), &[]);
+        let s = run(&sc, None, Fidelity::Fast);
+        assert!(
+            s.summary.energy_balance_error < 1e-3,
+            "{n}: full session ledger {}",
+            s.summary.energy_balance_error
+        );
+        assert!(s.summary.charge_delivered_ah > 0.0, "{n}: delivers charge");
+        assert!(
+            s.summary.max_battery_v <= s.summary.charge_limit_v + 1e-3 || n == "lead-acid-direct",
+            "{n}: a charger holds the battery at or below its limit ({} V > {} V)",
+            s.summary.max_battery_v,
+            s.summary.charge_limit_v
+        );
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Temperature rules (NMC demo)
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn nmc_demo_below_freezing_refuses_charge_and_logs_the_window() {
+    let sc = load(&setup_path("demo"), &[("ambient_c", "-5")]);
+    assert_eq!(sc.setup.battery.chemistry.as_str(), "nmc");
+    let s = run(&sc, Some(60.0), Fidelity::Fast);
+    // Common practice: JEITA-style windows allow no Li-ion charge below 0 °C.
+    assert!(
+        s.summary.charge_delivered_ah.abs() < 1e-9,
+        "charge at −5 °C: {} Ah",
+        s.summary.charge_delivered_ah
+    );
+    assert!(
+        s.result
+            .events
+            .iter()
+            .any(|e| e.kind == EventKind::ChargeTempWindow),
+        "a charge_temp_window event is logged"
+    );
+    // The same design at 25 °C does charge (so the refusal is the window, not the design).
+    let warm = run(
+        &load(&setup_path("demo"), &[("ambient_c", "25")]),
+        Some(60.0),
+        Fidelity::Fast,
+    );
+    assert!(warm.summary.charge_delivered_ah > 1e-3);
+}
+
+#[test]
+fn nmc_demo_in_the_warm_band_has_a_lower_charge_limit() {
+    let at = |t: &str| {
+        let sc = load(&setup_path("demo"), &[("ambient_c", t)]);
+        run(&sc, Some(30.0), Fidelity::Fast).summary.charge_limit_v
+    };
+    let (v25, v48) = (at("25"), at("48"));
+    // Common practice: JEITA-style warm band (45 … 60 °C) lowers the CV voltage (REFERENCES §2).
+    assert!(v48 < v25 - 0.05, "limit at 48 °C {v48} V vs 25 °C {v25} V");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Buck-boost
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
+    let slow = [("profile.cadence_scale", "0.7")];
+    let buck = run(&load(&setup_path("demo"), &slow), None, Fidelity::Fast);
+    let bb = run(
+        &load(&setup_path("demo-buck-boost"), &slow),
+        None,
+        Fidelity::Fast,
+    );
+    let (fb, fbb) = (
+        buck.summary.in_regulation_fraction,
+        bb.summary.in_regulation_fraction,
+    );
+    assert!(fb < 0.5, "the buck drops out at 0.7 × cadence: {fb}");
+    assert!(fbb > 0.9, "the buck-boost holds regulation: {fbb}");
+    assert_eq!(bb.summary.topology, "buck_boost");
+    // Regulating, it delivers the charge current while the input sits below the battery.
+    let below = bb
+        .result
+        .trace
+        .rows
+        .iter()
+        .filter(|r| r.mode == Mode::Cc && r.input_v < r.battery_v)
+        .count();
+    assert!(
+        below > 0,
+        "CC with the input below the battery happens at this cadence"
+    );
+    let sc = load(&setup_path("demo-buck-boost"), &[]);
+    for r in &bb.result.trace.rows {
+        assert!(
+            r.duty <= sc.setup.converter.max_duty + 1e-12,
+            "duty {} above D_max",
+            r.duty
+        );
+    }
+}
+
+#[test]
+fn buck_boost_ccm_ratio_is_d_over_one_minus_d() {
+    // From memory: Erickson & Maksimović ch. 2, buck-boost M(D) = D/(1 − D) (magnitude).
+    assert!((buck_boost_conversion_ratio(0.5) - 1.0).abs() < 1e-12);
+    assert!((buck_boost_conversion_ratio(0.75) - 3.0).abs() < 1e-12);
+    assert!((buck_boost_conversion_ratio(0.2) - 0.25).abs() < 1e-12);
+    // The lossless averaged model's duty for (V_in, V_o) is V_o/(V_in + V_o): 12 → 12 V at 0.5,
+    // 6 → 12 V at 2/3, 24 → 12 V at 1/3 (hand values of the closed form).
+    let bb = ideal_buck_boost(47e-6, 150e3);
+    for (v_in, v_o, d) in [
+        (12.0, 12.0, 0.5),
+        (6.0, 12.0, 2.0 / 3.0),
+        (24.0, 12.0, 1.0 / 3.0),
+    ] {
+        let got = bb.ccm_duty(v_in, v_o, 1.0);
+        assert!(
+            (got - d).abs() < 1e-9,
+            "{v_in} → {v_o} V: duty {got}, want {d}"
+        );
+    }
+    // With drops the duty is higher than the ideal one, and the losses close the power balance.
+    let lossy = BuckBoostModel {
+        switch_resistance_ohm: 0.05,
+        diode_drop_v: 0.45,
+        inductor_resistance_ohm: 0.06,
+        ..bb
+    };
+    let d = lossy.ccm_duty(12.0, 12.0, 1.0);
+    assert!(d > 0.5 && d < 0.6, "lossy duty {d}");
+    let p_in = 12.0 * lossy.input_current_a(d, 1.0);
+    let p_out = 12.0 * 1.0;
+    let loss = lossy.losses(d, 1.0, 12.0).total_w();
+    assert!((p_in - p_out - loss).abs() < 1e-9 * p_in);
+}
+
+#[test]
+fn buck_boost_dcm_ratio_matches_the_table() {
+    // From memory: Erickson & Maksimović Table 5.2, buck-boost DCM |M| = D/√K, K = 2L/(R·T_s),
+    // DCM when K < (1 − D)². Hand values: L = 10 µH, f_s = 100 kHz, R = 10 Ω → K = 0.2;
+    // D = 0.3 → M = 0.670820, V_o = 8.04984 V from 12 V, I = 0.804984 A.
+    let bb = ideal_buck_boost(10e-6, 100e3);
+    let (v_in, v_o, i) = (12.0, 8.04984, 0.804984);
+    let d_ccm = bb.ccm_duty(v_in, v_o, i);
+    let (d, dcm) = bb.reported_duty(v_in, i, d_ccm);
+    assert!(dcm, "K = 0.2 < (1 − D)² = 0.49 is discontinuous");
+    assert!((d - 0.3).abs() < 1e-4, "DCM duty {d}");
+    // From memory: same table. R = 0.3 Ω gives K = 0.667 > (1 − 0.5)² = 0.25 at 12 → 12 V:
+    // continuous, duty 0.5.
+    let (v_o, r) = (12.0, 0.3);
+    let d_ccm = bb.ccm_duty(v_in, v_o, v_o / r);
+    let (d, dcm) = bb.reported_duty(v_in, v_o / r, d_ccm);
+    assert!(!dcm && (d - 0.5).abs() < 1e-9, "CCM duty {d}");
+}
+
+#[test]
+fn buck_boost_duty_limit_has_its_own_range() {
+    let w = WorkDir::new();
+    w.cmd()
+        .args([
+            "check",
+            "demo-buck-boost",
+            "--set",
+            "converter.max_duty=0.97",
+        ])
+        .assert()
+        .code(2);
+    w.cmd()
+        .args([
+            "check",
+            "demo-buck-boost",
+            "--set",
+            "converter.max_duty=0.9",
+        ])
+        .assert()
+        .code(0);
+    // A buck may run to 0.97.
+    w.cmd()
+        .args(["check", "demo", "--set", "converter.max_duty=0.97"])
+        .assert()
+        .code(0);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Linear charger
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn linear_charger_efficiency_is_about_vo_over_vin_and_it_drops_out_below_the_headroom() {
+    let sc = load(&setup_path("lfp-linear"), &[]);
+    assert_eq!(sc.setup.converter.topology.as_str(), "linear");
+    assert_eq!(sc.setup.battery.chemistry.as_str(), "lfp");
+    let dropout_v = sc
+        .setup
+        .converter
+        .dropout_v
+        .expect("the shipped file sets it");
+    let i_cc = sc.setup.converter.charge_current_a;
+    let s = run(&sc, Some(120.0), Fidelity::Fast);
+    let mut checked = 0;
+    for r in &s.result.trace.rows {
+        if r.mode == Mode::Cc && r.generator_current_a > 0.1 {
+            let eta = r.battery_v * r.battery_current_a / (r.input_v * r.generator_current_a);
+            // Common practice: a linear regulator's efficiency is V_o/V_in (less its quiescent draw).
+            let ratio = r.battery_v / r.input_v;
+            assert!(
+                (eta - ratio).abs() < 0.01 * ratio && eta <= ratio,
+                "t = {}: efficiency {eta} vs V_o/V_in {ratio}",
+                r.time_s
+            );
+            assert!(
+                r.input_v - r.battery_v >= dropout_v * r.battery_current_a / i_cc - 1e-6,
+                "regulating with less headroom than the dropout"
+            );
+            checked += 1;
+        }
+        if r.mode == Mode::Dropout {
+            assert!(
+                r.input_v - r.battery_v < dropout_v + 1e-6,
+                "t = {}: dropout with {} V of headroom",
+                r.time_s,
+                r.input_v - r.battery_v
+            );
+        }
+    }
+    assert!(checked > 100, "only {checked} CC rows");
+    // Slower cranking drops it out (the input falls below V_o + dropout).
+    let slow = run(
+        &load(
+            &setup_path("lfp-linear"),
+            &[("profile.cadence_scale", "0.75")],
+        ),
+        Some(120.0),
+        Fidelity::Fast,
+    );
+    assert!(slow.summary.in_regulation_fraction < s.summary.in_regulation_fraction);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Lead-acid behind a buck
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn lead_acid_buck_goes_through_absorption_to_float() {
+    let sc = load(&setup_path("lead-acid-buck"), &[]);
+    assert_eq!(sc.setup.battery.chemistry.as_str(), "lead_acid");
+    let s = run(&sc, None, Fidelity::Fast);
+    let rows = &s.result.trace.rows;
+    let first_cv = rows.iter().position(|r| r.mode == Mode::Cv);
+    let first_float = rows.iter().position(|r| r.mode == Mode::Float);
+    let (Some(a), Some(f)) = (first_cv, first_float) else {
+        panic!("absorption {first_cv:?} and float {first_float:?} both happen");
+    };
+    assert!(a < f, "absorption comes before float");
+    // In float the set point is the float voltage, below the absorption limit.
+    let float_v = rows[f..]
+        .iter()
+        .filter(|r| r.mode == Mode::Float)
+        .map(|r| r.battery_v)
+        .fold(0.0, f64::max);
+    assert!(
+        float_v < rows[f].charge_limit_v - 0.5,
+        "float holds {float_v} V, well below the absorption limit {} V",
+        rows[f].charge_limit_v
+    );
+}
+
+// ---------------------------------------------------------------------------------------------
+// Input-voltage floor on the switching chargers
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn input_floor_keeps_a_slow_operator_out_of_lockout_cycling() {
+    let slow = ("profile.cadence_scale", "0.6");
+    let free = run(
+        &load(&setup_path("demo-buck-boost"), &[slow]),
+        None,
+        Fidelity::Fast,
+    );
+    let floored = run(
+        &load(
+            &setup_path("demo-buck-boost"),
+            &[slow, ("converter.input_floor_v", "8.0")],
+        ),
+        None,
+        Fidelity::Fast,
+    );
+    let count = |s: &Session, k: EventKind| s.result.events.iter().filter(|e| e.kind == k).count();
+    let (lf, lt) = (
+        count(&free, EventKind::Lockout),
+        count(&floored, EventKind::Lockout),
+    );
+    let (rf, rt) = (
+        count(&free, EventKind::RegulationLoss),
+        count(&floored, EventKind::RegulationLoss),
+    );
+    assert!(lt < lf, "lock-outs {lt} with the floor vs {lf} without");
+    assert!(
+        10 * rt < rf,
+        "regulation losses {rt} with the floor vs {rf} without"
+    );
+    assert!(
+        floored.summary.charge_delivered_ah > free.summary.charge_delivered_ah,
+        "the floor delivers more charge ({} vs {} Ah)",
+        floored.summary.charge_delivered_ah,
+        free.summary.charge_delivered_ah
+    );
+    assert!(floored.summary.energy_balance_error < 1e-3);
+    // While charging, the input never sits below the floor.
+    for r in &floored.result.trace.rows {
+        if matches!(r.mode, Mode::Cc | Mode::Cv) && r.battery_current_a > 0.0 {
+            assert!(
+                r.input_v >= 8.0 - 1e-6,
+                "t = {}: input {} V under the floor",
+                r.time_s,
+                r.input_v
+            );
+        }
+    }
+}
+
+#[test]
+fn input_floor_fidelities_agree_and_close_the_ledger() {
+    let sc = load(&setup_path("demo"), &[("converter.input_floor_v", "13.0")]);
+    let fast = run(&sc, Some(20.0), Fidelity::Fast);
+    let detailed = run(&sc, Some(20.0), Fidelity::Detailed);
+    for s in [&fast, &detailed] {
+        assert!(s.summary.energy_balance_error < 1e-3);
+    }
+    // The floor is active in this run (the demo's input sags below 13 V without it).
+    assert!(fast
+        .result
+        .trace
+        .rows
+        .iter()
+        .any(|r| r.mode == Mode::Cc && (r.input_v - 13.0).abs() < 1e-6));
+    let (qf, qd) = (
+        fast.summary.charge_delivered_ah,
+        detailed.summary.charge_delivered_ah,
+    );
+    assert!(
+        (qf - qd).abs() <= 0.005 * qf,
+        "fast {qf} vs detailed {qd} Ah"
+    );
+}
+
+#[test]
+fn input_floor_is_checked() {
+    let w = WorkDir::new();
+    // Below the UVLO off threshold it could never act.
+    w.cmd()
+        .args(["check", "demo", "--set", "converter.input_floor_v=9.0"])
+        .assert()
+        .code(2);
+    // A linear charger has no floor.
+    w.cmd()
+        .args([
+            "check",
+            "lfp-linear",
+            "--set",
+            "converter.input_floor_v=13.0",
+        ])
+        .assert()
+        .code(2);
+    w.cmd()
+        .args(["check", "demo", "--set", "converter.input_floor_v=12.0"])
+        .assert()
+        .code(0);
+}
