@@ -219,6 +219,10 @@ pub struct Converter {
     /// UVLO: converter locks out when the input falls below this, V (0 … uvlo_on_v).
     #[serde(default)]
     pub uvlo_off_v: f64,
+    /// Least time the charger stays off after a lock-out or sleep before it may restart, s
+    /// (0 … 10; default 0); a delay keeps a stalled generator from hiccuping every few ms.
+    #[serde(default = "default_restart_delay")]
+    pub restart_delay_s: f64,
     /// Soft-start ramp of the current reference after enabling, s (0 … 10).
     #[serde(default = "default_soft_start")]
     pub soft_start_s: f64,
@@ -263,6 +267,9 @@ fn default_inductance_conv() -> f64 {
 }
 fn default_fsw() -> f64 {
     150e3
+}
+fn default_restart_delay() -> f64 {
+    0.0
 }
 fn default_soft_start() -> f64 {
     0.05

@@ -281,6 +281,7 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
             cv.uvlo_on_v.max(0.0),
         );
         c.range("converter.soft_start_s", cv.soft_start_s, 0.0, 10.0);
+        c.range("converter.restart_delay_s", cv.restart_delay_s, 0.0, 10.0);
         c.range(
             "converter.input_overvoltage_v",
             cv.input_overvoltage_v,

@@ -239,6 +239,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         resting: plant.jitter.resting(0.0),
         engaged: true,
         soft_done: plant.charger.soft_start_s <= 0.0,
+        disabled_at_s: f64::NEG_INFINITY,
     };
     let mut y = y0;
     let mut t = 0.0;

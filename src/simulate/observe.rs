@@ -3,6 +3,7 @@
 
 use crate::analysis::events::{Event, EventKind};
 use crate::model::battery::li_ion::TempBand;
+use crate::scenario::setup::Topology;
 
 use super::plant::{Discrete, Plant, Point};
 use super::state::*;
@@ -67,10 +68,20 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
     match kind {
         EventKind::RegulationLoss => {
             if p.net.dropout {
-                format!(
-                    "duty at its limit {:.2}: input too low for the charge current",
-                    plant.buck.max_duty
-                )
+                match plant.charger.topology {
+                    Topology::Linear => format!(
+                        "input short of the {:.2} V headroom the pass element needs",
+                        plant.linear.dropout_v
+                    ),
+                    Topology::BuckBoost => format!(
+                        "duty at its limit {:.2}: input too low for the charge current",
+                        plant.buck_boost.max_duty
+                    ),
+                    _ => format!(
+                        "duty at its limit {:.2}: input too low for the charge current",
+                        plant.buck.max_duty
+                    ),
+                }
             } else {
                 "converter locked out or shut down while cranking".to_string()
             }

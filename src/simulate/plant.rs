@@ -58,6 +58,8 @@ pub struct Discrete {
     pub engaged: bool,
     /// Soft-start ramp finished.
     pub soft_done: bool,
+    /// When the converter last locked out or went to sleep, s (−∞ before the first time).
+    pub disabled_at_s: f64,
 }
 
 /// Charger settings resolved with defaults.
@@ -80,6 +82,8 @@ pub struct Charger {
     pub sleeps_below_battery: bool,
     /// Switching chargers: the input-voltage floor they hold by trimming their current, V.
     pub input_floor_v: Option<f64>,
+    /// Least off-time after a lock-out before a restart, s.
+    pub restart_delay_s: f64,
 }
 
 /// One target-cadence segment in absolute time.
@@ -211,6 +215,7 @@ impl Plant {
             absorption_exit_current_a: c.absorption_exit_current_a.unwrap_or(cap / 50.0),
             absorption_max_s: c.absorption_max_s,
             soft_start_s: c.soft_start_s,
+            restart_delay_s: c.restart_delay_s,
             uvlo_on_v: c.uvlo_on_v,
             uvlo_off_v: c.uvlo_off_v,
             input_overvoltage_v: c.input_overvoltage_v,

@@ -78,6 +78,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             }
         } else if p.idle_input_v >= c.uvlo_on_v
             && (!c.sleeps_below_battery || p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V)
+            && p.t - d.disabled_at_s >= c.restart_delay_s
         {
             return Some(Transition::Enable);
         }
@@ -116,9 +117,11 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
             d.enabled = false;
             y[SOFT_START] = 0.0;
             d.soft_done = false;
+            d.disabled_at_s = t;
         }
         Transition::OvShutdown => {
             d.ov_shutdown = true;
+            d.disabled_at_s = t;
             y[SOFT_START] = 0.0;
             d.soft_done = false;
         }
