@@ -128,6 +128,11 @@ fn random_mutations_of_a_shipped_setup_run_or_are_refused_clearly() {
     mutate_and_run("profiles/setups/demo.ron", 150, 0);
 }
 
+#[test]
+fn random_mutations_of_a_shipped_profile_run_or_are_refused_clearly() {
+    mutate_and_run("profiles/cranking/uneven.ron", 60, 99);
+}
+
 /// The manual fuzzing run (documented in DEVELOPERS.md): many more mutations of every shipped
 /// setup, a different stream per setup:
 /// `cargo test --release --test integration -- --ignored fuzz_shipped_setups_long`
@@ -165,9 +170,20 @@ fn mutate_and_run(rel: &str, cases: u32, stream: u64) {
     let result = runner.run(&mutation(), |m| {
         let text = apply(&original, &m);
         std::fs::write(wd.path("mutated.ron"), &text).expect("write");
-        let out = wd
-            .cmd()
-            .args([
+        // A profile is mutated in place of the demo's steady profile; a setup is run as SETUP.
+        let args: Vec<&str> = if rel.contains("/cranking/") {
+            vec![
+                "run",
+                "--profile",
+                "mutated.ron",
+                "--duration",
+                "15",
+                "--no-plot",
+                "--out",
+                "out",
+            ]
+        } else {
+            vec![
                 "run",
                 "mutated.ron",
                 "--duration",
@@ -175,7 +191,11 @@ fn mutate_and_run(rel: &str, cases: u32, stream: u64) {
                 "--no-plot",
                 "--out",
                 "out",
-            ])
+            ]
+        };
+        let out = wd
+            .cmd()
+            .args(&args)
             .timeout(Duration::from_secs(60))
             .output()
             .expect("binary runs");
