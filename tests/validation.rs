@@ -905,7 +905,10 @@ fn li_ion_ocv_tracks_chen_rincon_mora_fit() {
     // and I-V performance", IEEE Trans. Energy Conversion 21(2):504–511, 2006 — fitted Voc(z);
     // REFERENCES §2 [computed]: 4.1029, 3.9460, 3.8034, 3.7250 V at z = 1.0, 0.8, 0.5, 0.2.
     for (z, v) in [(1.0, 4.1029), (0.8, 3.9460), (0.5, 3.8034), (0.2, 3.7250)] {
-        assert!((chen_voc(z) - v).abs() < 1e-4, "transcription at z = {z}");
+        assert!(
+            (chen_voc(z) - v).abs() < 1e-4,
+            "copying error in the published value at z = {z}"
+        );
     }
     // Their cell is not ours: we hold the generic LCO curve within 0.1 V of their fit over
     // 20–100 % SOC (our stated tolerance; below 20 % their fit drops steeply).
@@ -1181,7 +1184,10 @@ fn lead_acid_copetti_charge_efficiency() {
         // 1)];
         // at I = I10: 0.9311, 0.7375, 0.4876 for SOC 0.8, 0.9, 0.95 (REFERENCES §1, [computed]).
         let eta = 1.0 - ((20.73 / (1.0 + 0.55)) * (soc - 1.0)).exp();
-        assert!((eta - printed).abs() < 1e-4, "transcription at {soc}");
+        assert!(
+            (eta - printed).abs() < 1e-4,
+            "copying error in the published value at SOC {soc}"
+        );
         assert!((copetti_charge_efficiency(1.0, soc) - eta).abs() < 1e-12);
         // The battery model uses it with I10 = C10/10.
         assert!((m.charge_efficiency(i10, soc) - eta).abs() < 1e-12);
