@@ -235,6 +235,32 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         (g, dg)
     };
 
+    // Fast path: Newton from the open-circuit estimate. From the left of the first root on the
+    // concave regulated branch it converges monotonically; it is accepted only on a stable
+    // (g' > 0) root inside the regulated region, else the bracketed search below decides.
+    if src.emf_v > v_edge {
+        let mut x = (target * num / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
+        for _ in 0..12 {
+            let (g, dg) = g_reg(x);
+            if !(dg > 0.0) {
+                break;
+            }
+            let next = x - g / dg;
+            if !(next >= 0.0) {
+                break;
+            }
+            if (next - x).abs() <= CURRENT_TOL_A {
+                let v = src.node_v(next);
+                if v >= v_edge && g_reg(next).1 > 0.0 {
+                    let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
+                    return buck_report(src, buck, next, v, d, target, vo_target, false);
+                }
+                break;
+            }
+            x = next;
+        }
+    }
+
     // Generator current at the dropout edge (node voltage = v_edge).
     let i_edge = if src.emf_v > v_edge {
         let hi = (src.emf_v - v_edge) / r;
