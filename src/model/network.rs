@@ -242,11 +242,11 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         let mut x = (target * num / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
         for _ in 0..12 {
             let (g, dg) = g_reg(x);
-            if !(dg > 0.0) {
+            if dg.is_nan() || dg <= 0.0 {
                 break;
             }
             let next = x - g / dg;
-            if !(next >= 0.0) {
+            if next.is_nan() || next < 0.0 {
                 break;
             }
             if (next - x).abs() <= CURRENT_TOL_A {
