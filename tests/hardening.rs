@@ -393,3 +393,29 @@ fn a_restart_delay_holds_the_charger_off_after_each_lockout() {
         );
     }
 }
+
+#[test]
+fn an_eight_hour_session_keeps_a_bounded_trace_on_a_regular_grid() {
+    let wd = WorkDir::new();
+    wd.cmd()
+        .args(["run", "--duration", "8h", "--no-plot", "--out", "long"])
+        .timeout(Duration::from_secs(600))
+        .assert()
+        .success();
+    let s: serde_json::Value = serde_json::from_str(&wd.read("long/summary.json")).expect("json");
+    let dt = s["trace_interval_s"]
+        .as_f64()
+        .expect("trace interval in the summary");
+    assert!(
+        dt > 0.1 && dt <= 0.5,
+        "an 8-h session widens the grid to bound memory: {dt}"
+    );
+    let (header, rows) = read_csv(&wd.path("long/trace.csv"));
+    let t = crate::common::column(&header, &rows, "time_s");
+    assert!(t.len() <= 72_001, "{} rows", t.len());
+    assert!((t[t.len() - 1] - 28_800.0).abs() < 1e-9);
+    for w in t.windows(2) {
+        assert!((w[1] - w[0] - dt).abs() < 1e-6, "grid broken at {}", w[0]);
+    }
+    assert!(s["energy_balance_error"].as_f64().unwrap() < 1e-3);
+}

@@ -62,6 +62,8 @@ pub struct Summary {
     pub alerts: Vec<Event>,
     pub verdict: Verdict,
     pub wall_time_s: f64,
+    /// Grid of trace.csv, s (widened for very long sessions to bound memory).
+    pub trace_interval_s: f64,
     // Extras after the contract keys.
     pub topology: String,
     pub chemistry: String,

@@ -34,6 +34,16 @@ impl Default for RunSettings {
     }
 }
 
+/// Most trace rows kept in memory; longer sessions get a proportionally coarser grid, so memory
+/// stays bounded (≈ 30 MB) however long the session.
+pub const MAX_TRACE_ROWS: f64 = 72_000.0;
+
+/// The trace grid actually used: the setup's interval, widened to keep at most
+/// [`MAX_TRACE_ROWS`] rows (a 2-h session keeps 0.1 s; 8 h gets 0.4 s).
+pub fn trace_interval_s(requested_s: f64, duration_s: f64) -> f64 {
+    requested_s.max(duration_s / MAX_TRACE_ROWS)
+}
+
 /// A finished session: the raw result and its summary.
 #[derive(Debug, Clone)]
 pub struct Session {
@@ -70,7 +80,7 @@ pub fn run_session(sc: &Scenario, rs: &RunSettings) -> Result<Session, SessionEr
     let opts = SimOptions {
         duration_s: duration,
         fidelity: rs.fidelity,
-        trace_interval_s: so.trace_interval_s,
+        trace_interval_s: trace_interval_s(so.trace_interval_s, duration),
         rtol: so.rtol,
         atol: so.atol,
         max_step_s: so.max_step_s,
@@ -227,6 +237,7 @@ fn summarise(
             .collect(),
         verdict: Verdict::from_flags(flags),
         wall_time_s: wall_s,
+        trace_interval_s: trace_interval_s(sc.setup.solver.trace_interval_s, duration),
         topology: sc.setup.converter.topology.as_str().to_string(),
         chemistry: sc.setup.battery.chemistry.as_str().to_string(),
         cranking_s: cranking,
