@@ -12,7 +12,7 @@ use std::time::Duration;
 use serde::Deserialize;
 use serde_json::Value;
 
-use crate::common::{column, read_csv, repo, WorkDir};
+use crate::common::{column, read_csv, repo, run_code, run_ok, WorkDir};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers
@@ -138,34 +138,6 @@ fn shipped<T: for<'de> Deserialize<'de>>(rel: &str) -> T {
         .with_default_extension(ron::extensions::Extensions::IMPLICIT_SOME)
         .from_str(&text)
         .unwrap_or_else(|e| panic!("parse {} with the test's own structs: {e}", path.display()))
-}
-
-/// Runs `crankcharge` with `args` in `wd` and asserts exit code 0; returns stdout.
-fn run_ok(wd: &WorkDir, args: &[&str]) -> String {
-    let out = wd.cmd().args(args).output().expect("spawn crankcharge");
-    assert!(
-        out.status.success(),
-        "crankcharge {args:?} in {} failed: {:?}\nstdout:\n{}\nstderr:\n{}",
-        wd.dir.path().display(),
-        out.status,
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
-}
-
-/// Runs `crankcharge` with `args`, asserts the exit code, and returns stderr.
-fn run_code(wd: &WorkDir, args: &[&str], code: i32) -> String {
-    let out = wd.cmd().args(args).output().expect("spawn crankcharge");
-    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
-    assert_eq!(
-        out.status.code(),
-        Some(code),
-        "crankcharge {args:?} in {}: expected exit {code}\nstdout:\n{}\nstderr:\n{stderr}",
-        wd.dir.path().display(),
-        String::from_utf8_lossy(&out.stdout),
-    );
-    stderr
 }
 
 /// A trace.csv read into memory.

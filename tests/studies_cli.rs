@@ -15,7 +15,7 @@ use rand_distr::{Distribution, Normal};
 use serde::Deserialize;
 use serde_json::Value;
 
-use crate::common::{column, read_csv, repo, WorkDir};
+use crate::common::{column, read_csv, repo, run_code, run_env, run_ok, WorkDir};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers
@@ -33,44 +33,6 @@ const SOME_SCALARS: [&str; 6] = [
     "mean_operator_power_w",
     "verdict",
 ];
-
-/// Runs `crankcharge` with `args` in `wd` and asserts exit code 0; returns stdout.
-fn run_ok(wd: &WorkDir, args: &[&str]) -> String {
-    run_env(wd, args, &[])
-}
-
-/// As [`run_ok`] with extra environment variables.
-fn run_env(wd: &WorkDir, args: &[&str], env: &[(&str, &str)]) -> String {
-    let mut cmd = wd.cmd();
-    cmd.args(args);
-    for (k, v) in env {
-        cmd.env(k, v);
-    }
-    let out = cmd.output().expect("spawn crankcharge");
-    assert!(
-        out.status.success(),
-        "crankcharge {args:?} (env {env:?}) in {} failed: {:?}\nstdout:\n{}\nstderr:\n{}",
-        wd.dir.path().display(),
-        out.status,
-        String::from_utf8_lossy(&out.stdout),
-        String::from_utf8_lossy(&out.stderr)
-    );
-    String::from_utf8_lossy(&out.stdout).into_owned()
-}
-
-/// Runs `crankcharge` with `args`, asserts the exit code, and returns stderr.
-fn run_code(wd: &WorkDir, args: &[&str], code: i32) -> String {
-    let out = wd.cmd().args(args).output().expect("spawn crankcharge");
-    let stderr = String::from_utf8_lossy(&out.stderr).into_owned();
-    assert_eq!(
-        out.status.code(),
-        Some(code),
-        "crankcharge {args:?} in {}: expected exit {code}\nstdout:\n{}\nstderr:\n{stderr}",
-        wd.dir.path().display(),
-        String::from_utf8_lossy(&out.stdout),
-    );
-    stderr
-}
 
 fn read_json(path: &Path) -> Value {
     let text =
