@@ -110,3 +110,33 @@ pub fn run_code(wd: &WorkDir, args: &[&str], code: i32) -> String {
     );
     stderr
 }
+
+/// Every shipped setup file, sorted by name.
+pub fn shipped_setups() -> Vec<PathBuf> {
+    let dir = repo().join("profiles/setups");
+    let mut v: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .unwrap_or_else(|e| panic!("read {}: {e}", dir.display()))
+        .map(|e| e.expect("dir entry").path())
+        .filter(|p| p.extension().is_some_and(|x| x == "ron"))
+        .collect();
+    v.sort();
+    v
+}
+
+/// A buck with every drop and loss set to zero: the converter of the textbook tables.
+pub fn ideal_buck(
+    inductance_h: f64,
+    switching_frequency_hz: f64,
+) -> crankcharge::model::converter::BuckModel {
+    crankcharge::model::converter::BuckModel {
+        max_duty: 1.0,
+        switch_drop_v: 0.0,
+        switch_resistance_ohm: 0.0,
+        catch_drop_v: 0.0,
+        inductor_resistance_ohm: 0.0,
+        inductance_h,
+        switching_frequency_hz,
+        switch_transition_s: 0.0,
+        quiescent_current_a: 0.0,
+    }
+}

@@ -23,7 +23,7 @@ use crankcharge::scenario::{load_scenario, Scenario};
 use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::{run_session, RunSettings, Session};
 
-use crate::common::repo;
+use crate::common::{ideal_buck, repo, shipped_setups};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -50,18 +50,6 @@ fn load(setup: &Path, profile: &Path, sets: &[(&str, &str)]) -> Scenario {
 
 fn steady_profile() -> PathBuf {
     repo().join("profiles/cranking/steady.ron")
-}
-
-/// Every shipped setup file, sorted by name.
-fn shipped_setups() -> Vec<PathBuf> {
-    let dir = repo().join("profiles/setups");
-    let mut v: Vec<PathBuf> = std::fs::read_dir(&dir)
-        .unwrap_or_else(|e| panic!("read {}: {e}", dir.display()))
-        .map(|e| e.expect("dir entry").path())
-        .filter(|p| p.extension().is_some_and(|x| x == "ron"))
-        .collect();
-    v.sort();
-    v
 }
 
 /// Classic fourth-order Runge–Kutta for a scalar ODE y' = f(y) (autonomous), `n` steps of `h`.
@@ -102,21 +90,6 @@ fn generator(resistance_ohm: f64, inductance_h: f64) -> GeneratorModel {
         brush_drop_v: 0.0,
         winding_heat_capacity_j_per_k: 60.0,
         winding_to_ambient_w_per_k: 0.8,
-    }
-}
-
-/// A buck with every drop and loss set to zero (the converter of the textbook tables).
-fn ideal_buck(inductance_h: f64, switching_frequency_hz: f64) -> BuckModel {
-    BuckModel {
-        max_duty: 1.0,
-        switch_drop_v: 0.0,
-        switch_resistance_ohm: 0.0,
-        catch_drop_v: 0.0,
-        inductor_resistance_ohm: 0.0,
-        inductance_h,
-        switching_frequency_hz,
-        switch_transition_s: 0.0,
-        quiescent_current_a: 0.0,
     }
 }
 

@@ -37,7 +37,7 @@ use crankcharge::units::{
     rpm_to_rad_s, thermal_voltage_v, v_per_krpm_to_v_s_per_rad, v_s_per_rad_to_v_per_krpm,
 };
 
-use crate::common::repo;
+use crate::common::{ideal_buck, repo, shipped_setups};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -157,18 +157,6 @@ fn shipped(rel: &str) -> String {
         .to_string()
 }
 
-/// Every shipped setup file, sorted by name.
-fn shipped_setups() -> Vec<PathBuf> {
-    let dir = repo().join("profiles/setups");
-    let mut v: Vec<PathBuf> = std::fs::read_dir(&dir)
-        .unwrap_or_else(|e| panic!("read {}: {e}", dir.display()))
-        .map(|e| e.expect("dir entry").path())
-        .filter(|p| p.extension().is_some_and(|x| x == "ron"))
-        .collect();
-    v.sort();
-    v
-}
-
 /// Every shipped crank profile, sorted by name.
 fn shipped_profiles() -> Vec<PathBuf> {
     let dir = repo().join("profiles/cranking");
@@ -245,21 +233,6 @@ fn rk4(f: impl Fn(f64, f64) -> f64, y0: f64, t_end: f64, dt: f64) -> f64 {
         t += h;
     }
     y
-}
-
-/// A buck with every drop and loss set to zero: the converter of the textbook tables.
-fn ideal_buck(inductance_h: f64, switching_frequency_hz: f64) -> BuckModel {
-    BuckModel {
-        max_duty: 1.0,
-        switch_drop_v: 0.0,
-        switch_resistance_ohm: 0.0,
-        catch_drop_v: 0.0,
-        inductor_resistance_ohm: 0.0,
-        inductance_h,
-        switching_frequency_hz,
-        switch_transition_s: 0.0,
-        quiescent_current_a: 0.0,
-    }
 }
 
 /// Percentile (0 … 1) of a non-empty sample by nearest rank.

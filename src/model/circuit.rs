@@ -187,22 +187,7 @@ pub fn evaluate(
             };
             let ib = term.current_at(v_o);
             let loss = v_in * i_in - v_o * i_l - i_l * buck.inductance_h * di_l;
-            let p = NetworkPoint {
-                generator_current_a: i_a,
-                input_v: v_in,
-                duty: d,
-                balance_duty: d,
-                dcm,
-                battery_current_a: ib,
-                battery_v: v_o,
-                dropout: false,
-                diode_v: src.diode.forward_v(i_a),
-                brush_v: src.generator.brush_drop(i_a),
-                losses: crate::model::converter::ConverterLosses {
-                    switch_w: loss,
-                    ..Default::default()
-                },
-            };
+            let p = averaged_point(src, i_a, v_in, d, dcm, ib, v_o, loss);
             let r = FastRates {
                 armature: di_a,
                 input: (i_a - i_in) / k.input_capacitance_f,
@@ -263,7 +248,30 @@ fn buck_boost(
     let i_out = share_out * i_l;
     let ib = term.current_at(v_o);
     let loss = v_in * i_in - v_o * i_out - i_l * bb.inductance_h * di_l;
-    let p = NetworkPoint {
+    let p = averaged_point(src, i_a, v_in, d, dcm, ib, v_o, loss);
+    let r = FastRates {
+        armature: di_a,
+        input: (i_a - i_in) / k.input_capacitance_f,
+        inductor: di_l,
+        output: (i_out - ib) / k.output_capacitance_f,
+    };
+    (p, r)
+}
+
+/// Operating point of an averaged switching stage; its losses are the power balance
+/// v_in·i_in − (power to the output) − (inductor energy rate), booked as one figure.
+#[allow(clippy::too_many_arguments)]
+fn averaged_point(
+    src: &Source,
+    i_a: f64,
+    v_in: f64,
+    d: f64,
+    dcm: bool,
+    ib: f64,
+    v_o: f64,
+    loss_w: f64,
+) -> NetworkPoint {
+    NetworkPoint {
         generator_current_a: i_a,
         input_v: v_in,
         duty: d,
@@ -275,17 +283,10 @@ fn buck_boost(
         diode_v: src.diode.forward_v(i_a),
         brush_v: src.generator.brush_drop(i_a),
         losses: ConverterLosses {
-            switch_w: loss,
+            switch_w: loss_w,
             ..Default::default()
         },
-    };
-    let r = FastRates {
-        armature: di_a,
-        input: (i_a - i_in) / k.input_capacitance_f,
-        inductor: di_l,
-        output: (i_out - ib) / k.output_capacitance_f,
-    };
-    (p, r)
+    }
 }
 
 /// Energy held in the fast elements, J: ½L_a·i² + ½C_in·v_in² + ½L·i_L² + ½C_o·v_o².

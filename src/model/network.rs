@@ -324,18 +324,43 @@ fn buck_report(
     dropout: bool,
 ) -> NetworkPoint {
     let (duty, dcm) = buck.reported_duty(v, vo, ib, d);
+    switching_point(
+        src,
+        i,
+        v,
+        (duty, d, dcm),
+        ib,
+        vo,
+        dropout,
+        buck.losses(d, ib, v),
+    )
+}
+
+/// An operating point of a switching charger: generator side from `src` at current `i`, duty as
+/// (reported, balance, DCM), battery side (`ib`, `vo`), and the converter's losses.
+#[allow(clippy::too_many_arguments)]
+fn switching_point(
+    src: &Source,
+    i: f64,
+    v: f64,
+    (duty, balance_duty, dcm): (f64, f64, bool),
+    ib: f64,
+    vo: f64,
+    dropout: bool,
+    losses: ConverterLosses,
+) -> NetworkPoint {
     NetworkPoint {
         generator_current_a: i,
         input_v: v,
         duty,
-        balance_duty: d,
+        balance_duty,
         dcm,
         battery_current_a: ib,
         battery_v: vo,
         dropout,
         diode_v: src.diode.forward_v(i),
         brush_v: src.generator.brush_drop(i),
-        losses: buck.losses(d, ib, v),
+        losses,
     }
 }
 
@@ -443,19 +468,16 @@ fn bb_report(
     dropout: bool,
 ) -> NetworkPoint {
     let (duty, dcm) = bb.reported_duty(v, ib, d);
-    NetworkPoint {
-        generator_current_a: i,
-        input_v: v,
-        duty,
-        balance_duty: d,
-        dcm,
-        battery_current_a: ib,
-        battery_v: vo,
+    switching_point(
+        src,
+        i,
+        v,
+        (duty, d, dcm),
+        ib,
+        vo,
         dropout,
-        diode_v: src.diode.forward_v(i),
-        brush_v: src.generator.brush_drop(i),
-        losses: bb.losses(d, ib, v),
-    }
+        bb.losses(d, ib, v),
+    )
 }
 
 /// Linear charger operating point: the generator carries I + I_q; in dropout the pass element is
