@@ -160,24 +160,16 @@ pub fn evaluate(
             let v_in = x.input_v;
             let a = v_in - buck.switch_drop_v - i_l * buck.switch_resistance_ohm - v_o;
             let b = v_o + buck.catch_drop_v;
-            let period = 1.0 / buck.switching_frequency_hz;
-            let (d2, dcm) = if d > 0.0 && a > 0.0 {
-                let d2 = 2.0 * buck.inductance_h * i_l / (d * period * a) - d;
-                if d2 < 1.0 - d {
-                    (d2.max(0.0), true)
-                } else {
-                    (1.0 - d, false)
-                }
-            } else if i_l > 0.0 {
-                (1.0 - d, false)
-            } else {
-                (0.0, d <= 0.0)
-            };
-            let mut di_l =
-                (d * a - d2 * b - i_l * buck.inductor_resistance_ohm) / buck.inductance_h;
-            if x.inductor_a <= 0.0 && di_l < 0.0 {
-                di_l = 0.0;
-            }
+            let (d2, dcm) =
+                diode_interval(d, a, i_l, buck.inductance_h, buck.switching_frequency_hz);
+            let dcm = dcm || (i_l <= 0.0 && d <= 0.0);
+            let di_l = inductor_rate(
+                (d, a),
+                (d2, b),
+                buck.inductor_resistance_ohm,
+                buck.inductance_h,
+                x.inductor_a,
+            );
             let switching = d > 0.0;
             let i_in = if switching {
                 let share = if d + d2 > 0.0 { d / (d + d2) } else { 1.0 };
@@ -218,23 +210,14 @@ fn buck_boost(
     let v_o = x.output_v;
     let a = v_in - 2.0 * bb.switch_drop_v - 2.0 * i_l * bb.switch_resistance_ohm;
     let b = bb.off_v(v_o);
-    let period = 1.0 / bb.switching_frequency_hz;
-    let (d2, dcm) = if d > 0.0 && a > 0.0 {
-        let d2 = 2.0 * bb.inductance_h * i_l / (d * period * a) - d;
-        if d2 < 1.0 - d {
-            (d2.max(0.0), true)
-        } else {
-            (1.0 - d, false)
-        }
-    } else if i_l > 0.0 {
-        (1.0 - d, false)
-    } else {
-        (0.0, false)
-    };
-    let mut di_l = (d * a - d2 * b - i_l * bb.inductor_resistance_ohm) / bb.inductance_h;
-    if x.inductor_a <= 0.0 && di_l < 0.0 {
-        di_l = 0.0;
-    }
+    let (d2, dcm) = diode_interval(d, a, i_l, bb.inductance_h, bb.switching_frequency_hz);
+    let di_l = inductor_rate(
+        (d, a),
+        (d2, b),
+        bb.inductor_resistance_ohm,
+        bb.inductance_h,
+        x.inductor_a,
+    );
     let (share_in, share_out) = if d + d2 > 0.0 {
         (d / (d + d2), d2 / (d + d2))
     } else {
@@ -256,6 +239,41 @@ fn buck_boost(
         output: (i_out - ib) / k.output_capacitance_f,
     };
     (p, r)
+}
+
+/// Diode conduction interval d2 of the full-order averaged model and whether the stage is in DCM:
+/// d2 = 2·L·i_L/(d·T·a) − d while that is below 1 − d (a = voltage across L while switched on),
+/// else 1 − d (CCM); 0 when the inductor is empty and the switch is off.
+fn diode_interval(d: f64, a: f64, i_l: f64, inductance_h: f64, f_sw: f64) -> (f64, bool) {
+    if d > 0.0 && a > 0.0 {
+        let d2 = 2.0 * inductance_h * i_l * f_sw / (d * a) - d;
+        if d2 < 1.0 - d {
+            (d2.max(0.0), true)
+        } else {
+            (1.0 - d, false)
+        }
+    } else if i_l > 0.0 {
+        (1.0 - d, false)
+    } else {
+        (0.0, false)
+    }
+}
+
+/// Averaged inductor rate L·di/dt = d·a − d2·b − i·R_L; an empty inductor cannot go negative.
+fn inductor_rate(
+    (d, a): (f64, f64),
+    (d2, b): (f64, f64),
+    r_l: f64,
+    inductance_h: f64,
+    i_raw: f64,
+) -> f64 {
+    let i_l = i_raw.max(0.0);
+    let rate = (d * a - d2 * b - i_l * r_l) / inductance_h;
+    if i_raw <= 0.0 && rate < 0.0 {
+        0.0
+    } else {
+        rate
+    }
 }
 
 /// Operating point of an averaged switching stage; its losses are the power balance
