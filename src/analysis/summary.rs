@@ -86,7 +86,8 @@ pub fn total_duration(events: &[Event], kind: EventKind) -> f64 {
         .iter()
         .filter(|e| e.kind == kind)
         .map(|e| e.duration_s)
-        .sum()
+        // A fold from +0.0: `sum()` of no floats is −0.0, which would print as "-0.0".
+        .fold(0.0, |a, d| a + d)
 }
 
 /// Peak battery voltage in the trace and the charge limit in force at that sample.

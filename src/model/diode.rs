@@ -87,7 +87,7 @@ impl DiodeModel {
                 saturation_current_a,
                 n_vt_v,
                 series_resistance_ohm,
-            } => n_vt_v * (i / saturation_current_a).ln_1p() + i * series_resistance_ohm,
+            } => n_vt_v * ln_1p(i / saturation_current_a) + i * series_resistance_ohm,
             DiodeModel::Ideal {
                 forward_v,
                 series_resistance_ohm,
@@ -125,6 +125,16 @@ impl DiodeModel {
             DiodeModel::Ideal { forward_v, .. } => forward_v,
             _ => 0.0,
         }
+    }
+}
+
+/// ln(1 + x) for x ≥ 0. Above x = 1 (forward currents past I_s, the usual case) `ln` of the
+/// exactly representable sum is as accurate and cheaper than `ln_1p`, which is kept for small x.
+fn ln_1p(x: f64) -> f64 {
+    if x > 1.0 {
+        (1.0 + x).ln()
+    } else {
+        x.ln_1p()
     }
 }
 

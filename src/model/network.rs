@@ -100,6 +100,11 @@ impl Source<'_> {
     pub fn node_slope(&self, i: f64) -> f64 {
         self.resistance_ohm + self.generator.brush_drop_slope(i) + self.diode.slope(i)
     }
+
+    /// Node voltage and its slope −d(node_v)/di together, V and Ω.
+    pub fn node(&self, i: f64) -> (f64, f64) {
+        (self.node_v(i), self.node_slope(i))
+    }
 }
 
 /// The solved operating point.
@@ -235,26 +240,44 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         (g, dg)
     };
 
-    // Fast path: Newton from the open-circuit estimate. From the left of the first root on the
-    // concave regulated branch it converges monotonically; it is accepted only on a stable
-    // (g' > 0) root inside the regulated region, else the bracketed search below decides.
+    // Fast path from the open-circuit estimate. Each iterate linearises only the source,
+    // v(i) ≈ v(x) − R_x·(i − x), and keeps the constant-power hyperbola exact: the next iterate is
+    // the smaller root of (i − I_fixed)·(v(x) + R_x·x − c − R_x·i) = P (the physical, stable one).
+    // The source is nearly linear (copper and a logarithmic diode), so this converges in two or
+    // three source evaluations. It is accepted only on a stable (g' > 0) root inside the
+    // regulated region, with the Newton step of g below the tolerance there (so the node voltage
+    // found at that iterate is reused); otherwise the bracketed search below decides.
     if src.emf_v > v_edge {
-        let mut x = (target * num / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
+        let p = target * num;
+        let mut x = (p / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
         for _ in 0..12 {
-            let (g, dg) = g_reg(x);
+            let (v, slope) = src.node(x);
+            let den = v - c;
+            if den <= 0.0 {
+                break;
+            }
+            let g = x - (p / den + fixed);
+            let dg = 1.0 - p / (den * den) * slope;
             if dg.is_nan() || dg <= 0.0 {
                 break;
             }
-            let next = x - g / dg;
-            if next.is_nan() || next < 0.0 {
+            if (g / dg).abs() <= CURRENT_TOL_A {
+                if v >= v_edge {
+                    let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
+                    return buck_report(src, buck, x, v, d, target, vo_target, false);
+                }
                 break;
             }
-            if (next - x).abs() <= CURRENT_TOL_A {
-                let v = src.node_v(next);
-                if v >= v_edge && g_reg(next).1 > 0.0 {
-                    let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
-                    return buck_report(src, buck, next, v, d, target, vo_target, false);
-                }
+            let a = v + slope * x - c;
+            let b = a + fixed * slope;
+            let q = fixed * a + p;
+            let disc = b * b - 4.0 * slope * q;
+            let next = if disc >= 0.0 && b > 0.0 {
+                2.0 * q / (b + disc.sqrt())
+            } else {
+                x - g / dg
+            };
+            if next.is_nan() || next < 0.0 {
                 break;
             }
             x = next;
@@ -337,7 +360,8 @@ fn buck_report(
 }
 
 /// An operating point of a switching charger: generator side from `src` at current `i`, duty as
-/// (reported, balance, DCM), battery side (`ib`, `vo`), and the converter's losses.
+/// (reported, balance, DCM), battery side (`ib`, `vo`), and the converter's losses; `v` is the
+/// node voltage at `i` (its diode drop is read off it).
 #[allow(clippy::too_many_arguments)]
 fn switching_point(
     src: &Source,
@@ -349,6 +373,7 @@ fn switching_point(
     dropout: bool,
     losses: ConverterLosses,
 ) -> NetworkPoint {
+    let brush_v = src.generator.brush_drop(i);
     NetworkPoint {
         generator_current_a: i,
         input_v: v,
@@ -358,8 +383,10 @@ fn switching_point(
         battery_current_a: ib,
         battery_v: vo,
         dropout,
-        diode_v: src.diode.forward_v(i),
-        brush_v: src.generator.brush_drop(i),
+        // `v` is node_v(i) = E − i·R − V_brush − V_D: the diode drop follows without another
+        // logarithm.
+        diode_v: (src.emf_v - i * src.resistance_ohm - brush_v - v).max(0.0),
+        brush_v,
         losses,
     }
 }
