@@ -162,6 +162,15 @@ struct Recorder {
     last_state: Option<State>,
 }
 
+impl Recorder {
+    /// Empties the recorder for the next segment, keeping its buffer.
+    fn clear(&mut self) {
+        self.steps.clear();
+        self.stop = None;
+        self.last_state = None;
+    }
+}
+
 /// The right-hand side handed to ode_solvers: the plant in a fixed mode.
 struct Rhs<'a> {
     plant: &'a Plant,
@@ -253,6 +262,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     observer.set(t, &codes(plant, &p0, &y, &disc), plant, &p0, &y);
     let mut h_guess: f64 = 0.0;
     let mut next_event = 0usize;
+    let mut rec = Recorder::default();
 
     while t < t_end {
         if t_end - t <= 1e-9 * t_end.max(1.0) {
@@ -283,7 +293,8 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
                 t_stop = deadline;
             }
         }
-        let mut rec = Recorder::default();
+        // One recorder for all segments: its step buffer keeps its capacity (no regrowth).
+        rec.clear();
         let mut model = ContinuousOutputModel::default();
         let result = {
             let rhs = Rhs {

@@ -170,6 +170,8 @@ pub struct Point {
     pub copper_w: f64,
     pub winding_ohm: f64,
     pub battery_powers: BatteryPowers,
+    /// dV_RC/dt of the Li-ion RC branch, V/s.
+    pub v_rc_rate: f64,
     pub in_regulation: bool,
     pub band: TempBand,
     /// Input voltage the converter would see at its quiescent draw (what UVLO and sleep compare
@@ -427,7 +429,8 @@ impl Plant {
             resistance_ohm: r_w,
         };
         let band = self.band(bs.temp_c);
-        let term = self.battery.terminal(&bs);
+        let frozen = self.battery.freeze(&bs);
+        let term = frozen.terminal();
         let request = self.request(d, bs.temp_c, band, y[SOFT_START]);
         let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
             Fidelity::Fast => {
@@ -490,9 +493,7 @@ impl Plant {
             ((tau_op - bearing) / jc, -(tau_em + tau_fric) / js, 0.0, 0.0)
         };
 
-        let powers = self
-            .battery
-            .powers(net.battery_current_a, net.battery_v, &bs);
+        let powers = frozen.powers(net.battery_current_a, net.battery_v);
         let in_regulation = if self.has_converter() {
             d.enabled && !d.ov_shutdown && (!net.dropout || target_current <= 0.0)
         } else {
@@ -520,6 +521,7 @@ impl Plant {
             copper_w: net.generator_current_a * net.generator_current_a * r_w,
             winding_ohm: r_w,
             battery_powers: powers,
+            v_rc_rate: frozen.v_rc_rate(net.battery_current_a),
             in_regulation,
             band,
             idle_input_v,
@@ -707,7 +709,7 @@ impl Plant {
             .operator
             .w_prime_rate(p.operator_power_w.max(0.0), y[W_PRIME]);
         dy[SOC] = self.battery.soc_rate(ib, &bs);
-        dy[V_RC] = self.battery.v_rc_rate(ib, &bs);
+        dy[V_RC] = p.v_rc_rate;
         dy[BATTERY_TEMP] = self.battery.thermal().rate_k_per_s(
             p.battery_powers.heat_w(),
             bs.temp_c,

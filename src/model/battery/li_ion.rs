@@ -140,7 +140,7 @@ impl LiIonModel {
     /// dV_RC/dt = I/C1 − V_RC/(R1·C1).
     pub fn v_rc_rate(&self, i: f64, s: &BatteryState) -> f64 {
         let (_, r1, c1) = self.pack_rc(s.temp_c);
-        i / c1 - s.v_rc_v / (r1 * c1)
+        rc_branch_rate(i, s.v_rc_v, r1, c1)
     }
 
     /// Charge limit at battery temperature: N_s·V_cv, reduced in the warm band.
@@ -159,6 +159,11 @@ impl LiIonModel {
 }
 
 /// Charge-temperature band after the JEITA-style guideline.
+/// Rate of the Thevenin RC-branch voltage, dV_RC/dt = I/C1 − V_RC/(R1·C1), V/s (Plett 2015, ch. 2).
+pub fn rc_branch_rate(i: f64, v_rc_v: f64, r1_ohm: f64, c1_f: f64) -> f64 {
+    i / c1_f - v_rc_v / (r1_ohm * c1_f)
+}
+
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum TempBand {
     /// Below the minimum: no charge.

@@ -82,18 +82,23 @@ impl BatteryModel {
 
     /// A view of the terminal characteristic at fixed state, cheap to evaluate many times.
     pub fn terminal<'a>(&'a self, s: &BatteryState) -> Terminal<'a> {
-        match self {
-            BatteryModel::LiIon(m) => {
-                let (r0, _, _) = m.pack_rc(s.temp_c);
-                Terminal::Linear {
-                    rest_v: m.ocv_v(s.soc) + s.v_rc_v,
-                    r_ohm: r0,
-                }
-            }
-            BatteryModel::LeadAcid(m) => Terminal::Curve {
-                model: m,
-                state: *s,
-            },
+        self.freeze(s).terminal()
+    }
+
+    /// The state-dependent parameters (OCV, Thevenin R0, R1, C1 at the temperature) at one
+    /// instant, computed once so that one evaluation of the chain looks them up once.
+    pub fn freeze<'a>(&'a self, s: &BatteryState) -> Frozen<'a> {
+        let (r0_ohm, r1_ohm, c1_f) = match self {
+            BatteryModel::LiIon(m) => m.pack_rc(s.temp_c),
+            BatteryModel::LeadAcid(_) => (0.0, 0.0, 0.0),
+        };
+        Frozen {
+            model: self,
+            state: *s,
+            ocv_v: self.ocv_v(s.soc),
+            r0_ohm,
+            r1_ohm,
+            c1_f,
         }
     }
 
@@ -141,36 +146,12 @@ impl BatteryModel {
 
     /// dV_RC/dt, V/s (0 for lead-acid).
     pub fn v_rc_rate(&self, i: f64, s: &BatteryState) -> f64 {
-        match self {
-            BatteryModel::LiIon(m) => m.v_rc_rate(i, s),
-            BatteryModel::LeadAcid(_) => 0.0,
-        }
+        self.freeze(s).v_rc_rate(i)
     }
 
     /// Internal power flows at current `i` with terminal voltage `v`.
     pub fn powers(&self, i: f64, v: f64, s: &BatteryState) -> BatteryPowers {
-        let ocv = self.ocv_v(s.soc);
-        let eta = self.charge_efficiency(i, s);
-        let stored = ocv * if i > 0.0 { eta * i } else { i };
-        let coulombic = if i > 0.0 { ocv * (1.0 - eta) * i } else { 0.0 };
-        match self {
-            BatteryModel::LiIon(m) => {
-                let (r0, r1, _c1) = m.pack_rc(s.temp_c);
-                let ohmic = i * i * r0 + s.v_rc_v * s.v_rc_v / r1;
-                BatteryPowers {
-                    ohmic_w: ohmic,
-                    coulombic_loss_w: coulombic,
-                    stored_w: stored,
-                    rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / r1,
-                }
-            }
-            BatteryModel::LeadAcid(_) => BatteryPowers {
-                ohmic_w: (v - ocv) * i,
-                coulombic_loss_w: coulombic,
-                stored_w: stored,
-                rc_store_w: 0.0,
-            },
-        }
+        self.freeze(s).powers(i, v)
     }
 
     /// Energy held in the RC capacitance, J.
@@ -203,6 +184,70 @@ pub(crate) fn thermal_of(b: &Battery) -> Lumped {
     Lumped {
         heat_capacity_j_per_k: b.mass_kg * b.specific_heat_j_per_kg_k,
         conductance_w_per_k: b.heat_transfer_w_per_m2_k * b.surface_area_m2,
+    }
+}
+
+/// A battery at one instant: its state and the parameters that depend on it.
+#[derive(Debug, Clone, Copy)]
+pub struct Frozen<'a> {
+    model: &'a BatteryModel,
+    pub state: BatteryState,
+    /// Open-circuit voltage of the whole battery, V.
+    pub ocv_v: f64,
+    /// Li-ion pack series resistance, RC-branch resistance, Ω, and capacitance, F (0 for lead-acid).
+    pub r0_ohm: f64,
+    pub r1_ohm: f64,
+    pub c1_f: f64,
+}
+
+impl<'a> Frozen<'a> {
+    /// The terminal characteristic V(I) at this state.
+    pub fn terminal(&self) -> Terminal<'a> {
+        match self.model {
+            BatteryModel::LiIon(_) => Terminal::Linear {
+                rest_v: self.ocv_v + self.state.v_rc_v,
+                r_ohm: self.r0_ohm,
+            },
+            BatteryModel::LeadAcid(m) => Terminal::Curve {
+                model: m,
+                state: self.state,
+            },
+        }
+    }
+
+    /// dV_RC/dt = I/C1 − V_RC/(R1·C1), V/s (0 for lead-acid).
+    pub fn v_rc_rate(&self, i: f64) -> f64 {
+        match self.model {
+            BatteryModel::LiIon(_) => {
+                li_ion::rc_branch_rate(i, self.state.v_rc_v, self.r1_ohm, self.c1_f)
+            }
+            BatteryModel::LeadAcid(_) => 0.0,
+        }
+    }
+
+    /// Internal power flows at current `i` with terminal voltage `v`: stored OCV·η·I, the
+    /// coulombic loss OCV·(1 − η)·I, and the ohmic heat (Li-ion I²·R0 + V_RC²/R1; lead-acid the
+    /// over-voltage (V − OCV)·I).
+    pub fn powers(&self, i: f64, v: f64) -> BatteryPowers {
+        let s = &self.state;
+        let ocv = self.ocv_v;
+        let eta = self.model.charge_efficiency(i, s);
+        let stored = ocv * if i > 0.0 { eta * i } else { i };
+        let coulombic = if i > 0.0 { ocv * (1.0 - eta) * i } else { 0.0 };
+        match self.model {
+            BatteryModel::LiIon(_) => BatteryPowers {
+                ohmic_w: i * i * self.r0_ohm + s.v_rc_v * s.v_rc_v / self.r1_ohm,
+                coulombic_loss_w: coulombic,
+                stored_w: stored,
+                rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / self.r1_ohm,
+            },
+            BatteryModel::LeadAcid(_) => BatteryPowers {
+                ohmic_w: (v - ocv) * i,
+                coulombic_loss_w: coulombic,
+                stored_w: stored,
+                rc_store_w: 0.0,
+            },
+        }
     }
 }
 
