@@ -495,9 +495,9 @@ pub struct Solver {
 impl Default for Solver {
     fn default() -> Self {
         Self {
-            rtol: 1e-6,
+            rtol: 1e-4,
             atol: 1e-8,
-            max_step_s: 0.05,
+            max_step_s: 0.1,
             trace_interval_s: 0.1,
         }
     }

@@ -375,7 +375,10 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             h_guess = (last - prev).max(1e-6);
         }
 
-        // Trace samples and watched conditions over (t, t_valid].
+        // Trace samples and watched conditions over (t, t_valid]. Watched conditions are checked
+        // at every step end and every grid time (already evaluated for the trace), and each change
+        // is located between the two check points around it: a condition that comes and goes
+        // inside one long step is still caught when it holds at a grid time.
         let mut a = t;
         for step in rec.steps.iter() {
             let b = step.t.min(t_valid);
@@ -385,6 +388,10 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             sampler.sample_until(b, |tq| {
                 let yq = dense(tq);
                 let pq = plant.eval(tq, &yq, &disc);
+                if tq > a {
+                    watch(plant, &disc, &mut observer, a, tq, &yq, &pq, &dense);
+                    a = tq;
+                }
                 observer.touch(&pq, &yq);
                 row(plant, &pq, &yq, &disc)
             });
@@ -394,7 +401,9 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             } else {
                 (step.y, step.p)
             };
-            watch(plant, &disc, &mut observer, a, b, &yb, &pb, &dense);
+            if b > a {
+                watch(plant, &disc, &mut observer, a, b, &yb, &pb, &dense);
+            }
             observer.touch(&pb, &yb);
             a = b;
             if b >= t_valid {
