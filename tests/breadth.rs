@@ -4,6 +4,7 @@
 use std::path::{Path, PathBuf};
 
 use crankcharge::analysis::events::EventKind;
+use crankcharge::analysis::summary::Verdict;
 use crankcharge::analysis::trace::Mode;
 use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel};
 use crankcharge::scenario::demo::SETUPS;
@@ -218,7 +219,7 @@ fn nmc_demo_in_the_warm_band_has_a_lower_charge_limit() {
 
 #[test]
 fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
-    let slow = [("profile.cadence_scale", "0.7")];
+    let slow = [("profile.cadence_scale", "0.8")];
     let buck = run(&load(&setup_path("demo"), &slow), None, Fidelity::Fast);
     let bb = run(
         &load(&setup_path("demo-buck-boost"), &slow),
@@ -229,8 +230,20 @@ fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
         buck.summary.in_regulation_fraction,
         bb.summary.in_regulation_fraction,
     );
-    assert!(fb < 0.5, "the buck drops out at 0.7 × cadence: {fb}");
-    assert!(fbb > 0.9, "the buck-boost holds regulation: {fbb}");
+    assert!(fb < 0.5, "the buck drops out at 0.8 × cadence: {fb}");
+    // Below the battery the buck-boost still regulates; what it loses is its soft-start restarts
+    // when a ripple trough pulls the generator under its UVLO.
+    assert!(
+        fbb > 0.7,
+        "the buck-boost holds regulation most of the time: {fbb}"
+    );
+    assert!(fbb > fb + 0.25, "buck-boost {fbb} vs buck {fb}");
+    assert!(
+        bb.summary.charge_delivered_ah > buck.summary.charge_delivered_ah,
+        "and delivers more charge: {} vs {} Ah",
+        bb.summary.charge_delivered_ah,
+        buck.summary.charge_delivered_ah
+    );
     assert_eq!(bb.summary.topology, "buck_boost");
     // Regulating, it delivers the charge current while the input sits below the battery.
     let below = bb
@@ -252,6 +265,65 @@ fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
             r.duty
         );
     }
+}
+
+#[test]
+fn a_converter_that_keeps_restarting_is_not_counted_in_regulation() {
+    // Common practice: a charger in its soft-start ramp is not yet holding its set current or
+    // voltage; one that keeps locking out and restarting (hiccup) delivers only ramps, and a
+    // regulation figure must not call that regulated.
+    let sc = load(
+        &setup_path("demo-buck-boost"),
+        &[("profile.cadence_scale", "0.7")],
+    );
+    let s = run(&sc, Some(120.0), Fidelity::Fast);
+    // Each lock-out is over within the same instant here (the input recovers at once with the
+    // load gone, and the restart is immediate), so the restarts show as soft-start periods.
+    let ev = &s.result.events;
+    let restarts = ev
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("soft-start"))
+        .count();
+    let ramping: f64 = ev
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("soft-start"))
+        .map(|e| e.duration_s)
+        .sum();
+    let lost: f64 = ev
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss)
+        .map(|e| e.duration_s)
+        .sum();
+    assert!(
+        restarts > 100,
+        "the converter hiccups at 0.7 x cadence: {restarts} restarts"
+    );
+    assert!(
+        ramping > 30.0,
+        "most of the lost time is spent ramping: {ramping} s"
+    );
+    assert!(
+        (s.summary.regulation_loss_s - lost).abs() < 1e-6,
+        "regulation_loss_s {} is the sum of the periods {lost}",
+        s.summary.regulation_loss_s
+    );
+    // Thousands of located switching times must not open the energy ledger (each segment
+    // starts from an integrated state, not an interpolated one).
+    assert!(
+        s.summary.energy_balance_error < 1e-4,
+        "energy_balance_error {}",
+        s.summary.energy_balance_error
+    );
+    assert!(
+        s.summary.in_regulation_fraction < 0.5,
+        "in_regulation_fraction {}",
+        s.summary.in_regulation_fraction
+    );
+    assert_eq!(
+        s.summary.verdict,
+        Verdict::One("fails_regulation".to_string()),
+        "the verdict flags it"
+    );
 }
 
 #[test]

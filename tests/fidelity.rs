@@ -301,17 +301,30 @@ fn detailed_trace_matches_the_independent_radau_reference() {
             .unwrap_or_else(|| panic!("{GOLDEN_EVENTS}: no {kind}"))
     };
     let lockout = periods(&session.result.events, EventKind::Lockout);
-    let loss = periods(&session.result.events, EventKind::RegulationLoss);
     assert_eq!(lockout.len(), 1, "lockout periods: {lockout:?}");
-    assert_eq!(
-        loss.len(),
-        2,
-        "regulation-loss periods (lockout, then dropout): {loss:?}"
-    );
+    // Regulation is lost from the start: locked out, then the soft-start ramp, then the duty at
+    // its limit until the crank is up to speed; one period per reason, back to back.
+    let mut loss: Vec<&Event> = session
+        .result
+        .events
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss)
+        .collect();
+    loss.sort_by(|a, b| a.start_s.total_cmp(&b.start_s));
+    let reasons: Vec<&str> = loss.iter().map(|e| e.detail.as_str()).collect();
+    assert_eq!(loss.len(), 3, "regulation-loss periods: {reasons:?}");
+    assert!(reasons[0].contains("locked out"), "{reasons:?}");
+    assert!(reasons[1].contains("soft-start"), "{reasons:?}");
+    assert!(reasons[2].contains("duty at its limit"), "{reasons:?}");
+    assert_eq!(loss[0].start_s, 0.0);
+    for w in loss.windows(2) {
+        assert!((w[1].start_s - w[0].end_s).abs() < 1e-9, "{reasons:?}");
+    }
+    let dropout = loss[2];
     let pairs = [
         ("UVLO release (end of lockout)", lockout[0].1, at("enable")),
-        ("dropout start", loss[1].0, at("dropout_start")),
-        ("dropout end", loss[1].1, at("dropout_end")),
+        ("dropout start", dropout.start_s, at("dropout_start")),
+        ("dropout end", dropout.end_s, at("dropout_end")),
     ];
     for (what, got, want) in pairs {
         eprintln!(
@@ -387,8 +400,13 @@ fn shipped_solver_settings_are_converged_on_every_shipped_setup() {
             shipped.overcharge_s,
             tight.overcharge_s
         );
+        // The peak of the 0.1-s trace: a ripple-driven terminal voltage sampled on a grid, so a
+        // little looser than the integrated figures.
         let vmax = (shipped.max_battery_v - tight.max_battery_v).abs();
-        assert!(vmax < 0.01, "{name}: max_battery_v differs by {vmax} V");
+        assert!(
+            vmax < 2e-3 * tight.max_battery_v,
+            "{name}: max_battery_v differs by {vmax} V"
+        );
         assert!(
             shipped.energy_balance_error < 1e-3,
             "{name}: ledger {}",

@@ -25,6 +25,24 @@ pub const WATCHED: [EventKind; 7] = [
 /// Codes of every watched condition at one point (0 = not present).
 pub type Codes = [u8; WATCHED.len()];
 
+/// Why regulation is lost while the operator cranks: 0 held (or not cranking, or no converter),
+/// 1 dropout (duty at its limit or the pass element out of headroom), 2 locked out or shut down,
+/// 3 restarting (soft-start ramp). Each reason is a period of its own, so events.csv says which.
+fn regulation_code(conv: bool, p: &Point, d: &Discrete) -> u8 {
+    if !conv || !p.cranking || p.in_regulation {
+        0
+    } else if !d.enabled || d.ov_shutdown {
+        2
+    } else if p.net.dropout {
+        1
+    } else if p.restarting {
+        3
+    } else {
+        // Not regulating for a reason none of the above names (kept apart, never hidden).
+        4
+    }
+}
+
 /// Evaluates every watched condition at a point.
 pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Codes {
     let conv = plant.has_converter();
@@ -37,7 +55,7 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Codes {
     };
     let w0 = plant.operator.w_prime_j;
     [
-        u8::from(conv && p.cranking && !p.in_regulation),
+        regulation_code(conv, p, d),
         u8::from(conv && p.cranking && !d.enabled),
         u8::from(p.net.battery_v > p.charge_limit_v + OVERCHARGE_MARGIN_V),
         u8::from(conv && p.net.input_v > plant.charger.input_overvoltage_v),
@@ -66,26 +84,25 @@ fn peak_of(kind: EventKind, p: &Point, y: &State) -> (f64, &'static str, bool) {
 
 fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
     match kind {
-        EventKind::RegulationLoss => {
-            if p.net.dropout {
-                match plant.charger.topology {
-                    Topology::Linear => format!(
-                        "input short of the {:.2} V headroom the pass element needs",
-                        plant.linear.dropout_v
-                    ),
-                    Topology::BuckBoost => format!(
-                        "duty at its limit {:.2}: input too low for the charge current",
-                        plant.buck_boost.max_duty
-                    ),
-                    _ => format!(
-                        "duty at its limit {:.2}: input too low for the charge current",
-                        plant.buck.max_duty
-                    ),
-                }
-            } else {
-                "converter locked out or shut down while cranking".to_string()
-            }
-        }
+        EventKind::RegulationLoss => match code {
+            1 => match plant.charger.topology {
+                Topology::Linear => format!(
+                    "input short of the {:.2} V headroom the pass element needs",
+                    plant.linear.dropout_v
+                ),
+                Topology::BuckBoost => format!(
+                    "duty at its limit {:.2}: input too low for the charge current",
+                    plant.buck_boost.max_duty
+                ),
+                _ => format!(
+                    "duty at its limit {:.2}: input too low for the charge current",
+                    plant.buck.max_duty
+                ),
+            },
+            2 => "converter locked out or shut down while cranking".to_string(),
+            3 => "converter restarting: soft-start ramp below the set point".to_string(),
+            _ => "converter not holding its set point".to_string(),
+        },
         EventKind::Lockout => format!(
             "input below UVLO (on {:.2} V, off {:.2} V)",
             plant.charger.uvlo_on_v, plant.charger.uvlo_off_v

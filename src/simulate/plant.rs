@@ -173,6 +173,8 @@ pub struct Point {
     /// dV_RC/dt of the Li-ion RC branch, V/s.
     pub v_rc_rate: f64,
     pub in_regulation: bool,
+    /// The converter is enabled but still in its soft-start ramp.
+    pub restarting: bool,
     pub band: TempBand,
     /// Input voltage the converter would see at its quiescent draw (what UVLO and sleep compare
     /// before enabling, so that enabling cannot at once undo itself), V.
@@ -494,8 +496,11 @@ impl Plant {
         };
 
         let powers = frozen.powers(net.battery_current_a, net.battery_v);
+        // Regulating means holding the set point: locked out, shut down, in dropout, or still
+        // ramping up after a (re)start, a charger is not. A converter that keeps restarting
+        // (hiccup) spends its time in the soft-start ramp and is counted out of regulation there.
         let in_regulation = if self.has_converter() {
-            d.enabled && !d.ov_shutdown && (!net.dropout || target_current <= 0.0)
+            d.enabled && !d.ov_shutdown && d.soft_done && (!net.dropout || target_current <= 0.0)
         } else {
             true
         };
@@ -523,6 +528,7 @@ impl Plant {
             battery_powers: powers,
             v_rc_rate: frozen.v_rc_rate(net.battery_current_a),
             in_regulation,
+            restarting: self.has_converter() && d.enabled && !d.soft_done,
             band,
             idle_input_v,
             fast_rates,
