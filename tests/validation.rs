@@ -1509,7 +1509,8 @@ fn energy_balance_every_shipped_setup_steady_120_s() {
             + l.battery_ohmic_j
             + l.battery_coulombic_j
             + l.stored_chemical_j
-            + l.rc_change_j;
+            + l.rc_change_j
+            + l.device_loss_j;
         // Common practice: conservation of energy (the ledger terms, summed here, equal the work).
         assert!(
             (sum - l.operator_work_j).abs() < 1e-3 * l.operator_work_j,

@@ -78,6 +78,8 @@ fn trace_record(r: &TraceRow) -> [String; TRACE_COLUMNS.len()] {
         f(r.w_prime_balance_j, 2),
         f(r.winding_temp_c, 4),
         u8::from(r.in_regulation).to_string(),
+        f(r.bus_v, 6),
+        f(r.bus_current_a, 6),
     ]
 }
 
