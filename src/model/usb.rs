@@ -155,3 +155,68 @@ impl BusPoint {
         self.usb && self.device_demand_a > 0.0 && self.bus_current_a < self.device_demand_a - 1e-9
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn port() -> UsbModel {
+        UsbModel {
+            bus_v: 5.0,
+            port_current_a: 1.5,
+            band_low_v: 4.75,
+            band_high_v: 5.25,
+            device_current_a: 1.0,
+            device_dropout_v: 0.3,
+            device_pass_ohm: 0.3,
+            cutoff_v: 4.4,
+            reconnect_v: 4.6,
+            reconnect_delay_s: 2.0,
+        }
+    }
+
+    #[test]
+    fn band_includes_its_edges_only() {
+        let u = port();
+        assert!(u.in_band(4.75) && u.in_band(5.0) && u.in_band(5.25));
+        assert!(!u.in_band(4.7499) && !u.in_band(5.2501));
+    }
+
+    #[test]
+    fn device_draws_its_demand_with_headroom_and_the_pass_line_without() {
+        let u = port();
+        let (rest, r) = (3.7, 0.04);
+        let cell = Terminal::Linear {
+            rest_v: rest,
+            r_ohm: r,
+        };
+        // Headroom: (5 − 3.7)/(0.3 + 0.04) A would exceed the 1 A demand, so the demand flows.
+        assert_eq!(u.device_current_a(5.0, 1.0, &cell), (1.0, 0.0));
+        // Pass element fully on: I = (V_bus − V_rest)/(R_pass + R_cell).
+        let (i, s) = u.device_current_a(3.9, 1.0, &cell);
+        assert!((i - (3.9 - rest) / (0.3 + r)).abs() < 1e-12);
+        assert!((s - 1.0 / (0.3 + r)).abs() < 1e-12);
+        // Below the cell the device passes nothing (no back-feed); no demand, no current.
+        assert_eq!(u.device_current_a(3.5, 1.0, &cell), (0.0, 0.0));
+        assert_eq!(u.device_current_a(5.0, 0.0, &cell), (0.0, 0.0));
+        // The bus at which the fully-on device draws I is the inverse of that line.
+        let v = u.bus_for_current_v(0.5, &cell);
+        assert!((v - (rest + 0.5 * (r + 0.3))).abs() < 1e-12);
+    }
+
+    #[test]
+    fn device_side_books_the_pass_element_heat() {
+        let cell = Terminal::Linear {
+            rest_v: 3.7,
+            r_ohm: 0.04,
+        };
+        let (bus, i, v) = BusPoint::device(5.0, 1.0, 1.0, false, &cell);
+        assert_eq!(i, 1.0);
+        assert!((v - 3.74).abs() < 1e-12);
+        // P_pass = I·(V_bus − V_cell).
+        assert!((bus.device_loss_w - (5.0 - 3.74)).abs() < 1e-12);
+        assert!(!bus.device_limited());
+        let (short, _, _) = BusPoint::device(4.0, 0.5, 1.0, false, &cell);
+        assert!(short.device_limited());
+    }
+}

@@ -196,3 +196,119 @@ pub fn off(src: &Source, cell: &Terminal) -> (NetworkPoint, BusPoint) {
     };
     cell_side(p, 0.0, cell)
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::model::converter::{BuckBoostModel, LinearModel};
+    use crate::model::diode::DiodeModel;
+    use crate::model::generator::GeneratorModel;
+
+    fn generator() -> GeneratorModel {
+        GeneratorModel {
+            ke_v_s_per_rad: 0.1,
+            resistance_20c_ohm: 1.5,
+            inductance_h: 1e-3,
+            inertia_kg_m2: 6e-5,
+            brush_drop_v: 0.0,
+            winding_heat_capacity_j_per_k: 60.0,
+            winding_to_ambient_w_per_k: 0.8,
+        }
+    }
+
+    fn buck() -> BuckModel {
+        BuckModel {
+            max_duty: 0.95,
+            switch_drop_v: 0.0,
+            switch_resistance_ohm: 0.08,
+            catch_drop_v: 0.4,
+            inductor_resistance_ohm: 0.05,
+            inductance_h: 22e-6,
+            switching_frequency_hz: 150e3,
+            switch_transition_s: 40e-9,
+            quiescent_current_a: 0.003,
+        }
+    }
+
+    fn port() -> UsbModel {
+        UsbModel {
+            bus_v: 5.0,
+            port_current_a: 1.5,
+            band_low_v: 4.75,
+            band_high_v: 5.25,
+            device_current_a: 1.0,
+            device_dropout_v: 0.3,
+            device_pass_ohm: 0.3,
+            cutoff_v: 4.4,
+            reconnect_v: 4.6,
+            reconnect_delay_s: 2.0,
+        }
+    }
+
+    /// Solves at EMF `emf_v` with the given port limit and demand; returns the point and the bus.
+    fn at(emf_v: f64, limit_a: f64, demand_a: f64) -> (NetworkPoint, BusPoint) {
+        let g = generator();
+        let d = DiodeModel::Ideal {
+            forward_v: 0.4,
+            series_resistance_ohm: 0.0,
+        };
+        let b = buck();
+        let cfg: crate::scenario::setup::Converter =
+            ron::from_str("(topology: buck_boost)").expect("converter defaults");
+        let bb = BuckBoostModel::from_config(&cfg);
+        let lin = LinearModel {
+            dropout_v: 0.3,
+            pass_resistance_ohm: 0.3,
+            quiescent_current_a: 0.0,
+        };
+        let conv = Converters {
+            topology: Topology::Buck,
+            buck: &b,
+            buck_boost: &bb,
+            linear: &lin,
+        };
+        let src = Source {
+            generator: &g,
+            diode: &d,
+            emf_v,
+            resistance_ohm: 1.5,
+        };
+        let cell = Terminal::Linear {
+            rest_v: 3.7,
+            r_ohm: 0.04,
+        };
+        solve(&src, &conv, &port(), (5.0, limit_a), demand_a, &cell)
+    }
+
+    #[test]
+    fn a_strong_input_holds_the_set_point_and_the_device_draws_its_demand() {
+        let (p, bus) = at(12.0, 1.5, 1.0);
+        assert!(!p.dropout);
+        assert!((bus.bus_v - 5.0).abs() < 1e-12);
+        assert!((bus.bus_current_a - 1.0).abs() < 1e-9);
+        assert!((p.battery_current_a - 1.0).abs() < 1e-9);
+        assert!((p.battery_v - (3.7 + 0.04 * p.battery_current_a)).abs() < 1e-12);
+    }
+
+    #[test]
+    fn a_port_limit_below_the_demand_pulls_the_bus_onto_the_device_pass_line() {
+        let (p, bus) = at(12.0, 0.5, 1.0);
+        assert!((bus.bus_current_a - 0.5).abs() < 1e-9);
+        // V_bus = V_rest + I·(R_cell + R_pass).
+        assert!((bus.bus_v - (3.7 + 0.5 * 0.34)).abs() < 1e-9);
+        assert!(p.dropout, "the cell gets less than it asks");
+        assert!(!bus.converter_saturated);
+    }
+
+    #[test]
+    fn power_balances_through_converter_and_device_in_dropout() {
+        let (p, bus) = at(7.0, 1.5, 1.0);
+        assert!(bus.converter_saturated && bus.bus_v < 5.0);
+        // Generator side = converter losses + bus power; bus power = cell power + pass-element heat.
+        let p_in = p.input_v * p.generator_current_a;
+        let p_bus = bus.bus_v * bus.bus_current_a;
+        assert!((p_in - p.losses.total_w() - p_bus).abs() < 1e-9 * p_in);
+        let p_cell = p.battery_v * p.battery_current_a;
+        assert!((p_bus - p_cell - bus.device_loss_w).abs() < 1e-12);
+    }
+}

@@ -133,7 +133,8 @@ impl Plant {
     /// Soft-start ramps the bus set point (not the current limit), so the bus rises without
     /// overshoot. At light load the converter skips pulses: below [`SKIP_FRACTION`] of the port
     /// limit the duty shrinks in proportion to the current reference, to 0 when the voltage loop
-    /// asks for none (an unloaded bus cannot sink charge, so nothing may keep pumping it up).
+    /// asks for none (an unloaded bus cannot sink charge, so nothing may keep pumping it up); the
+    /// controller's quiescent current still flows then.
     fn usb_detailed(
         &self,
         u: &UsbModel,
@@ -183,7 +184,18 @@ impl Plant {
                         duty: out.duty,
                     },
                 };
-                let (p, rates) = circuit::evaluate_with_sink(src, &self.circuit, drive, &x, sink);
+                let (mut p, mut rates) =
+                    circuit::evaluate_with_sink(src, &self.circuit, drive, &x, sink);
+                if out.duty <= 0.0 {
+                    // Skipping every pulse, the running controller still draws its quiescent
+                    // current from the input (the averaged stage books it only while switching).
+                    let iq = match self.charger.topology {
+                        Topology::BuckBoost => self.buck_boost.quiescent_current_a,
+                        _ => self.buck.quiescent_current_a,
+                    };
+                    rates.input -= iq / self.circuit.input_capacitance_f;
+                    p.losses.quiescent_w += x.input_v * iq;
+                }
                 (
                     p,
                     rates,
