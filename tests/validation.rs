@@ -951,6 +951,7 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         cutoff_v: 4.4,
         reconnect_v: 4.6,
         reconnect_delay_s: 2.0,
+        ramp_s: 0.0,
     };
     let cell = Terminal::Linear {
         rest_v: rest,

@@ -32,6 +32,8 @@ pub struct UsbModel {
     pub reconnect_v: f64,
     /// Least off-time before a reconnection, s.
     pub reconnect_delay_s: f64,
+    /// Time the device ramps its draw up over after attaching, s (0: at once).
+    pub ramp_s: f64,
 }
 
 impl UsbModel {
@@ -48,6 +50,17 @@ impl UsbModel {
             cutoff_v: u.device_cutoff_v,
             reconnect_v: u.device_reconnect_v,
             reconnect_delay_s: u.device_reconnect_delay_s,
+            ramp_s: u.device_ramp_s,
+        }
+    }
+
+    /// Fraction of its demand the device allows itself `since_s` after attaching: a linear ramp
+    /// from 0 to 1 over `ramp_s` (its charger's soft start, which also spares the bus a step).
+    pub fn ramp_fraction(&self, since_s: f64) -> f64 {
+        if self.ramp_s <= 0.0 {
+            1.0
+        } else {
+            (since_s / self.ramp_s).clamp(0.0, 1.0)
         }
     }
 
@@ -172,6 +185,7 @@ mod tests {
             cutoff_v: 4.4,
             reconnect_v: 4.6,
             reconnect_delay_s: 2.0,
+            ramp_s: 0.5,
         }
     }
 

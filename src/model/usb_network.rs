@@ -242,6 +242,7 @@ mod tests {
             cutoff_v: 4.4,
             reconnect_v: 4.6,
             reconnect_delay_s: 2.0,
+            ramp_s: 0.5,
         }
     }
 

@@ -493,6 +493,10 @@ pub struct UsbPort {
     /// default 2.
     #[serde(default = "default_device_reconnect_delay")]
     pub device_reconnect_delay_s: f64,
+    /// Time the device takes to ramp its draw from zero to its demand after attaching, s
+    /// (0 … 10; 0: at once); default 0.5.
+    #[serde(default = "default_device_ramp")]
+    pub device_ramp_s: f64,
     /// The device ends its charge when its CV current falls below this, A (0 … 50); default C/10
     /// of its cell.
     #[serde(default)]
@@ -522,6 +526,9 @@ fn default_device_reconnect() -> f64 {
 }
 fn default_device_reconnect_delay() -> f64 {
     2.0
+}
+fn default_device_ramp() -> f64 {
+    0.5
 }
 fn default_band_low() -> f64 {
     4.75

@@ -471,6 +471,7 @@ fn usb(c: &mut Checker, s: &Setup, u: &UsbPort) {
         0.1,
         60.0,
     );
+    c.range("usb.device_ramp_s", u.device_ramp_s, 0.0, 10.0);
     c.opt_range(
         "usb.device_termination_current_a",
         u.device_termination_current_a,

@@ -245,6 +245,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         disabled_at_s: f64::NEG_INFINITY,
         device_on: false,
         device_off_at_s: f64::NEG_INFINITY,
+        device_on_at_s: f64::NEG_INFINITY,
         device_cutoffs: 0,
     };
     let mut y = y0;

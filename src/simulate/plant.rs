@@ -66,6 +66,8 @@ pub struct Discrete {
     pub device_on: bool,
     /// USB port: when the device last cut itself off, s (−∞ before the first time).
     pub device_off_at_s: f64,
+    /// USB port: when the device last attached, s (its draw ramps up from there).
+    pub device_on_at_s: f64,
     /// USB port: cut-offs so far.
     pub device_cutoffs: u32,
 }
@@ -453,7 +455,7 @@ impl Plant {
         let usb_eval = self
             .usb
             .as_ref()
-            .map(|u| self.usb_network(u, &src, request, &term, y, d));
+            .map(|u| self.usb_network(u, &src, (t, request), &term, y, d));
         let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
             _ if self.usb.is_some() => usb_eval.map_or_else(Default::default, |u| u.electrical),
             Fidelity::Fast => {

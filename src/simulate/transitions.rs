@@ -203,6 +203,9 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
             d.device_off_at_s = t;
             d.device_cutoffs += 1;
         }
-        Transition::DeviceReconnect => d.device_on = true,
+        Transition::DeviceReconnect => {
+            d.device_on = true;
+            d.device_on_at_s = t;
+        }
     }
 }

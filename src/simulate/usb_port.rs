@@ -73,13 +73,14 @@ pub fn usb_gains(setup: &Setup, buck: &BuckModel, u: &UsbModel) -> ControllerGai
 }
 
 impl Plant {
-    /// The network with a USB port at the plant's fidelity. The device asks for its CC limit, or
-    /// the current that holds its cell at the CV voltage, while it is attached and not holding.
+    /// The network with a USB port at the plant's fidelity at time `t`. The device asks for its CC
+    /// limit, or the current that holds its cell at the CV voltage, while it is attached and not
+    /// holding, ramped up over its first `ramp_s` after attaching.
     pub(super) fn usb_network(
         &self,
         u: &UsbModel,
         src: &Source,
-        r: Request,
+        (t, r): (f64, Request),
         cell: &Terminal,
         y: &State,
         d: &Discrete,
@@ -92,7 +93,12 @@ impl Plant {
                 ..
             } if d.device_on => {
                 let i_cv = cell.current_at(v_set).max(0.0);
-                (cc_limit_a.min(i_cv), i_cv < cc_limit_a)
+                let ramp = u.ramp_fraction(t - d.device_on_at_s);
+                // In CV only once ramped up: a ramping draw is not a taper to terminate on.
+                (
+                    ramp * cc_limit_a.min(i_cv),
+                    i_cv < cc_limit_a && ramp >= 1.0,
+                )
             }
             _ => (0.0, false),
         };
@@ -115,6 +121,32 @@ impl Plant {
                 }
             }
             Fidelity::Detailed => self.usb_detailed(u, src, r, cell, y, (demand, cv)),
+        }
+    }
+
+    /// DCM duty for `current_a` minus the CCM feed-forward duty the controller uses (both at the
+    /// present input and bus voltages); 0 in CCM.
+    fn dcm_duty_offset(&self, x: &FastStates, current_a: f64) -> f64 {
+        let (v_in, v_o) = (x.input_v, x.output_v);
+        match self.charger.topology {
+            Topology::BuckBoost => {
+                let bb = &self.buck_boost;
+                let d_ss = bb.ccm_duty(v_in, v_o.max(0.0), current_a);
+                if !d_ss.is_finite() || current_a <= 0.0 {
+                    return 0.0;
+                }
+                let d_ff = d_ss.clamp(0.0, bb.max_duty);
+                bb.reported_duty(v_in, current_a, d_ff).0 - d_ff
+            }
+            _ => {
+                let b = &self.buck;
+                let den = v_in - b.switch_drop_v + b.catch_drop_v;
+                if den <= 0.0 || current_a <= 0.0 {
+                    return 0.0;
+                }
+                let d_ff = ((v_o + b.catch_drop_v) / den).clamp(0.0, b.max_duty);
+                b.reported_duty(v_in, v_o, current_a, d_ff).0 - d_ff
+            }
         }
     }
 
@@ -165,12 +197,21 @@ impl Plant {
                     current_integrator: y[CTRL_I],
                     input_floor_v: None,
                 };
-                let mut out = match self.charger.topology {
+                let control = |input: &ControlInput| match self.charger.topology {
                     Topology::BuckBoost => {
-                        controller::control_buck_boost(gains, &self.buck_boost, &input)
+                        controller::control_buck_boost(gains, &self.buck_boost, input)
                     }
-                    _ => controller::control(gains, &self.buck, &input),
+                    _ => controller::control(gains, &self.buck, input),
                 };
+                // Light loads run in DCM, where the CCM feed-forward duty is far too large: the
+                // duty that carries the current reference in DCM replaces it (passed as an offset
+                // of the current integrator, as the load current is of the voltage integrator).
+                let first = control(&input);
+                let offset = self.dcm_duty_offset(&x, first.current_ref_a);
+                let mut out = control(&ControlInput {
+                    current_integrator: input.current_integrator + offset,
+                    ..input
+                });
                 let skip = (out.current_ref_a / (SKIP_FRACTION * u.port_current_a)).clamp(0.0, 1.0);
                 out.duty *= skip;
                 out.saturated &= skip >= 1.0;
