@@ -100,7 +100,9 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
     if let Some(u) = &plant.usb {
         match (kind, code) {
             (EventKind::RegulationLoss, 2) => {
-                let why = if p.bus.converter_saturated {
+                let why = if p.bus.bus_v > u.band_high_v {
+                    format!("above it; set point {:.2} V", u.bus_v)
+                } else if p.bus.converter_saturated {
                     "duty at its limit: input too low to hold the bus".to_string()
                 } else if p.bus.bus_current_a + 1e-9 >= u.port_current_a {
                     format!("port current limit {:.2} A reached", u.port_current_a)
