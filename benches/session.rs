@@ -43,6 +43,16 @@ fn main() {
             fidelity: Fidelity::Detailed,
             duration_s: if quick { 2.0 } else { 10.0 },
         },
+        Case {
+            setup: "usb-phone",
+            fidelity: Fidelity::Fast,
+            duration_s: 600.0,
+        },
+        Case {
+            setup: "usb-phone",
+            fidelity: Fidelity::Detailed,
+            duration_s: if quick { 2.0 } else { 10.0 },
+        },
     ];
     println!(
         "{:<18} {:<9} {:>9} {:>10} {:>10} {:>9} {:>12} {:>9} {:>12}",

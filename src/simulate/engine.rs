@@ -97,6 +97,8 @@ pub struct Ledger {
     /// Change of the energy in inductances and capacitors (detailed fidelity), J.
     pub field_change_j: f64,
     pub charge_as: f64,
+    /// Heat in a USB device's charger between bus and cell, J (0 for a battery output).
+    pub device_loss_j: f64,
 }
 
 impl Ledger {
@@ -113,7 +115,8 @@ impl Ledger {
             + self.battery_coulombic_j
             + self.stored_chemical_j
             + self.rc_change_j
-            + self.field_change_j;
+            + self.field_change_j
+            + self.device_loss_j;
         (self.operator_work_j - out).abs() / self.operator_work_j.abs().max(1.0)
     }
 }
@@ -249,6 +252,10 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         engaged: true,
         soft_done: plant.charger.soft_start_s <= 0.0,
         disabled_at_s: f64::NEG_INFINITY,
+        device_on: false,
+        device_off_at_s: f64::NEG_INFINITY,
+        device_on_at_s: f64::NEG_INFINITY,
+        device_cutoffs: 0,
     };
     let mut y = y0;
     let mut t = 0.0;
@@ -658,6 +665,9 @@ fn mode_of(plant: &Plant, p: &Point, d: &Discrete) -> Mode {
     if !d.enabled || d.ov_shutdown {
         return Mode::Lockout;
     }
+    if plant.usb.is_some() && !d.device_on && d.soft_done {
+        return Mode::DeviceOff;
+    }
     if d.stage == Stage::Done {
         return Mode::Done;
     }
@@ -691,7 +701,7 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         generator_current_a: p.net.generator_current_a,
         input_v: p.net.input_v,
         duty: p.net.duty,
-        output_v: p.net.battery_v,
+        output_v: p.bus.bus_v,
         battery_v: p.net.battery_v,
         battery_current_a: p.net.battery_current_a,
         soc: y[SOC],
@@ -703,6 +713,8 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         w_prime_balance_j: y[W_PRIME],
         winding_temp_c: y[WINDING_TEMP],
         in_regulation: p.in_regulation,
+        bus_v: p.bus.bus_v,
+        bus_current_a: p.bus.bus_current_a,
     }
 }
 
@@ -726,6 +738,7 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         rc_change_j: plant.battery.rc_energy_j(&b1) - plant.battery.rc_energy_j(&b0),
         field_change_j: plant.field_energy_j(y) - plant.field_energy_j(y0),
         charge_as: y[Q_BATTERY],
+        device_loss_j: y[E_DEVICE],
     }
 }
 

@@ -5,5 +5,6 @@ pub mod observe;
 pub mod plant;
 pub mod state;
 pub mod transitions;
+pub mod usb_port;
 
 pub use engine::{simulate, Fidelity, SimError, SimOptions, SimResult};
