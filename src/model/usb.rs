@@ -169,24 +169,30 @@ impl BusPoint {
     }
 }
 
+/// A 5 V port with a 1 A phone, the values the unit tests of the USB modules share.
+#[cfg(test)]
+pub(crate) fn test_port() -> UsbModel {
+    UsbModel {
+        bus_v: 5.0,
+        port_current_a: 1.5,
+        band_low_v: 4.75,
+        band_high_v: 5.25,
+        device_current_a: 1.0,
+        device_dropout_v: 0.3,
+        device_pass_ohm: 0.3,
+        cutoff_v: 4.4,
+        reconnect_v: 4.6,
+        reconnect_delay_s: 2.0,
+        ramp_s: 0.5,
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
 
     fn port() -> UsbModel {
-        UsbModel {
-            bus_v: 5.0,
-            port_current_a: 1.5,
-            band_low_v: 4.75,
-            band_high_v: 5.25,
-            device_current_a: 1.0,
-            device_dropout_v: 0.3,
-            device_pass_ohm: 0.3,
-            cutoff_v: 4.4,
-            reconnect_v: 4.6,
-            reconnect_delay_s: 2.0,
-            ramp_s: 0.5,
-        }
+        test_port()
     }
 
     #[test]
