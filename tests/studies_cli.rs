@@ -692,6 +692,37 @@ fn check_json_is_valid_and_its_figures_follow_the_files() {
 }
 
 #[test]
+fn check_counts_the_input_floor_in_its_regulation_cadences() {
+    // A charger that trims its current to keep its input above a floor only holds its full
+    // current where the input stays above the floor at that current: a higher floor needs a
+    // faster crank, and the first figure can never be below the cadence whose open circuit
+    // reaches the floor (the input is the EMF less the source drops).
+    let wd = WorkDir::new();
+    let figures = |sets: &[&str]| -> (f64, f64) {
+        let mut args = vec!["check", "--json"];
+        for s in sets {
+            args.extend(["--set", s]);
+        }
+        let v: Value = serde_json::from_str(&run_ok(&wd, &args)).expect("JSON");
+        (
+            num(&v, "converter.regulation_cadence_at_start_rpm"),
+            num(&v, "generator.open_circuit_v_per_crank_rpm"),
+        )
+    };
+    let (none, v_per_rpm) = figures(&[]);
+    let (low, _) = figures(&["converter.input_floor_v=10.5"]);
+    let (f14, _) = figures(&["converter.input_floor_v=14"]);
+    let (f16, _) = figures(&["converter.input_floor_v=16"]);
+    assert!(
+        (low - none).abs() < 0.01,
+        "a floor at UVLO-off changes nothing: {low} vs {none}"
+    );
+    assert!(f14 > none + 1.0, "14 V floor {f14} vs none {none}");
+    assert!(f16 > f14 + 1.0, "16 V floor {f16} vs 14 V {f14}");
+    assert!(f16 >= 16.0 / v_per_rpm, "{f16} rpm vs open circuit at 16 V");
+}
+
+#[test]
 fn check_prints_figures_and_the_cautions() {
     let wd = WorkDir::new();
     let out = run_ok(&wd, &["check"]);

@@ -228,18 +228,27 @@ impl Statics<'_> {
         network::solve(&src, load, &term)
     }
 
+    /// The charger asking for `target_a`, trimming it to hold its input floor when it has one.
     fn buck(&self, target_a: f64) -> Load<'_> {
-        network::Converters {
+        let conv = network::Converters {
             topology: self.plant.charger.topology,
             buck: &self.plant.buck,
             buck_boost: &self.plant.buck_boost,
             linear: &self.plant.linear,
+        };
+        match self.plant.charger.input_floor_v {
+            Some(floor_v) => Load::Floored {
+                conv,
+                target_a,
+                floor_v,
+            },
+            None => conv.charging(target_a),
         }
-        .charging(target_a)
     }
 
     /// Whether the converter runs and holds `target_a` at a cadence (UVLO released by the open
-    /// circuit, input above the UVLO off threshold under load, not in dropout).
+    /// circuit, input above the UVLO off threshold under load, not in dropout, and not trimmed
+    /// below the target to hold an input floor).
     fn holds(&self, crank_rpm: f64, target_a: f64, bs: &BatteryState) -> bool {
         let c = &self.plant.charger;
         let oc = self.emf_v(crank_rpm);
@@ -247,7 +256,7 @@ impl Statics<'_> {
             return false;
         }
         let p = self.solve(crank_rpm, self.buck(target_a), bs);
-        !p.dropout && p.input_v >= c.uvlo_off_v
+        !p.dropout && p.input_v >= c.uvlo_off_v && p.battery_current_a >= target_a * (1.0 - 1e-9)
     }
 
     /// Steady torque the crank must give at a cadence for a generator current, N·m.
