@@ -1,7 +1,8 @@
-//! The integrator loop: Dopri5 (ode_solvers) on segments between events. Each accepted step is
-//! checked for a due mode change; the switching time is located by bisection on the solver's
-//! continuous output and the next segment restarts there, so no step crosses an event blindly.
-//! The trace is sampled from the continuous output on a fixed grid, independent of the steps.
+//! The integrator loop: segments between events, Dopri5 (ode_solvers) for the fast fidelity and
+//! Radau5 (differential-equations, see [`Method`]) for the detailed one. Each accepted step is
+//! checked (finite, physical, a due mode change); a switching time is located by bisection on
+//! the solver's dense output and the next segment restarts there, so no step crosses an event
+//! blindly. The trace is sampled from the dense output on a fixed grid, independent of the steps.
 
 use std::cell::Cell;
 
@@ -15,18 +16,75 @@ use crate::units::rad_s_to_rpm;
 use super::observe::{codes, Codes, Observer};
 use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
+use super::stiff::{self, Attempt, Implicit, Limits, StiffRhs};
 use super::transitions::{apply, due, Transition};
 
-/// Longest segment between restarts, s (bounds the memory of the continuous output): the fast
-/// fidelity takes steps of milliseconds, the detailed one of microseconds.
+/// Longest Dopri5 segment between restarts, s: the segment's continuous output is kept in memory
+/// until the segment is walked, so it is bounded. The fast fidelity steps in milliseconds; Dopri5
+/// on the detailed network steps in microseconds (benchmark only), hence the shorter bound.
 const MAX_SEGMENT_FAST_S: f64 = 10.0;
-const MAX_SEGMENT_DETAILED_S: f64 = 0.05;
+const MAX_SEGMENT_EXPLICIT_DETAILED_S: f64 = 0.05;
 /// Located switching times are within this of the true crossing, s.
 const EVENT_TOL_S: f64 = 1e-7;
 /// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
 const MAX_CASCADE: usize = 8;
-/// Step limit per segment.
+/// Dopri5 step limit per segment.
 const MAX_STEPS: u32 = 5_000_000;
+/// Implicit methods: step attempts per segment (a segment of a long session at the 50-ms step
+/// limit needs ~72 000 for 1 h; the limit only stops a solver that has stalled).
+const IMPLICIT_MAX_ATTEMPTS: usize = 5_000_000;
+/// Implicit methods: Newton iterations per attempt before it is retried with a shorter step
+/// (Hairer & Wanner's RADAU5 default, 7).
+const IMPLICIT_MAX_NEWTON: usize = 7;
+/// Implicit methods: rejected attempts in a row before the run is declared failed (each halves
+/// the step at least, so 60 in a row is a factor 1e-18: the solver has stalled).
+const IMPLICIT_MAX_REJECTIONS_IN_A_ROW: usize = 60;
+
+/// Integration method of a run.
+///
+/// Measured on the 60-s detailed demo (benches/session.rs prints the table): Dopri5 is held by
+/// stability to ~16-µs steps (3.3 M steps, ~7–9 s); Radau5 follows the slow solution with steps
+/// set by accuracy and the 50-ms limit. The fast fidelity has no stiff states left and stays on
+/// Dopri5, whose cheap steps win there.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Method {
+    /// Explicit Dormand–Prince 5(4), ode_solvers.
+    Dopri5,
+    /// Radau IIA order 5, differential-equations.
+    Radau5,
+    /// Variable-order BDF, differential-equations (measured, not used by default).
+    Bdf,
+}
+
+impl Method {
+    /// The method each fidelity uses.
+    pub fn for_fidelity(f: Fidelity) -> Self {
+        match f {
+            Fidelity::Fast => Method::Dopri5,
+            Fidelity::Detailed => Method::Radau5,
+        }
+    }
+
+    /// The word used in summaries and the benchmark.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Method::Dopri5 => "dopri5",
+            Method::Radau5 => "radau5",
+            Method::Bdf => "bdf",
+        }
+    }
+
+    /// Longest segment between restarts, s (implicit segments are walked step by step and hold
+    /// no dense output, so only events end them).
+    fn max_segment_s(self, f: Fidelity) -> f64 {
+        match (self, f) {
+            (Method::Dopri5, Fidelity::Fast) => MAX_SEGMENT_FAST_S,
+            (Method::Dopri5, Fidelity::Detailed) => MAX_SEGMENT_EXPLICIT_DETAILED_S,
+            _ => f64::INFINITY,
+        }
+    }
+}
 
 /// Model fidelity.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -57,6 +115,8 @@ pub struct SimOptions {
     pub rtol: f64,
     pub atol: f64,
     pub max_step_s: f64,
+    /// Integration method ([`Method::for_fidelity`] unless a benchmark compares them).
+    pub method: Method,
 }
 
 /// Why a simulation failed (exit code 3 at the edge).
@@ -76,6 +136,12 @@ pub enum SimError {
     },
     #[error("the state became non-finite at t = {t_s:.6} s; state: {state}")]
     NonFinite { t_s: f64, state: String },
+    #[error("the solution diverged at t = {t_s:.6} s ({what}); state: {state}")]
+    Unphysical {
+        t_s: f64,
+        what: &'static str,
+        state: String,
+    },
 }
 
 /// Totals of the energy ledger, J (charge in A·s).
@@ -121,11 +187,20 @@ impl Ledger {
 /// Solver statistics.
 #[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
 pub struct SolverStats {
+    /// Integration method (`dopri5`, `radau5`).
+    pub method: &'static str,
+    /// Right-hand-side evaluations, including those of finite-difference Jacobians.
     pub evaluations: u64,
     pub accepted_steps: u64,
     pub rejected_steps: u64,
     pub segments: u64,
     pub mode_changes: u64,
+    /// Implicit methods: Jacobians formed, LU decompositions, Newton iterations, and step
+    /// attempts abandoned because Newton did not converge (0 for Dopri5).
+    pub jacobians: u64,
+    pub lu_decompositions: u64,
+    pub newton_iterations: u64,
+    pub newton_failures: u64,
 }
 
 /// Everything a run produced.
@@ -151,7 +226,8 @@ struct StepEnd {
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Stop {
     Due,
-    NonFinite(f64),
+    /// The state left the physical range at this time.
+    Bad(f64, &'static str),
 }
 
 /// Per-segment record filled from the solver's callback.
@@ -190,8 +266,8 @@ impl System<f64, State> for Rhs<'_> {
     }
 
     fn solout(&mut self, t: f64, y: &State, _dy: &State) -> bool {
-        if !all_finite(y) {
-            self.rec.stop = Some(Stop::NonFinite(t));
+        if let Some(what) = unphysical(y) {
+            self.rec.stop = Some(Stop::Bad(t, what));
             self.rec.last_state = Some(*y);
             return true;
         }
@@ -252,9 +328,12 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     };
     let mut y = y0;
     let mut t = 0.0;
-    let mut stats = SolverStats::default();
+    let mut stats = SolverStats {
+        method: opts.method.as_str(),
+        ..SolverStats::default()
+    };
     let mut observer = Observer::new();
-    let mut sampler = Sampler::new(opts.trace_interval_s, t_end);
+    let sampler = Sampler::new(opts.trace_interval_s, t_end);
     let evals = Cell::new(0u64);
 
     cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats)?;
@@ -264,6 +343,11 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let mut next_event = 0usize;
     let mut rec = Recorder::default();
 
+    let mut run = Walk {
+        plant,
+        sampler,
+        observer,
+    };
     while t < t_end {
         if t_end - t <= 1e-9 * t_end.max(1.0) {
             break;
@@ -271,15 +355,11 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         while next_event < time_events.len() && time_events[next_event] <= t {
             next_event += 1;
         }
-        let max_segment = match opts.fidelity {
-            Fidelity::Fast => MAX_SEGMENT_FAST_S,
-            Fidelity::Detailed => MAX_SEGMENT_DETAILED_S,
-        };
         let mut t_stop = time_events
             .get(next_event)
             .copied()
             .unwrap_or(t_end)
-            .min(t + max_segment);
+            .min(t + opts.method.max_segment_s(opts.fidelity));
         // Snap to a time event a rounding sliver away: a 1e-15 s segment would make the solver
         // report a step-size underflow.
         if let Some(&te) = time_events.get(next_event) {
@@ -293,124 +373,43 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
                 t_stop = deadline;
             }
         }
-        // One recorder for all segments: its step buffer keeps its capacity (no regrowth).
-        rec.clear();
-        let mut model = ContinuousOutputModel::default();
-        let result = {
-            let rhs = Rhs {
-                plant,
-                disc,
-                rec: &mut rec,
-                cache: Cell::new(None),
-                evals: &evals,
-            };
-            let h_max = opts.max_step_s.min(t_stop - t);
-            let mut solver = Dopri5::from_param(
-                rhs,
-                t,
-                t_stop,
-                t_stop - t,
-                y,
-                opts.rtol,
-                opts.atol,
-                0.9,
-                0.04,
-                0.2,
-                10.0,
-                h_max,
-                h_guess.min(h_max),
-                MAX_STEPS,
-                u32::MAX,
-                OutputType::Continuous,
-            );
-            solver.integrate_with_continuous_output_model(&mut model)
+        let seg = SegmentStart {
+            t,
+            y,
+            t_stop,
+            h_guess,
+        };
+        let end = match opts.method {
+            Method::Dopri5 => {
+                // One recorder for all segments: its step buffer keeps its capacity.
+                rec.clear();
+                explicit_segment(&mut run, &mut rec, &disc, &seg, opts, &evals, &mut stats)?
+            }
+            Method::Radau5 => implicit_segment(
+                &mut run,
+                &disc,
+                &seg,
+                opts,
+                Implicit::Radau5,
+                &evals,
+                &mut stats,
+            )?,
+            Method::Bdf => implicit_segment(
+                &mut run,
+                &disc,
+                &seg,
+                opts,
+                Implicit::Bdf,
+                &evals,
+                &mut stats,
+            )?,
         };
         stats.segments += 1;
-        let solver_stats = result.map_err(|e| SimError::Solver {
-            t_s: rec.steps.last().map_or(t, |s| s.t),
-            reason: e.to_string(),
-            state: describe(rec.last_state.as_ref().unwrap_or(&y)),
-        })?;
-        stats.accepted_steps += u64::from(solver_stats.accepted_steps);
-        stats.rejected_steps += u64::from(solver_stats.rejected_steps);
-        if let Some(Stop::NonFinite(tf)) = rec.stop {
-            return Err(SimError::NonFinite {
-                t_s: tf,
-                state: describe(rec.last_state.as_ref().unwrap_or(&y)),
-            });
+        if end.h_last > 0.0 {
+            h_guess = end.h_last;
         }
-        // Evaluate inside the model's range: grid times a few ulps past the last step must not
-        // fall back to a stale state.
-        let (lo_b, hi_b) = if rec.steps.is_empty() {
-            (t, t)
-        } else {
-            model.bounds()
-        };
-        let dense = |tq: f64| {
-            if rec.steps.is_empty() {
-                return y;
-            }
-            model
-                .evaluate(tq.clamp(lo_b, hi_b))
-                .unwrap_or_else(|| rec.last_state.unwrap_or(y))
-        };
-
-        // End of the valid part: the located switching time, or the segment end.
-        let n = rec.steps.len();
-        let (t_valid, y_valid) = if rec.stop == Some(Stop::Due) && n > 0 {
-            let lo = if n >= 2 { rec.steps[n - 2].t } else { t };
-            let hi = rec.steps[n - 1].t;
-            let ts = bisect(lo, hi, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, &disc);
-                due(plant, &pq, &yq, &disc).is_some()
-            });
-            (ts, dense(ts))
-        } else {
-            (t_stop, rec.last_state.unwrap_or(y))
-        };
-        if n >= 1 {
-            let last = rec.steps[n - 1].t;
-            let prev = if n >= 2 { rec.steps[n - 2].t } else { t };
-            h_guess = (last - prev).max(1e-6);
-        }
-
-        // Trace samples and watched conditions over (t, t_valid].
-        let mut a = t;
-        for step in rec.steps.iter() {
-            let b = step.t.min(t_valid);
-            if b <= a {
-                continue;
-            }
-            sampler.sample_until(b, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, &disc);
-                observer.touch(&pq, &yq);
-                row(plant, &pq, &yq, &disc)
-            });
-            let (yb, pb) = if b < step.t {
-                let yb = dense(b);
-                (yb, plant.eval(b, &yb, &disc))
-            } else {
-                (step.y, step.p)
-            };
-            watch(plant, &disc, &mut observer, a, b, &yb, &pb, &dense);
-            observer.touch(&pb, &yb);
-            a = b;
-            if b >= t_valid {
-                break;
-            }
-        }
-        if a < t_valid {
-            // A segment with no recorded step reaching t_valid (cannot normally happen).
-            sampler.sample_until(t_valid, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, &disc);
-                row(plant, &pq, &yq, &disc)
-            });
-        }
-        t = t_valid;
-        y = y_valid;
+        t = end.t;
+        y = end.y;
 
         // Time events at t: rests start or end.
         let resting = plant.jitter.resting(t);
@@ -418,10 +417,16 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             disc.resting = resting;
             stats.mode_changes += 1;
         }
-        cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats)?;
+        cascade(plant, t, &mut y, &mut disc, &mut run.observer, &mut stats)?;
         let p = plant.eval(t, &y, &disc);
-        observer.set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
+        run.observer
+            .set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
     }
+    let Walk {
+        mut sampler,
+        observer,
+        ..
+    } = run;
     stats.evaluations = evals.get();
     let events = observer.finish(t_end);
     if sampler.rows.last().is_none_or(|r| r.time_s < t_end) {
@@ -437,6 +442,292 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         final_state: y,
         duration_s: t_end,
     })
+}
+
+/// Where a segment starts.
+struct SegmentStart {
+    t: f64,
+    y: State,
+    t_stop: f64,
+    /// Step size to start with (the previous segment's last), s; 0 lets the solver choose.
+    h_guess: f64,
+}
+
+/// Where a segment ended: the located switching time or the segment end, and the last step size.
+struct SegmentEnd {
+    t: f64,
+    y: State,
+    h_last: f64,
+}
+
+/// Per-step bookkeeping shared by every integrator: trace sampling, watched conditions and the
+/// location of due mode changes, all from one accepted step and its dense output.
+struct Walk<'a> {
+    plant: &'a Plant,
+    sampler: Sampler,
+    observer: Observer,
+}
+
+impl Walk<'_> {
+    /// Handles the accepted step (a, end.t]. If a mode change is due at its end, the switching
+    /// time is located by bisection on `dense` and the step is used only up to there; that time
+    /// and state are returned (the segment ends). Trace rows and watched conditions are taken up
+    /// to the end of the valid part.
+    fn step(
+        &mut self,
+        disc: &Discrete,
+        a: f64,
+        end: &StepEnd,
+        dense: &dyn Fn(f64) -> State,
+    ) -> Option<(f64, State)> {
+        let plant = self.plant;
+        let stop = due(plant, &end.p, &end.y, disc).map(|_| {
+            let ts = bisect(a, end.t, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, disc);
+                due(plant, &pq, &yq, disc).is_some()
+            });
+            (ts, dense(ts))
+        });
+        let b = stop.map_or(end.t, |(ts, _)| ts);
+        if b > a {
+            let observer = &mut self.observer;
+            self.sampler.sample_until(b, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, disc);
+                observer.touch(&pq, &yq);
+                row(plant, &pq, &yq, disc)
+            });
+            let (yb, pb) = if b < end.t {
+                let yb = dense(b);
+                (yb, plant.eval(b, &yb, disc))
+            } else {
+                (end.y, end.p)
+            };
+            watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
+            self.observer.touch(&pb, &yb);
+        }
+        stop
+    }
+}
+
+/// One segment with Dopri5 (ode_solvers): the whole segment is integrated with the callback
+/// stopping at the first step after which a mode change is due, then the recorded steps are
+/// walked with the segment's continuous output.
+fn explicit_segment(
+    run: &mut Walk,
+    rec: &mut Recorder,
+    disc: &Discrete,
+    seg: &SegmentStart,
+    opts: &SimOptions,
+    evals: &Cell<u64>,
+    stats: &mut SolverStats,
+) -> Result<SegmentEnd, SimError> {
+    let plant = run.plant;
+    let (t, y, t_stop) = (seg.t, seg.y, seg.t_stop);
+    let mut model = ContinuousOutputModel::default();
+    let result = {
+        let rhs = Rhs {
+            plant,
+            disc: *disc,
+            rec: &mut *rec,
+            cache: Cell::new(None),
+            evals,
+        };
+        let h_max = opts.max_step_s.min(t_stop - t);
+        let mut solver = Dopri5::from_param(
+            rhs,
+            t,
+            t_stop,
+            t_stop - t,
+            y,
+            opts.rtol,
+            opts.atol,
+            0.9,
+            0.04,
+            0.2,
+            10.0,
+            h_max,
+            seg.h_guess.min(h_max),
+            MAX_STEPS,
+            u32::MAX,
+            OutputType::Continuous,
+        );
+        solver.integrate_with_continuous_output_model(&mut model)
+    };
+    let solver_stats = result.map_err(|e| SimError::Solver {
+        t_s: rec.steps.last().map_or(t, |s| s.t),
+        reason: e.to_string(),
+        state: describe(rec.last_state.as_ref().unwrap_or(&y)),
+    })?;
+    stats.accepted_steps += u64::from(solver_stats.accepted_steps);
+    stats.rejected_steps += u64::from(solver_stats.rejected_steps);
+    if let Some(Stop::Bad(tf, what)) = rec.stop {
+        return Err(SimError::Unphysical {
+            t_s: tf,
+            what,
+            state: describe(rec.last_state.as_ref().unwrap_or(&y)),
+        });
+    }
+    if rec.steps.is_empty() {
+        // Nothing was stepped (cannot normally happen): hold the state to the segment end.
+        run.sampler.sample_until(t_stop, |tq| {
+            let pq = plant.eval(tq, &y, disc);
+            row(plant, &pq, &y, disc)
+        });
+        return Ok(SegmentEnd {
+            t: t_stop,
+            y,
+            h_last: 0.0,
+        });
+    }
+    // Evaluate inside the model's range: grid times a few ulps past the last step must not fall
+    // back to a stale state.
+    let (lo_b, hi_b) = model.bounds();
+    let last_y = rec.last_state.unwrap_or(y);
+    let dense = |tq: f64| model.evaluate(tq.clamp(lo_b, hi_b)).unwrap_or(last_y);
+    let n = rec.steps.len();
+    let h_last = rec.steps[n - 1].t - if n >= 2 { rec.steps[n - 2].t } else { t };
+    let mut a = t;
+    for step in &rec.steps {
+        if let Some((ts, ys)) = run.step(disc, a, step, &dense) {
+            return Ok(SegmentEnd {
+                t: ts,
+                y: ys,
+                h_last: h_last.max(1e-6),
+            });
+        }
+        a = step.t;
+    }
+    Ok(SegmentEnd {
+        t: t_stop,
+        y: last_y,
+        h_last: h_last.max(1e-6),
+    })
+}
+
+/// One segment with an implicit method, one step at a time: each accepted step is checked
+/// (finite and physical), walked with its own dense output, and the segment ends at a located
+/// mode change or at `t_stop`.
+fn implicit_segment(
+    run: &mut Walk,
+    disc: &Discrete,
+    seg: &SegmentStart,
+    opts: &SimOptions,
+    method: Implicit,
+    evals: &Cell<u64>,
+    stats: &mut SolverStats,
+) -> Result<SegmentEnd, SimError> {
+    let plant = run.plant;
+    let rhs = StiffRhs {
+        plant,
+        disc: *disc,
+        evals,
+        t_stop: seg.t_stop,
+    };
+    let limits = Limits {
+        rtol: opts.rtol,
+        atol: opts.atol,
+        h_max: opts.max_step_s.min(seg.t_stop - seg.t),
+        h0: seg.h_guess,
+        max_steps: IMPLICIT_MAX_ATTEMPTS,
+        max_newton_iter: IMPLICIT_MAX_NEWTON,
+    };
+    let fail = |t_s: f64, reason: String, y: &State| SimError::Solver {
+        t_s,
+        reason,
+        state: describe(y),
+    };
+    let mut solver = stiff::Segment::start(method, &rhs, seg.t, &seg.y, seg.t_stop, &limits)
+        .map_err(|e| fail(seg.t, e, &seg.y))?;
+    let mut y_last = seg.y;
+    let mut rejected_in_a_row = 0usize;
+    let mut h_last = 0.0;
+    let outcome = loop {
+        let attempt = solver.attempt(&rhs);
+        let attempt = attempt.map_err(|e| fail(solver.t(), e, &y_last))?;
+        let Attempt::Accepted { t_prev, t } = attempt else {
+            stats.rejected_steps += 1;
+            rejected_in_a_row += 1;
+            if rejected_in_a_row > IMPLICIT_MAX_REJECTIONS_IN_A_ROW {
+                break Err(fail(
+                    solver.t(),
+                    format!(
+                        "{rejected_in_a_row} step attempts in a row rejected (next step {:.3e} s)",
+                        solver.h()
+                    ),
+                    &y_last,
+                ));
+            }
+            continue;
+        };
+        rejected_in_a_row = 0;
+        stats.accepted_steps += 1;
+        h_last = t - t_prev;
+        let ys = *solver.y();
+        if let Some(what) = unphysical(&ys) {
+            break Err(SimError::Unphysical {
+                t_s: t,
+                what,
+                state: describe(&ys),
+            });
+        }
+        y_last = ys;
+        let end = StepEnd {
+            t,
+            y: ys,
+            p: plant.eval(t, &ys, disc),
+        };
+        let cell = std::cell::RefCell::new(&mut solver);
+        let dense = |tq: f64| cell.borrow_mut().dense(tq);
+        if let Some((ts, _)) = run.step(disc, t_prev, &end, &dense) {
+            break Ok((ts, solver.state_at(&rhs, ts)));
+        }
+        if t >= seg.t_stop {
+            break Ok((seg.t_stop, ys));
+        }
+    };
+    let c = solver.counts;
+    stats.jacobians += c.jacobians;
+    stats.lu_decompositions += c.decompositions;
+    stats.newton_iterations += c.newton_iterations;
+    stats.newton_failures += c.newton_failures;
+    let (t, y) = outcome?;
+    Ok(SegmentEnd { t, y, h_last })
+}
+
+/// Why a state is not physical, if it is not: a non-finite entry, or a magnitude no hand-cranked
+/// charger reaches (these bounds are far outside any valid run and catch a diverging solution,
+/// not a bad design).
+fn unphysical(y: &State) -> Option<&'static str> {
+    if !all_finite(y) {
+        return Some("a state is not finite");
+    }
+    let checks: [(usize, f64, f64, &'static str); 9] = [
+        (CRANK_SPEED, -1e4, 1e4, "crank speed beyond ±10 000 rad/s"),
+        (GEN_SPEED, -1e6, 1e6, "generator speed beyond ±1e6 rad/s"),
+        (SOC, -0.5, 1.5, "state of charge outside −0.5 … 1.5"),
+        (
+            BATTERY_TEMP,
+            -150.0,
+            1000.0,
+            "battery temperature outside −150 … 1000 °C",
+        ),
+        (
+            WINDING_TEMP,
+            -150.0,
+            1000.0,
+            "winding temperature outside −150 … 1000 °C",
+        ),
+        (ARMATURE_I, -1e4, 1e4, "armature current beyond ±10 kA"),
+        (INPUT_V, -1e4, 1e4, "input voltage beyond ±10 kV"),
+        (INDUCTOR_I, -1e4, 1e4, "inductor current beyond ±10 kA"),
+        (OUTPUT_V, -1e4, 1e4, "output voltage beyond ±10 kV"),
+    ];
+    checks
+        .iter()
+        .find(|&&(k, lo, hi, _)| !(lo..=hi).contains(&y[k]))
+        .map(|c| c.3)
 }
 
 /// Applies every transition due at (t, y) until none is, recording charge completion. A mode that
@@ -641,13 +932,15 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
     }
 }
 
-/// Named state dump for failure messages.
+/// Named state dump for failure messages (the physical states; the ledger quadratures are left
+/// out).
 fn describe(y: &State) -> String {
     STATE_NAMES
         .iter()
         .zip(y.iter())
-        .take(SOFT_START + 1)
-        .map(|(n, v)| format!("{n}={v:.6e}"))
+        .enumerate()
+        .filter(|(k, _)| *k <= SOFT_START || *k >= ARMATURE_I)
+        .map(|(_, (n, v))| format!("{n}={v:.6e}"))
         .collect::<Vec<_>>()
         .join(", ")
 }

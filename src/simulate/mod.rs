@@ -4,6 +4,7 @@ pub mod engine;
 pub mod observe;
 pub mod plant;
 pub mod state;
+pub mod stiff;
 pub mod transitions;
 
-pub use engine::{simulate, Fidelity, SimError, SimOptions, SimResult};
+pub use engine::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};
