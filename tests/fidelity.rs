@@ -168,10 +168,11 @@ const GOLDEN_TRACE: &str = "tests/reference/demo_detailed_3s.csv";
 const GOLDEN_EVENTS: &str = "tests/reference/demo_detailed_3s_events.csv";
 
 /// Absolute tolerance of each compared column. The product integrates at the demo's solver
-/// settings (Dopri5, rtol 1e-6, atol 1e-8); the reference at rtol 1e-9 agrees with itself at
-/// rtol 1e-11 to ~1e-7 in every column, so what is compared is the product's own error. Each
-/// tolerance sits a few to a hundred times above the error observed at rtol 1e-6 (the test prints
-/// it), so a solver setting does not trip them, and far below any modelling difference worth
+/// settings (Radau5 since the detailed fidelity left Dopri5; rtol 1e-6, atol 1e-8); the
+/// reference at rtol 1e-9 agrees with itself at rtol 1e-11 to ~1e-7 in every column, so what is
+/// compared is the product's own error. The tolerances were set a few to a hundred times above
+/// the error Dopri5 showed at rtol 1e-6; Radau5 stays 30 to 10 000 times under them (the test
+/// prints the worst error per column), and they stay far below any modelling difference worth
 /// finding (a sample taken 50 ms stale is 1.7 rpm off; in the reference, +0.1 % on k_e moves the
 /// input node 45 mV, +10 % on the switch R_on 21 mV, +10 % on C_in or the buck's L 6 mV and 4 mV).
 /// The grid does not see the loop gains or C_o here: the duty sits at D_max until 2.33 s and the
@@ -855,5 +856,58 @@ fn thevenin_rc_branch_steps_with_tau_r1_c1() {
                 "{series}S{parallel}P after a {dt} s step at {i} A: {v_num} V vs {v_exact} V"
             );
         }
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// No silent divergence: every accepted step is checked, for either integrator
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn a_state_leaving_the_physical_range_stops_the_run_with_its_time_and_state() {
+    use crankcharge::model::jitter::JitterTrack;
+    use crankcharge::simulate::engine::{initial_state, simulate, SimOptions};
+    use crankcharge::simulate::plant::Plant;
+    use crankcharge::simulate::state::SOC;
+    use crankcharge::simulate::{Method, SimError};
+
+    let sc = load(
+        &repo().join("profiles/setups/demo.ron"),
+        &steady_profile(),
+        &[],
+    );
+    for fidelity in [Fidelity::Fast, Fidelity::Detailed] {
+        let jitter = JitterTrack::draw(&sc.profile.jitter, sc.profile.seed, 1.0);
+        let plant = Plant::with_fidelity(&sc.setup, &sc.profile, jitter, 0.0, fidelity)
+            .expect("demo plant");
+        // A state of charge of 1.6 is no battery's: the first accepted step must be refused.
+        let mut y0 = initial_state(&plant, 0.5, 20.0);
+        y0[SOC] = 1.6;
+        let opts = SimOptions {
+            duration_s: 1.0,
+            fidelity,
+            trace_interval_s: 0.1,
+            rtol: 1e-6,
+            atol: 1e-8,
+            max_step_s: 0.05,
+            method: Method::for_fidelity(fidelity),
+        };
+        match simulate(&plant, y0, &opts) {
+            Err(e @ SimError::Unphysical { t_s, what, .. }) => {
+                let text = e.to_string();
+                assert!(what.contains("state of charge"), "{fidelity:?}: {text}");
+                assert!(t_s > 0.0 && t_s <= 0.05, "{fidelity:?}: stopped at {t_s} s");
+                // The message names the time and every physical state by name.
+                assert!(
+                    text.contains("t = 0.0") && text.contains("soc=1.6"),
+                    "{fidelity:?}: {text}"
+                );
+                assert!(text.contains("crank_speed_rad_s="), "{fidelity:?}: {text}");
+            }
+            other => panic!("{fidelity:?}: expected a divergence report, got {other:?}"),
+        }
+        // The same plant from a physical state runs: the check is not what failed above.
+        let ok = simulate(&plant, initial_state(&plant, 0.5, 20.0), &opts);
+        assert!(ok.is_ok(), "{fidelity:?}: {:?}", ok.err());
     }
 }

@@ -944,3 +944,30 @@ fn describe(y: &State) -> String {
         .collect::<Vec<_>>()
         .join(", ")
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn unphysical_flags_non_finite_and_out_of_range_states_only() {
+        let mut y = State::zeros();
+        y[SOC] = 0.5;
+        y[BATTERY_TEMP] = 25.0;
+        y[WINDING_TEMP] = 25.0;
+        y[OUTPUT_V] = 12.0;
+        assert_eq!(unphysical(&y), None);
+        // Ledger quadratures may grow without bound in a long session.
+        y[E_OPERATOR] = 1e12;
+        assert_eq!(unphysical(&y), None);
+        let mut bad = y;
+        bad[INPUT_V] = f64::NAN;
+        assert_eq!(unphysical(&bad), Some("a state is not finite"));
+        let mut bad = y;
+        bad[E_DIODE] = f64::INFINITY;
+        assert_eq!(unphysical(&bad), Some("a state is not finite"));
+        let mut bad = y;
+        bad[OUTPUT_V] = -2e4;
+        assert_eq!(unphysical(&bad), Some("output voltage beyond ±10 kV"));
+    }
+}

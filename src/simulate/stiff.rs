@@ -35,12 +35,12 @@ const fn dyn_index(k: usize) -> usize {
 }
 
 /// The feedback states of a full state.
-fn flat_of(y: &State) -> Flat {
+pub fn flat_of(y: &State) -> Flat {
     std::array::from_fn(|k| y[dyn_index(k)])
 }
 
 /// A full state from feedback states and ledger quadratures taken from `q`.
-fn state_of(f: &Flat, q: &State) -> State {
+pub fn state_of(f: &Flat, q: &State) -> State {
     let mut y = *q;
     for (k, v) in f.iter().enumerate() {
         y[dyn_index(k)] = *v;
@@ -80,9 +80,13 @@ impl StiffRhs<'_> {
     }
 
     fn eval_into(&self, t: f64, y: &Flat, dy: &mut Flat) {
-        // The ledger slots are read by nothing that feeds back; zeros stand in for them.
-        let d = self.full(t, &state_of(y, &State::zeros()));
-        *dy = flat_of(&d);
+        *dy = self.rates(t, y);
+    }
+
+    /// Rates of the feedback states (the ledger slots are read by nothing that feeds back; zeros
+    /// stand in for them).
+    pub fn rates(&self, t: f64, y: &Flat) -> Flat {
+        flat_of(&self.full(t, &state_of(y, &State::zeros())))
     }
 }
 
