@@ -15,19 +15,22 @@
 //! - Dopri5 (ode_solvers) is held by stability on the detailed network (the output capacitor
 //!   against R0, τ ≈ 5 µs): ~13-µs steps, 75 000 steps per simulated second, whatever the
 //!   tolerance; the 60-s demo took 7–9 s. Radau5 took ~2 700 steps and ~0.1 s for the same 60 s,
-//!   and is ~8 times closer to the scipy reference (table 2).
+//!   and is 6–8 times closer to the scipy reference (table 2).
 //! - BDF (`differential-equations`) is quick but wrong at the mode changes: the UVLO release came
 //!   18 ms late and the input node was 1 000 tolerances off; started from its own first-step guess
 //!   it stopped with a step-size underflow at that release.
 //! - `ivp` 0.6 (table 3 only; a dev-dependency): its Radau matches Radau5's time with three times
-//!   the LU decompositions; its BDF was three times quicker on the smooth stretch but missed the
-//!   tolerance 2.5-fold, LSODA 24-fold. It offers only a whole-interval `solve` with a callback,
-//!   while `differential-equations` steps one step at a time with that step's dense output, which
-//!   is what the engine's per-step checks and event location use.
+//!   the LU decompositions; its BDF was about three times quicker on the stretch (which takes as
+//!   many steps per simulated second as a whole session) but missed the tolerance about twofold,
+//!   LSODA 20- to 45-fold. `ivp` offers only a whole-interval `solve` with a callback, while
+//!   `differential-equations` steps one step at a time with that step's dense output, which is
+//!   what the engine's per-step checks and event location use. Radau5 meets the 300× target with
+//!   room to spare and the better accuracy; ivp's BDF is the first thing to try if the detailed
+//!   fidelity must get faster still.
 //! - `diffsol` (BDF/SDIRK on its own matrix stack) was not measured: a heavy dependency for a
 //!   16-state system that Radau5 already integrates at several hundred times real time.
 //! - The fast fidelity stays on Dopri5: Radau5 there stopped with a step-size underflow on the
-//!   demo where the algebraic network changes branch, and took 3.6 times Dopri5's time on
+//!   demo where the algebraic network changes branch, and took 4–5 times Dopri5's time on
 //!   lead-acid-direct.
 //!
 //! Two things the measurements taught: Radau5's linear algebra was ~80 % of its run time, so the

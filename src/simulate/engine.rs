@@ -42,10 +42,15 @@ const IMPLICIT_MAX_REJECTIONS_IN_A_ROW: usize = 60;
 
 /// Integration method of a run.
 ///
-/// Measured on the 60-s detailed demo (benches/session.rs prints the table): Dopri5 is held by
-/// stability to ~16-µs steps (3.3 M steps, ~7–9 s); Radau5 follows the slow solution with steps
-/// set by accuracy and the 50-ms limit. The fast fidelity has no stiff states left and stays on
-/// Dopri5, whose cheap steps win there.
+/// Choice (measured by benches/session.rs, whose header has the reasoning): the detailed
+/// fidelity uses Radau5 from `differential-equations`. Dopri5 is held there by stability to
+/// ~13-µs steps (the 60-s demo: 3.3 M steps, 7–9 s); Radau5, L-stable, steps at the accuracy
+/// asked or the 50-ms limit (~2 700 steps, ~0.1 s) and lands closer to the scipy reference. Its
+/// one-step-at-a-time API with per-step dense output is what the per-step checks and event
+/// location need. That crate's BDF lost the mode changes; `ivp`'s BDF was quicker on a smooth
+/// stretch but missed its tolerance. The fast fidelity has no stiff state left and stays on
+/// Dopri5, whose cheap steps win there (Radau5 failed on the demo's branch change and was 4–5
+/// times slower elsewhere).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Method {
