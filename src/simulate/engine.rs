@@ -36,9 +36,15 @@ const IMPLICIT_MAX_ATTEMPTS: usize = 5_000_000;
 /// Implicit methods: Newton iterations per attempt before it is retried with a shorter step
 /// (Hairer & Wanner's RADAU5 default, 7).
 const IMPLICIT_MAX_NEWTON: usize = 7;
-/// Implicit methods: rejected attempts in a row before the run is declared failed (each halves
-/// the step at least, so 60 in a row is a factor 1e-18: the solver has stalled).
-const IMPLICIT_MAX_REJECTIONS_IN_A_ROW: usize = 60;
+/// Implicit methods: rejected attempts in a row after which the implicit solver hands over to a
+/// short Dopri5 bridge. Newton needs a right-hand side smooth in the state; the averaged
+/// converter has points where it is not (an empty inductor held at zero, the kink of a lead-acid
+/// battery's current at its rest voltage), and the solution can sit on them. An explicit method
+/// does not iterate, so it passes them at its (stability-bound) step; the implicit solver resumes
+/// after the bridge.
+const IMPLICIT_BRIDGE_AFTER_REJECTIONS: usize = 30;
+/// Length of a Dopri5 bridge, s (a few hundred of its ~13-µs steps).
+const BRIDGE_S: f64 = 5e-3;
 
 /// Integration method of a run.
 ///
@@ -206,6 +212,8 @@ pub struct SolverStats {
     pub lu_decompositions: u64,
     pub newton_iterations: u64,
     pub newton_failures: u64,
+    /// Implicit methods: stalls handed to a short Dopri5 bridge.
+    pub explicit_bridges: u64,
 }
 
 /// Everything a run produced.
@@ -392,6 +400,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             }
             Method::Radau5 => implicit_segment(
                 &mut run,
+                &mut rec,
                 &disc,
                 &seg,
                 opts,
@@ -401,6 +410,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             )?,
             Method::Bdf => implicit_segment(
                 &mut run,
+                &mut rec,
                 &disc,
                 &seg,
                 opts,
@@ -614,8 +624,10 @@ fn explicit_segment(
 /// One segment with an implicit method, one step at a time: each accepted step is checked
 /// (finite and physical), walked with its own dense output, and the segment ends at a located
 /// mode change or at `t_stop`.
+#[allow(clippy::too_many_arguments)]
 fn implicit_segment(
     run: &mut Walk,
+    rec: &mut Recorder,
     disc: &Discrete,
     seg: &SegmentStart,
     opts: &SimOptions,
@@ -643,26 +655,30 @@ fn implicit_segment(
         reason,
         state: describe(y),
     };
+    /// Why the step loop ended without a segment end.
+    enum Halt {
+        Failed(SimError),
+        /// Too many rejections in a row at this time and state.
+        Stalled(f64, State),
+    }
+    use Halt::{Failed, Stalled};
     let mut solver = stiff::Segment::start(method, &rhs, seg.t, &seg.y, seg.t_stop, &limits)
         .map_err(|e| fail(seg.t, e, &seg.y))?;
     let mut y_last = seg.y;
     let mut rejected_in_a_row = 0usize;
     let mut h_last = 0.0;
     let outcome = loop {
-        let attempt = solver.attempt(&rhs);
-        let attempt = attempt.map_err(|e| fail(solver.t(), e, &y_last))?;
+        let attempt = match solver.attempt(&rhs) {
+            Ok(a) => a,
+            // The crate's own guards (step-size underflow, singular matrices) also end in a
+            // bridge: an explicit method may pass where Newton cannot.
+            Err(_) => break Err(Stalled(solver.t(), y_last)),
+        };
         let Attempt::Accepted { t_prev, t } = attempt else {
             stats.rejected_steps += 1;
             rejected_in_a_row += 1;
-            if rejected_in_a_row > IMPLICIT_MAX_REJECTIONS_IN_A_ROW {
-                break Err(fail(
-                    solver.t(),
-                    format!(
-                        "{rejected_in_a_row} step attempts in a row rejected (next step {:.3e} s)",
-                        solver.h()
-                    ),
-                    &y_last,
-                ));
+            if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
+                break Err(Stalled(solver.t(), y_last));
             }
             continue;
         };
@@ -671,11 +687,11 @@ fn implicit_segment(
         h_last = t - t_prev;
         let ys = *solver.y();
         if let Some(what) = unphysical(&ys) {
-            break Err(SimError::Unphysical {
+            break Err(Failed(SimError::Unphysical {
                 t_s: t,
                 what,
                 state: describe(&ys),
-            });
+            }));
         }
         y_last = ys;
         let end = StepEnd {
@@ -697,8 +713,31 @@ fn implicit_segment(
     stats.lu_decompositions += c.decompositions;
     stats.newton_iterations += c.newton_iterations;
     stats.newton_failures += c.newton_failures;
-    let (t, y) = outcome?;
-    Ok(SegmentEnd { t, y, h_last })
+    match outcome {
+        Ok((t, y)) => Ok(SegmentEnd { t, y, h_last }),
+        Err(Failed(e)) => Err(e),
+        Err(Stalled(t, y)) => {
+            // Hand over to Dopri5 for a short stretch; the next segment is implicit again.
+            let t_stop = (t + BRIDGE_S).min(seg.t_stop);
+            if t_stop - t <= 1e-12 * t.abs().max(1.0) {
+                // Stalled a rounding sliver short of the segment end: that end is reached.
+                return Ok(SegmentEnd {
+                    t: t_stop,
+                    y,
+                    h_last,
+                });
+            }
+            stats.explicit_bridges += 1;
+            let bridge = SegmentStart {
+                t,
+                y,
+                t_stop,
+                h_guess: 0.0,
+            };
+            rec.clear();
+            explicit_segment(run, rec, disc, &bridge, opts, evals, stats)
+        }
+    }
 }
 
 /// Why a state is not physical, if it is not: a non-finite entry, or a magnitude no hand-cranked

@@ -409,10 +409,17 @@ mod tests {
                 .zip(RADAU_C)
                 .map(|(b, c)| b * c.powi(k))
                 .sum();
-            assert!((sum - 1.0 / f64::from(k + 1)).abs() < 1e-15, "k = {k}: {sum}");
+            assert!(
+                (sum - 1.0 / f64::from(k + 1)).abs() < 1e-15,
+                "k = {k}: {sum}"
+            );
         }
         // Degree five is beyond its order, so the check above can tell a wrong table apart.
-        let five: f64 = RADAU_B.iter().zip(RADAU_C).map(|(b, c)| b * c.powi(5)).sum();
+        let five: f64 = RADAU_B
+            .iter()
+            .zip(RADAU_C)
+            .map(|(b, c)| b * c.powi(5))
+            .sum();
         assert!((five - 1.0 / 6.0).abs() > 1e-4, "{five}");
     }
 
