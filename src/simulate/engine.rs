@@ -198,8 +198,6 @@ impl Ledger {
 /// Solver statistics.
 #[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
 pub struct SolverStats {
-    /// Integration method (`dopri5`, `radau5`).
-    pub method: &'static str,
     /// Right-hand-side evaluations, including those of finite-difference Jacobians.
     pub evaluations: u64,
     pub accepted_steps: u64,
@@ -214,6 +212,9 @@ pub struct SolverStats {
     pub newton_failures: u64,
     /// Implicit methods: stalls handed to a short Dopri5 bridge.
     pub explicit_bridges: u64,
+    /// Integration method (`dopri5`, `radau5`); after the figures that came first, so their
+    /// order in `summary.json` is unchanged.
+    pub method: &'static str,
 }
 
 /// Everything a run produced.
