@@ -1,9 +1,11 @@
 //! Breadth: every topology and chemistry among the shipped setups, temperature rules, the
-//! buck-boost twin of the demo, the linear charger and the buck-boost conversion ratio.
+//! buck-boost twin of the demo, the linear charger, the buck-boost conversion ratio, and the 5 V
+//! USB output (demo end to end, a bus that sags under a slow crank, its checks).
 
 use std::path::{Path, PathBuf};
 
 use crankcharge::analysis::events::EventKind;
+use crankcharge::analysis::summary::Verdict;
 use crankcharge::analysis::trace::Mode;
 use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel};
 use crankcharge::scenario::demo::SETUPS;
@@ -12,7 +14,7 @@ use crankcharge::scenario::{load_scenario, Scenario, SourceText};
 use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::{run_session, RunSettings, Session};
 
-use crate::common::{repo, WorkDir};
+use crate::common::{read_csv, repo, run_code, run_ok, WorkDir};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -108,6 +110,13 @@ fn shipped_setups_cover_every_topology_and_the_chemistries() {
             chemistries.contains(&c),
             "no shipped setup with chemistry {c}"
         );
+    }
+    let outputs: Vec<&str> = names
+        .iter()
+        .map(|n| load(&setup_path(n), &[]).setup.output_word())
+        .collect();
+    for o in ["battery", "usb_5v"] {
+        assert!(outputs.contains(&o), "no shipped setup with output {o}");
     }
 }
 
@@ -218,7 +227,7 @@ fn nmc_demo_in_the_warm_band_has_a_lower_charge_limit() {
 
 #[test]
 fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
-    let slow = [("profile.cadence_scale", "0.7")];
+    let slow = [("profile.cadence_scale", "0.8")];
     let buck = run(&load(&setup_path("demo"), &slow), None, Fidelity::Fast);
     let bb = run(
         &load(&setup_path("demo-buck-boost"), &slow),
@@ -229,8 +238,20 @@ fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
         buck.summary.in_regulation_fraction,
         bb.summary.in_regulation_fraction,
     );
-    assert!(fb < 0.5, "the buck drops out at 0.7 × cadence: {fb}");
-    assert!(fbb > 0.9, "the buck-boost holds regulation: {fbb}");
+    assert!(fb < 0.5, "the buck drops out at 0.8 × cadence: {fb}");
+    // Below the battery the buck-boost still regulates; what it loses is its soft-start restarts
+    // when a ripple trough pulls the generator under its UVLO.
+    assert!(
+        fbb > 0.7,
+        "the buck-boost holds regulation most of the time: {fbb}"
+    );
+    assert!(fbb > fb + 0.25, "buck-boost {fbb} vs buck {fb}");
+    assert!(
+        bb.summary.charge_delivered_ah > buck.summary.charge_delivered_ah,
+        "and delivers more charge: {} vs {} Ah",
+        bb.summary.charge_delivered_ah,
+        buck.summary.charge_delivered_ah
+    );
     assert_eq!(bb.summary.topology, "buck_boost");
     // Regulating, it delivers the charge current while the input sits below the battery.
     let below = bb
@@ -252,6 +273,65 @@ fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
             r.duty
         );
     }
+}
+
+#[test]
+fn a_converter_that_keeps_restarting_is_not_counted_in_regulation() {
+    // Common practice: a charger in its soft-start ramp is not yet holding its set current or
+    // voltage; one that keeps locking out and restarting (hiccup) delivers only ramps, and a
+    // regulation figure must not call that regulated.
+    let sc = load(
+        &setup_path("demo-buck-boost"),
+        &[("profile.cadence_scale", "0.7")],
+    );
+    let s = run(&sc, Some(120.0), Fidelity::Fast);
+    // Each lock-out is over within the same instant here (the input recovers at once with the
+    // load gone, and the restart is immediate), so the restarts show as soft-start periods.
+    let ev = &s.result.events;
+    let restarts = ev
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("soft-start"))
+        .count();
+    let ramping: f64 = ev
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("soft-start"))
+        .map(|e| e.duration_s)
+        .sum();
+    let lost: f64 = ev
+        .iter()
+        .filter(|e| e.kind == EventKind::RegulationLoss)
+        .map(|e| e.duration_s)
+        .sum();
+    assert!(
+        restarts > 100,
+        "the converter hiccups at 0.7 x cadence: {restarts} restarts"
+    );
+    assert!(
+        ramping > 30.0,
+        "most of the lost time is spent ramping: {ramping} s"
+    );
+    assert!(
+        (s.summary.regulation_loss_s - lost).abs() < 1e-6,
+        "regulation_loss_s {} is the sum of the periods {lost}",
+        s.summary.regulation_loss_s
+    );
+    // Thousands of located switching times must not open the energy ledger (each segment
+    // starts from an integrated state, not an interpolated one).
+    assert!(
+        s.summary.energy_balance_error < 1e-4,
+        "energy_balance_error {}",
+        s.summary.energy_balance_error
+    );
+    assert!(
+        s.summary.in_regulation_fraction < 0.5,
+        "in_regulation_fraction {}",
+        s.summary.in_regulation_fraction
+    );
+    assert_eq!(
+        s.summary.verdict,
+        Verdict::One("fails_regulation".to_string()),
+        "the verdict flags it"
+    );
 }
 
 #[test]
@@ -521,4 +601,273 @@ fn input_floor_is_checked() {
         .args(["check", "demo", "--set", "converter.input_floor_v=12.0"])
         .assert()
         .code(0);
+}
+
+// ---------------------------------------------------------------------------------------------
+// 5 V USB output
+// ---------------------------------------------------------------------------------------------
+
+/// The device figures of the shipped USB setup, read with the test's own parser.
+#[derive(serde::Deserialize)]
+struct UsbFile {
+    usb: UsbSection,
+}
+
+#[derive(serde::Deserialize)]
+struct UsbSection {
+    device_current_a: f64,
+    device_cutoff_v: f64,
+    device_reconnect_delay_s: f64,
+}
+
+fn usb_file() -> UsbSection {
+    let text = std::fs::read_to_string(setup_path("usb-phone")).expect("usb-phone.ron");
+    ron::Options::default()
+        .with_default_extension(ron::extensions::Extensions::IMPLICIT_SOME)
+        .from_str::<UsbFile>(&text)
+        .expect("usb section")
+        .usb
+}
+
+#[test]
+fn usb_phone_demo_runs_end_to_end() {
+    let w = WorkDir::new();
+    let setup = setup_path("usb-phone");
+    run_ok(&w, &["run", setup.to_str().expect("utf-8"), "--out", "usb"]);
+    for f in [
+        "trace.csv",
+        "events.csv",
+        "summary.json",
+        "session.png",
+        "session.svg",
+    ] {
+        assert!(w.path("usb").join(f).is_file(), "{f} written");
+    }
+    let m: serde_json::Value =
+        serde_json::from_str(&w.read("usb/summary.json")).expect("summary.json");
+    assert_eq!(m["output"], "usb_5v");
+    let err = m["energy_balance_error"].as_f64().expect("ledger closure");
+    assert!(err < 1e-3, "ledger closes to {err}");
+    let (soc0, soc1) = (
+        m["soc_start"].as_f64().expect("soc_start"),
+        m["soc_end"].as_f64().expect("soc_end"),
+    );
+    assert!(
+        soc1 > soc0 + 0.01,
+        "the phone's cell charges: {soc0} -> {soc1}"
+    );
+    assert!(m["usb"]["energy_to_bus_wh"].as_f64().expect("bus energy") > 0.0);
+    // The pass element's heat is in the ledger: bus energy = cell energy + device loss.
+    let (bus, cell, loss) = (
+        m["usb"]["energy_to_bus_wh"].as_f64().unwrap(),
+        m["energy_to_battery_wh"].as_f64().unwrap(),
+        m["usb"]["device_loss_wh"].as_f64().unwrap(),
+    );
+    assert!(loss > 0.0 && (bus - cell - loss).abs() < 1e-9 * bus);
+
+    // trace.csv: the bus columns follow the contract ones, and output_v is the bus.
+    let (header, rows) = read_csv(&w.path("usb/trace.csv"));
+    assert_eq!(header[8], "output_v");
+    assert!(header[16..].contains(&"bus_v".to_string()));
+    assert!(header[16..].contains(&"bus_current_a".to_string()));
+    let output = crate::common::column(&header, &rows, "output_v");
+    let bus = crate::common::column(&header, &rows, "bus_v");
+    let cell = crate::common::column(&header, &rows, "battery_v");
+    assert_eq!(output, bus);
+    // While the device charges at its full current, the bus sits above its cell.
+    let i_bus = crate::common::column(&header, &rows, "bus_current_a");
+    let charging: Vec<usize> = (0..rows.len()).filter(|&k| i_bus[k] > 0.5).collect();
+    assert!(
+        charging.len() > 1000,
+        "the device draws for most of the session"
+    );
+    assert!(charging.iter().all(|&k| bus[k] > cell[k]));
+}
+
+/// A crank profile of the test's own: brisk, slowing down, too slow for the port, then brisk
+/// again (a smooth operator, so the outcome does not hang on the wander).
+const SLOW_MIDDLE: &str = r#"(
+    name: "slow-middle",
+    description: "test profile: 15 s brisk, 15 s slowing, 50 s too slow for the port, 20 s brisk",
+    seed: 7,
+    segments: [
+        (duration_s: 15.0, cadence_rpm: 70.0),
+        (duration_s: 15.0, cadence_rpm: 70.0, end_cadence_rpm: 42.0),
+        (duration_s: 50.0, cadence_rpm: 42.0),
+        (duration_s: 20.0, cadence_rpm: 70.0),
+    ],
+    operator: (
+        peak_torque_n_m: 30.0,
+        max_cadence_rpm: 220.0,
+        critical_power_w: 65.0,
+        w_prime_j: 9000.0,
+        peak_power_w: 140.0,
+        tracking_gain_n_m_per_rpm: 0.25,
+        tracking_time_s: 1.5,
+    ),
+    jitter: (enabled: false),
+)"#;
+
+#[test]
+fn usb_bus_sags_under_a_slow_crank_and_the_device_cuts_off_and_reconnects() {
+    let w = WorkDir::new();
+    std::fs::write(w.path("slow.ron"), SLOW_MIDDLE).expect("profile");
+    let s = SourceText::resolve(
+        Some(setup_path("usb-phone").to_str().expect("utf-8")),
+        InputKind::Setup,
+    )
+    .expect("setup");
+    let p = SourceText::resolve(
+        Some(w.path("slow.ron").to_str().expect("utf-8")),
+        InputKind::Profile,
+    )
+    .expect("profile");
+    let sc = load_scenario(&s, &p, &[]).expect("scenario");
+    let dev = usb_file();
+    let (fast, detailed) = std::thread::scope(|t| {
+        let d = t.spawn(|| run(&sc, None, Fidelity::Detailed));
+        (
+            run(&sc, None, Fidelity::Fast),
+            d.join().expect("detailed run"),
+        )
+    });
+    for s in [&fast, &detailed] {
+        let f = &s.summary.fidelity;
+        let ev = &s.result.events;
+        // The bus sags out of the band first (the device still draws), then the device lets go.
+        assert!(
+            ev.iter().any(|e| e.kind == EventKind::RegulationLoss
+                && e.detail.starts_with("bus outside the band")),
+            "{f}: a regulation_loss for the sagging bus"
+        );
+        let cuts: Vec<&crankcharge::analysis::events::Event> = ev
+            .iter()
+            .filter(|e| e.kind == EventKind::DeviceCutoff)
+            .collect();
+        assert!(cuts.len() >= 2, "{f}: cut-offs {}", cuts.len());
+        // Hysteresis: one cut-off per reconnect delay at most, never a burst at one instant.
+        for pair in cuts.windows(2) {
+            assert!(
+                pair[1].start_s - pair[0].start_s >= dev.device_reconnect_delay_s - 1e-6,
+                "{f}: cut-offs at {} and {} s",
+                pair[0].start_s,
+                pair[1].start_s
+            );
+        }
+        assert!(
+            cuts.len() as f64 <= 60.0 / dev.device_reconnect_delay_s + 2.0,
+            "{f}: {} cut-offs in a 60-s slow stretch",
+            cuts.len()
+        );
+        let first_cut = cuts[0].start_s;
+        assert_eq!(s.summary.usb.as_ref().unwrap().device_cutoffs, cuts.len());
+        assert!(s.summary.in_regulation_fraction < 0.5, "{f}");
+        let rows = &s.result.trace.rows;
+        // It reconnects: in the last brisk stretch it draws again from a bus inside the band.
+        let back: Vec<_> = rows.iter().filter(|r| r.time_s > 90.0).collect();
+        assert!(!back.is_empty());
+        assert!(
+            back.iter().all(|r| r.in_regulation
+                && r.bus_current_a > 0.5
+                && (4.75..=5.25).contains(&r.bus_v)),
+            "{f}: the device is back on a good bus at the end"
+        );
+        // While the bus sags as the crank slows (converter saturated, device still on and long
+        // since ramped up), the device keeps its full current: a current sink, unlike a battery
+        // whose current falls with the voltage.
+        let sagging: Vec<_> = rows
+            .iter()
+            .filter(|r| r.time_s < first_cut && r.time_s > 15.0)
+            .filter(|r| r.mode == Mode::Dropout && r.bus_v < 4.75)
+            .collect();
+        assert!(sagging.len() >= 5, "{f}: {} sagging samples", sagging.len());
+        for r in &sagging {
+            // A device still on the bus sees it at or above its cut-off.
+            assert!(r.bus_v >= dev.device_cutoff_v - 1e-6, "{f}: {} V", r.bus_v);
+            assert!(
+                (r.bus_current_a - dev.device_current_a).abs() < 1e-6,
+                "{f}: {} A at {} V",
+                r.bus_current_a,
+                r.bus_v
+            );
+        }
+        // Off the bus, the device draws nothing.
+        assert!(rows
+            .iter()
+            .filter(|r| r.mode == Mode::DeviceOff)
+            .all(|r| r.bus_current_a.abs() < 1e-9));
+    }
+    // The two fidelities agree on the cut-offs and on the charge.
+    let n = |s: &Session| s.summary.usb.as_ref().unwrap().device_cutoffs as f64;
+    assert!((n(&fast) - n(&detailed)).abs() <= 1.0);
+    let (qf, qd) = (
+        fast.summary.charge_delivered_ah,
+        detailed.summary.charge_delivered_ah,
+    );
+    assert!(
+        (qf - qd).abs() <= 0.005 * qd,
+        "fast {qf} vs detailed {qd} Ah"
+    );
+}
+
+#[test]
+fn usb_port_is_checked() {
+    let w = WorkDir::new();
+    let setup = setup_path("usb-phone");
+    let setup = setup.to_str().expect("utf-8");
+    for (set, words) in [
+        // A linear converter cannot hold a bus for a device.
+        ("converter.topology=linear", "buck or buck_boost"),
+        // The device needs hysteresis between letting go and coming back.
+        ("usb.device_reconnect_v=4.3", "usb.device_reconnect_v"),
+        // A two-cell pack's charge limit lies above a 5 V bus: it could never be charged.
+        ("battery.cells_series=2", "charge limit"),
+        (
+            "usb.device_reconnect_delay_s=0",
+            "usb.device_reconnect_delay_s",
+        ),
+    ] {
+        let err = run_code(&w, &["check", setup, "--set", set], 2);
+        assert!(err.contains(words), "--set {set}: {err}");
+    }
+    let out = run_ok(&w, &["check", setup]);
+    assert!(out.contains("bus holds 4.75 V"), "{out}");
+}
+
+#[test]
+fn usb_check_figures_are_ordered_and_scale_with_the_drive_ratio() {
+    let w = WorkDir::new();
+    let setup = setup_path("usb-phone");
+    let setup = setup.to_str().expect("utf-8");
+    let figures = |sets: &[&str]| -> serde_json::Value {
+        let mut args = vec!["check", setup, "--json"];
+        for s in sets {
+            args.extend(["--set", s]);
+        }
+        let v: serde_json::Value = serde_json::from_str(&run_ok(&w, &args)).expect("json");
+        v["usb"].clone()
+    };
+    let a = figures(&[]);
+    let cad = |v: &serde_json::Value, k: &str| v[k].as_f64().unwrap_or_else(|| panic!("{k}: {v}"));
+    let (cut, band, set) = (
+        cad(&a, "cutoff_cadence_rpm"),
+        cad(&a, "band_cadence_rpm"),
+        cad(&a, "setpoint_cadence_rpm"),
+    );
+    // A lower bus voltage needs less cadence: cut-off (4.4 V) < band edge (4.75 V) < set point.
+    assert!(0.0 < cut && cut < band && band < set, "{cut} {band} {set}");
+    // The network sees only the generator speed: doubling the first ratio halves each cadence.
+    let b = figures(&["drive.stages.0.ratio=7.0"]);
+    for k in [
+        "cutoff_cadence_rpm",
+        "band_cadence_rpm",
+        "setpoint_cadence_rpm",
+    ] {
+        assert!(
+            (cad(&b, k) - cad(&a, k) / 2.0).abs() < 2e-3,
+            "{k}: {} vs {}",
+            cad(&b, k),
+            cad(&a, k)
+        );
+    }
 }

@@ -22,6 +22,8 @@ pub enum EventKind {
     OperatorOverload,
     /// Charge terminated (informational).
     ChargeComplete,
+    /// USB port: the device cut itself off the sagging (or vanished) bus, until it reconnects.
+    DeviceCutoff,
 }
 
 impl EventKind {
@@ -36,6 +38,7 @@ impl EventKind {
             EventKind::ChargeTempWindow => "charge_temp_window",
             EventKind::OperatorOverload => "operator_overload",
             EventKind::ChargeComplete => "charge_complete",
+            EventKind::DeviceCutoff => "device_cutoff",
         }
     }
 
@@ -44,6 +47,10 @@ impl EventKind {
         !matches!(self, EventKind::ChargeComplete)
     }
 }
+
+/// How the detail of a USB `regulation_loss` period begins when the bus left its band while the
+/// device drew from it (the summary totals these periods as the time out of band).
+pub const OUT_OF_BAND_DETAIL: &str = "bus outside the band";
 
 /// One period or instant of interest.
 #[derive(Debug, Clone, PartialEq, Serialize)]

@@ -67,6 +67,8 @@ pub struct Summary {
     // Extras after the contract keys.
     pub topology: String,
     pub chemistry: String,
+    /// What the converter feeds: `battery` or `usb_5v`.
+    pub output: String,
     pub cranking_s: f64,
     pub charging_fraction: f64,
     pub lockout_s: f64,
@@ -78,6 +80,35 @@ pub struct Summary {
     pub ledger: Ledger,
     /// Integrator figures.
     pub solver: SolverStats,
+    /// The USB bus (only with a USB port).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub usb: Option<UsbSummary>,
+}
+
+/// Figures of a USB port's bus (`summary.json` `usb`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct UsbSummary {
+    /// Bus voltage the converter holds, V.
+    pub bus_setpoint_v: f64,
+    /// Port current limit, A.
+    pub port_current_a: f64,
+    /// Regulation band, V.
+    pub band_low_v: f64,
+    pub band_high_v: f64,
+    /// Lowest bus voltage while the device drew (all samples if it never drew), trace grid, V.
+    pub min_bus_v: f64,
+    /// Highest bus voltage, trace grid, V.
+    pub max_bus_v: f64,
+    /// Cranking time during which the device drew with the bus outside the band, s.
+    pub out_of_band_s: f64,
+    /// Device cut-offs while cranking (`device_cutoff` events).
+    pub device_cutoffs: usize,
+    /// Their total time, s.
+    pub device_cutoff_s: f64,
+    /// Energy the bus delivered to the device, Wh.
+    pub energy_to_bus_wh: f64,
+    /// Heat in the device's charger between bus and cell, Wh.
+    pub device_loss_wh: f64,
 }
 
 /// Total duration of the events of one kind, s.
@@ -107,7 +138,7 @@ pub fn battery_peak(trace: &Trace) -> (f64, f64) {
 
 /// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
 /// so that study files are identical for identical inputs.
-pub const SCALAR_KEYS: [&str; 26] = [
+pub const SCALAR_KEYS: [&str; 30] = [
     "duration_s",
     "fidelity",
     "soc_start",
@@ -134,6 +165,10 @@ pub const SCALAR_KEYS: [&str; 26] = [
     "efficiency_crank_to_battery",
     "alert_count",
     "alert_kinds",
+    "output",
+    "min_bus_v",
+    "bus_out_of_band_s",
+    "device_cutoffs",
 ];
 
 impl Summary {
@@ -169,6 +204,16 @@ impl Summary {
             fmt(self.efficiency_crank_to_battery),
             self.alerts.len().to_string(),
             kinds.join("+"),
+            self.output.clone(),
+            self.usb
+                .as_ref()
+                .map_or_else(String::new, |u| fmt(u.min_bus_v)),
+            self.usb
+                .as_ref()
+                .map_or_else(String::new, |u| fmt(u.out_of_band_s)),
+            self.usb
+                .as_ref()
+                .map_or_else(String::new, |u| u.device_cutoffs.to_string()),
         ]
     }
 }

@@ -24,6 +24,8 @@ pub enum Mode {
     TempHold,
     /// Diode-only connection: generator feeds the battery directly.
     Direct,
+    /// USB port: the device is off the bus (cut off, or waiting to attach) while the converter runs.
+    DeviceOff,
 }
 
 impl Mode {
@@ -39,6 +41,7 @@ impl Mode {
             Mode::Done => "done",
             Mode::TempHold => "temp_hold",
             Mode::Direct => "direct",
+            Mode::DeviceOff => "device_off",
         }
     }
 }
@@ -67,10 +70,14 @@ pub struct TraceRow {
     pub w_prime_balance_j: f64,
     pub winding_temp_c: f64,
     pub in_regulation: bool,
+    /// Converter output: the USB bus, or the battery terminal (then equal to `battery_v`), V.
+    pub bus_v: f64,
+    /// Current out of the converter output into the device or the battery, A.
+    pub bus_current_a: f64,
 }
 
 /// Column names of `trace.csv`, in order.
-pub const TRACE_COLUMNS: [&str; 20] = [
+pub const TRACE_COLUMNS: [&str; 22] = [
     "time_s",
     "crank_rpm",
     "target_rpm",
@@ -91,6 +98,8 @@ pub const TRACE_COLUMNS: [&str; 20] = [
     "w_prime_balance_j",
     "winding_temp_c",
     "in_regulation",
+    "bus_v",
+    "bus_current_a",
 ];
 
 /// The whole sampled trace of one session.

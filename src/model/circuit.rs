@@ -191,6 +191,28 @@ pub fn evaluate(
     }
 }
 
+/// The network with a current sink on the output capacitor instead of a battery (a USB device
+/// drawing `sink(v_o)` from the bus): the converter evaluated with its output open, then the sink's
+/// current taken from the output capacitor. The point's battery side is the bus: (sink current, v_o).
+pub fn evaluate_with_sink(
+    src: &Source,
+    k: &CircuitConstants,
+    drive: Drive,
+    x: &FastStates,
+    sink: impl Fn(f64) -> f64,
+) -> (NetworkPoint, FastRates) {
+    // current_at(v_o) of this terminal is exactly zero: an open output.
+    let open = Terminal::Linear {
+        rest_v: x.output_v,
+        r_ohm: 1.0,
+    };
+    let (mut p, mut r) = evaluate(src, k, &open, drive, x);
+    let i = sink(x.output_v);
+    p.battery_current_a = i;
+    r.output -= i / k.output_capacitance_f;
+    (p, r)
+}
+
 /// Full-order averaged buck-boost: on-interval slope a = v_in − 2V_sw − 2·i_L·R_on, off-interval
 /// b = v_o + 2V_D; the diodes conduct for d2 = 2L·i_L/(d·T·a) − d when that is below 1 − d (DCM),
 /// else 1 − d. The input takes the share d/(d + d2) of i_L, the output d2/(d + d2).

@@ -13,3 +13,5 @@ pub mod network;
 pub mod operator;
 pub mod roots;
 pub mod thermal;
+pub mod usb;
+pub mod usb_network;

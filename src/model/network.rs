@@ -10,7 +10,7 @@ use crate::model::battery::Terminal;
 use crate::model::converter::{BuckBoostModel, BuckModel, ConverterLosses, LinearModel};
 use crate::model::diode::DiodeModel;
 use crate::model::generator::GeneratorModel;
-use crate::model::roots::root_in;
+use crate::model::roots::{newton_bracketed, root_in};
 use crate::scenario::setup::Topology;
 
 /// Absolute tolerance of the current solves, A.
@@ -169,8 +169,10 @@ fn direct_point(src: &Source, term: &Terminal) -> NetworkPoint {
     let rest = term.v(0.0).0;
     let r = src.resistance_ohm.max(1e-9);
     let i = if src.emf_v - src.diode.threshold_v() > rest {
+        // The ends need no check: f(0) = rest − (E − V_D(0)) < 0 here, and at hi the copper alone
+        // drops E − rest, so f(hi) ≥ V_D(hi) ≥ 0.
         let hi = (src.emf_v - rest) / r;
-        root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, f)
+        newton_bracketed(0.0, hi, 0.5 * hi, CURRENT_TOL_A, f)
     } else if !src.diode.blocks_reverse() && src.emf_v < rest {
         let lo = (src.emf_v - rest) / r;
         root_in(lo, 0.0, 0.5 * lo, CURRENT_TOL_A, f)

@@ -90,6 +90,8 @@ fn trace_record(r: &TraceRow) -> [Cell; TRACE_COLUMNS.len()] {
         Num(r.w_prime_balance_j, 2),
         Num(r.winding_temp_c, 4),
         Word(if r.in_regulation { "1" } else { "0" }),
+        Num(r.bus_v, 6),
+        Num(r.bus_current_a, 6),
     ]
 }
 

@@ -745,7 +745,10 @@ struct SessionFig<'a> {
 /// Panel (0-based, top to bottom) on whose top edge an alert kind is drawn.
 fn alert_panel(kind: EventKind) -> Option<usize> {
     match kind {
-        EventKind::Overcharge | EventKind::InputOvervoltage | EventKind::Lockout => Some(1),
+        EventKind::Overcharge
+        | EventKind::InputOvervoltage
+        | EventKind::Lockout
+        | EventKind::DeviceCutoff => Some(1),
         EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => Some(2),
         EventKind::OperatorOverload => Some(3),
         EventKind::RegulationLoss | EventKind::ChargeComplete => None,
@@ -762,6 +765,7 @@ fn alert_label(kind: EventKind) -> &'static str {
         EventKind::OperatorOverload => "operator overload",
         EventKind::RegulationLoss => "regulation lost",
         EventKind::ChargeComplete => "charge complete",
+        EventKind::DeviceCutoff => "device cut off",
     }
 }
 
@@ -775,6 +779,7 @@ fn alert_color(kind: EventKind) -> RGBColor {
         EventKind::OperatorOverload => RGBColor(138, 30, 34),
         EventKind::RegulationLoss => BAND,
         EventKind::ChargeComplete => OLIVE,
+        EventKind::DeviceCutoff => RGBColor(20, 140, 120),
     }
 }
 
@@ -874,7 +879,7 @@ impl Figure for SessionFig<'_> {
         s_rpm.add(0.0);
         let s_volt = Span::of(
             rows.iter()
-                .flat_map(|r| [r.emf_v, r.input_v, r.battery_v, r.charge_limit_v]),
+                .flat_map(|r| [r.emf_v, r.input_v, r.battery_v, r.charge_limit_v, r.bus_v]),
         );
         let mut s_amp = Span::of(rows.iter().map(|r| r.battery_current_a));
         s_amp.add(0.0);
@@ -990,8 +995,15 @@ impl Figure for SessionFig<'_> {
                         BRICK,
                         true,
                     )?;
+                    let usb = rows.iter().any(|r| (r.bus_v - r.battery_v).abs() > 1e-9);
+                    if usb {
+                        pen.line(area, rows.iter().map(|r| (t(r), r.bus_v)), UMBER, false)?;
+                    }
                     legend.push(item("generator EMF", Glyph::Line(OLIVE)));
                     legend.push(item("converter input", Glyph::Line(TEAL)));
+                    if usb {
+                        legend.push(item("USB bus", Glyph::Line(UMBER)));
+                    }
                     legend.push(item("battery terminal", Glyph::Line(SLATE)));
                     legend.push(item("charge limit", Glyph::Dashed(BRICK)));
                 }
@@ -1478,6 +1490,8 @@ mod tests {
             w_prime_balance_j: 15000.0,
             winding_temp_c: 30.0,
             in_regulation: true,
+            bus_v: 12.6 + t / 2000.0,
+            bus_current_a: 1.5 + 0.3 * (t / 25.0).cos(),
         }
     }
 

@@ -25,6 +25,7 @@ pub const SETUPS: &[Embedded] = &[
     embed!("demo-buck-boost", "setups"),
     embed!("lfp-linear", "setups"),
     embed!("lead-acid-buck", "setups"),
+    embed!("usb-phone", "setups"),
 ];
 
 /// Shipped crank profiles; the first is the default.

@@ -23,6 +23,11 @@ pub struct Setup {
     pub converter: Converter,
     /// The battery being charged.
     pub battery: Battery,
+    /// A 5 V USB port on the converter output instead of a battery there: the converter holds the
+    /// bus and a device (whose cell is `battery`) draws from it. None: the battery sits on the
+    /// converter output.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub usb: Option<UsbPort>,
     /// Thresholds for alerts and the verdict.
     #[serde(default)]
     pub alerts: Alerts,
@@ -456,6 +461,93 @@ fn default_h() -> f64 {
     7.0
 }
 
+/// A USB port on the converter output and the device plugged into it. The converter (buck or
+/// buck-boost) holds the bus at `bus_v` up to `port_current_a`; the device is a current-limited
+/// linear charger feeding its own cell (the setup's `battery`), drawing up to `device_current_a`
+/// (less in the CV taper), and it cuts itself off when the bus falls below `device_cutoff_v`.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct UsbPort {
+    /// Bus voltage the converter holds (its CV set point), V (4.0 … 5.5); 5.0 for USB.
+    #[serde(default = "default_bus_v")]
+    pub bus_v: f64,
+    /// Port current limit (the converter's CC limit), A (0.05 … 5); 0.5 for a USB 2.0 port,
+    /// up to 1.5 for a Battery Charging 1.2 dedicated charging port.
+    #[serde(default = "default_port_current")]
+    pub port_current_a: f64,
+    /// Most current the device draws from the bus (its input current limit), A (0.01 … 5).
+    pub device_current_a: f64,
+    /// Headroom the device's charger needs between bus and cell at `device_current_a`, V
+    /// (0.01 … 2); its pass element is then fully on. Default 0.3.
+    #[serde(default = "default_device_dropout")]
+    pub device_dropout_v: f64,
+    /// The device disconnects when the bus falls below this, V (2.5 … 5.5); default 4.40, the
+    /// lowest VBUS a USB 2.0 low-power device must still work at.
+    #[serde(default = "default_device_cutoff")]
+    pub device_cutoff_v: f64,
+    /// The device reconnects once the bus is back at or above this, V (above `device_cutoff_v`,
+    /// at most `bus_v`); default 4.60.
+    #[serde(default = "default_device_reconnect")]
+    pub device_reconnect_v: f64,
+    /// Least time the device stays off after a cut-off before it reconnects, s (0.1 … 60);
+    /// default 2.
+    #[serde(default = "default_device_reconnect_delay")]
+    pub device_reconnect_delay_s: f64,
+    /// Time the device takes to ramp its draw from zero to its demand after attaching, s
+    /// (0 … 10; 0: at once); default 0.5.
+    #[serde(default = "default_device_ramp")]
+    pub device_ramp_s: f64,
+    /// The device ends its charge when its CV current falls below this, A (0 … 50); default C/10
+    /// of its cell.
+    #[serde(default)]
+    pub device_termination_current_a: Option<f64>,
+    /// Lower edge of the bus regulation band, V (3 … 5.5); default 4.75 (USB 2.0 §7.2.1; BC 1.2).
+    #[serde(default = "default_band_low")]
+    pub band_low_v: f64,
+    /// Upper edge of the bus regulation band, V (above `band_low_v`, at most 6); default 5.25.
+    #[serde(default = "default_band_high")]
+    pub band_high_v: f64,
+}
+
+fn default_bus_v() -> f64 {
+    5.0
+}
+fn default_port_current() -> f64 {
+    1.5
+}
+fn default_device_dropout() -> f64 {
+    0.3
+}
+fn default_device_cutoff() -> f64 {
+    4.4
+}
+fn default_device_reconnect() -> f64 {
+    4.6
+}
+fn default_device_reconnect_delay() -> f64 {
+    2.0
+}
+fn default_device_ramp() -> f64 {
+    0.5
+}
+fn default_band_low() -> f64 {
+    4.75
+}
+fn default_band_high() -> f64 {
+    5.25
+}
+
+impl Setup {
+    /// The word naming what the converter feeds, used in summaries: `battery` or `usb_5v`.
+    pub fn output_word(&self) -> &'static str {
+        if self.usb.is_some() {
+            "usb_5v"
+        } else {
+            "battery"
+        }
+    }
+}
+
 /// Alert thresholds and the verdict rule.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields, default)]
@@ -495,9 +587,9 @@ pub struct Solver {
 impl Default for Solver {
     fn default() -> Self {
         Self {
-            rtol: 1e-6,
+            rtol: 1e-4,
             atol: 1e-8,
-            max_step_s: 0.05,
+            max_step_s: 0.1,
             trace_interval_s: 0.1,
         }
     }

@@ -1,7 +1,7 @@
 //! Range checks of every physical field, with the path and the allowed range for the message.
 
 use super::profile::Profile;
-use super::setup::{DiodeKind, Setup, Topology};
+use super::setup::{DiodeKind, Setup, Topology, UsbPort};
 
 /// One field outside its allowed range.
 #[derive(Debug, Clone, PartialEq)]
@@ -413,6 +413,10 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         0.5,
     );
 
+    if let Some(u) = &s.usb {
+        usb(&mut c, s, u);
+    }
+
     let a = &s.alerts;
     c.range(
         "alerts.battery_overtemp_c",
@@ -438,6 +442,88 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
     c.range("solver.max_step_s", so.max_step_s, 1e-4, 1.0);
     c.range("solver.trace_interval_s", so.trace_interval_s, 1e-3, 60.0);
     c.out
+}
+
+/// Ranges of a USB port and the rules that tie it to the rest of the setup: a switching
+/// converter to hold the bus, a Li-ion cell in the device whose charge limit lies below the bus,
+/// cut-off below reconnect at most the bus, and an ordered band.
+fn usb(c: &mut Checker, s: &Setup, u: &UsbPort) {
+    c.range("usb.bus_v", u.bus_v, 4.0, 5.5);
+    c.range("usb.port_current_a", u.port_current_a, 0.05, 5.0);
+    c.range("usb.device_current_a", u.device_current_a, 0.01, 5.0);
+    c.range("usb.device_dropout_v", u.device_dropout_v, 0.01, 2.0);
+    c.range("usb.device_cutoff_v", u.device_cutoff_v, 2.5, 5.5);
+    c.range(
+        "usb.device_reconnect_v",
+        u.device_reconnect_v,
+        u.device_cutoff_v,
+        u.bus_v,
+    );
+    c.rule(
+        u.device_reconnect_v > u.device_cutoff_v,
+        "usb.device_reconnect_v",
+        format!("{}", u.device_reconnect_v),
+        "above usb.device_cutoff_v (hysteresis)",
+    );
+    c.range(
+        "usb.device_reconnect_delay_s",
+        u.device_reconnect_delay_s,
+        0.1,
+        60.0,
+    );
+    c.range("usb.device_ramp_s", u.device_ramp_s, 0.0, 10.0);
+    c.opt_range(
+        "usb.device_termination_current_a",
+        u.device_termination_current_a,
+        0.0,
+        50.0,
+    );
+    c.range("usb.band_low_v", u.band_low_v, 3.0, 5.5);
+    c.range("usb.band_high_v", u.band_high_v, u.band_low_v, 6.0);
+    c.rule(
+        matches!(s.converter.topology, Topology::Buck | Topology::BuckBoost),
+        "converter.topology",
+        s.converter.topology.as_str().to_string(),
+        "buck or buck_boost with a `usb` port (a switching converter holds the bus)",
+    );
+    c.rule(
+        s.converter.cv_setpoint_v.is_none(),
+        "converter.cv_setpoint_v",
+        "set with a `usb` port".into(),
+        "none with a `usb` port (the bus set point is usb.bus_v)",
+    );
+    c.rule(
+        s.converter.termination_current_a.is_none(),
+        "converter.termination_current_a",
+        "set with a `usb` port".into(),
+        "none with a `usb` port (the device's is usb.device_termination_current_a)",
+    );
+    c.rule(
+        s.converter.input_floor_v.is_none(),
+        "converter.input_floor_v",
+        "set with a `usb` port".into(),
+        "none with a `usb` port (the device, not the converter, sets the bus current)",
+    );
+    let b = &s.battery;
+    if b.chemistry.is_lithium() {
+        let per_cell = b
+            .charge_v_per_cell
+            .unwrap_or_else(|| crate::model::battery::li_ion::default_cv_v_per_cell(b.chemistry));
+        let limit = per_cell * f64::from(b.cells_series);
+        c.rule(
+            limit < u.bus_v,
+            "usb.bus_v",
+            format!("{} (cell charge limit {limit:.3} V)", u.bus_v),
+            "above the charge limit of the device's cell (its charger steps down from the bus)",
+        );
+    } else {
+        c.rule(
+            false,
+            "battery.chemistry",
+            b.chemistry.as_str().to_string(),
+            "a Li-ion cell (nmc, lco, nca, lfp) in the device behind a `usb` port",
+        );
+    }
 }
 
 /// Checks a profile; an empty list means valid.

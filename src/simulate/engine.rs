@@ -50,13 +50,13 @@ const BRIDGE_S: f64 = 5e-3;
 ///
 /// Choice (measured by benches/session.rs, whose header has the reasoning): the detailed
 /// fidelity uses Radau5 from `differential-equations`. Dopri5 is held there by stability to
-/// ~13-µs steps (the 60-s demo: 3.3 M steps, 7–9 s); Radau5, L-stable, steps at the accuracy
-/// asked or the 50-ms limit (~2 700 steps, ~0.1 s) and lands closer to the scipy reference. Its
-/// one-step-at-a-time API with per-step dense output is what the per-step checks and event
-/// location need. That crate's BDF lost the mode changes; `ivp`'s BDF was quicker on a smooth
+/// ~13-µs steps (the 60-s demo: 3.3 M steps, 5–9 s); Radau5, L-stable, steps at the accuracy
+/// asked or the step limit (~1 400 steps, ~45 ms at the defaults) and lands closer to the scipy
+/// reference. Its one-step-at-a-time API with per-step dense output is what the per-step checks
+/// and event location need. That crate's BDF lost the mode changes; `ivp`'s BDF was quicker on a smooth
 /// stretch but missed its tolerance. The fast fidelity has no stiff state left and stays on
-/// Dopri5, whose cheap steps win there (Radau5 failed on the demo's branch change and was 4–5
-/// times slower elsewhere).
+/// Dopri5, whose cheap steps win there (Radau5 was 5–13 times slower, and at rtol 1e-6 failed on
+/// the demo's branch change).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Method {
@@ -174,6 +174,8 @@ pub struct Ledger {
     /// Change of the energy in inductances and capacitors (detailed fidelity), J.
     pub field_change_j: f64,
     pub charge_as: f64,
+    /// Heat in a USB device's charger between bus and cell, J (0 for a battery output).
+    pub device_loss_j: f64,
 }
 
 impl Ledger {
@@ -190,7 +192,8 @@ impl Ledger {
             + self.battery_coulombic_j
             + self.stored_chemical_j
             + self.rc_change_j
-            + self.field_change_j;
+            + self.field_change_j
+            + self.device_loss_j;
         (self.operator_work_j - out).abs() / self.operator_work_j.abs().max(1.0)
     }
 }
@@ -339,6 +342,10 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         engaged: true,
         soft_done: plant.charger.soft_start_s <= 0.0,
         disabled_at_s: f64::NEG_INFINITY,
+        device_on: false,
+        device_off_at_s: f64::NEG_INFINITY,
+        device_on_at_s: f64::NEG_INFINITY,
+        device_cutoffs: 0,
     };
     let mut y = y0;
     let mut t = 0.0;
@@ -350,7 +357,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let sampler = Sampler::new(opts.trace_interval_s, t_end);
     let evals = Cell::new(0u64);
 
-    cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats)?;
+    cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats, None)?;
     let p0 = plant.eval(t, &y, &disc);
     observer.set(t, &codes(plant, &p0, &y, &disc), plant, &p0, &y);
     let mut h_guess: f64 = 0.0;
@@ -433,7 +440,15 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             disc.resting = resting;
             stats.mode_changes += 1;
         }
-        cascade(plant, t, &mut y, &mut disc, &mut run.observer, &mut stats)?;
+        cascade(
+            plant,
+            t,
+            &mut y,
+            &mut disc,
+            &mut run.observer,
+            &mut stats,
+            end.located,
+        )?;
         let p = plant.eval(t, &y, &disc);
         run.observer
             .set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
@@ -469,11 +484,13 @@ struct SegmentStart {
     h_guess: f64,
 }
 
-/// Where a segment ended: the located switching time or the segment end, and the last step size.
+/// Where a segment ended: the located switching time or the segment end, the last step size,
+/// and the transition found due at a located switching time.
 struct SegmentEnd {
     t: f64,
     y: State,
     h_last: f64,
+    located: Option<Transition>,
 }
 
 /// Per-step bookkeeping shared by every integrator: trace sampling, watched conditions and the
@@ -487,15 +504,18 @@ struct Walk<'a> {
 impl Walk<'_> {
     /// Handles the accepted step (a, end.t]. If a mode change is due at its end, the switching
     /// time is located by bisection on `dense` and the step is used only up to there; that time
-    /// and state are returned (the segment ends). Trace rows and watched conditions are taken up
-    /// to the end of the valid part.
+    /// and the transition found due there are returned (the segment ends; the caller supplies
+    /// the state to restart from). Trace rows are taken up to the end of the valid part, and
+    /// watched conditions are checked at every grid time and at the step end, each change located
+    /// between the two check points around it (a condition that comes and goes inside one long
+    /// step is still caught when it holds at a grid time).
     fn step(
         &mut self,
         disc: &Discrete,
         a: f64,
         end: &StepEnd,
         dense: &dyn Fn(f64) -> State,
-    ) -> Option<(f64, State)> {
+    ) -> Option<(f64, Option<Transition>)> {
         let plant = self.plant;
         let stop = due(plant, &end.p, &end.y, disc).map(|_| {
             let ts = bisect(a, end.t, |tq| {
@@ -503,14 +523,20 @@ impl Walk<'_> {
                 let pq = plant.eval(tq, &yq, disc);
                 due(plant, &pq, &yq, disc).is_some()
             });
-            (ts, dense(ts))
+            let yd = dense(ts);
+            (ts, due(plant, &plant.eval(ts, &yd, disc), &yd, disc))
         });
         let b = stop.map_or(end.t, |(ts, _)| ts);
+        let mut a = a;
         if b > a {
             let observer = &mut self.observer;
             self.sampler.sample_until(b, |tq| {
                 let yq = dense(tq);
                 let pq = plant.eval(tq, &yq, disc);
+                if tq > a {
+                    watch(plant, disc, observer, a, tq, &yq, &pq, dense);
+                    a = tq;
+                }
                 observer.touch(&pq, &yq);
                 row(plant, &pq, &yq, disc)
             });
@@ -520,7 +546,9 @@ impl Walk<'_> {
             } else {
                 (end.y, end.p)
             };
-            watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
+            if b > a {
+                watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
+            }
             self.observer.touch(&pb, &yb);
         }
         stop
@@ -595,6 +623,7 @@ fn explicit_segment(
             t: t_stop,
             y,
             h_last: 0.0,
+            located: None,
         });
     }
     // Evaluate inside the model's range: grid times a few ulps past the last step must not fall
@@ -605,20 +634,29 @@ fn explicit_segment(
     let n = rec.steps.len();
     let h_last = rec.steps[n - 1].t - if n >= 2 { rec.steps[n - 2].t } else { t };
     let mut a = t;
+    let mut y_a = y;
     for step in &rec.steps {
-        if let Some((ts, ys)) = run.step(disc, a, step, &dense) {
+        if let Some((ts, located)) = run.step(disc, a, step, &dense) {
+            // The state at the switching time comes from one integration step from the last
+            // accepted step, not from the dense output: the dense output interpolates each state
+            // on its own, and restarting from it opened the energy ledger a little at every
+            // event (8.9e-4 after 24 000 restarts at rtol 1e-4; 5.5e-6 this way).
+            let ys = step_to(plant, disc, a, y_a, ts, opts, evals).unwrap_or_else(|| dense(ts));
             return Ok(SegmentEnd {
                 t: ts,
                 y: ys,
                 h_last: h_last.max(1e-6),
+                located,
             });
         }
         a = step.t;
+        y_a = step.y;
     }
     Ok(SegmentEnd {
         t: t_stop,
         y: last_y,
         h_last: h_last.max(1e-6),
+        located: None,
     })
 }
 
@@ -683,7 +721,6 @@ fn implicit_segment(
             }
             continue;
         };
-        rejected_in_a_row = 0;
         stats.accepted_steps += 1;
         h_last = t - t_prev;
         let ys = *solver.y();
@@ -694,6 +731,7 @@ fn implicit_segment(
                 state: describe(&ys),
             }));
         }
+        rejected_in_a_row = 0;
         y_last = ys;
         let end = StepEnd {
             t,
@@ -702,20 +740,23 @@ fn implicit_segment(
         };
         let cell = std::cell::RefCell::new(&mut solver);
         let dense = |tq: f64| cell.borrow_mut().dense(tq);
-        if let Some((ts, _)) = run.step(disc, t_prev, &end, &dense) {
-            break Ok((ts, solver.state_at(&rhs, ts)));
+        if let Some((ts, located)) = run.step(disc, t_prev, &end, &dense) {
+            // The restart state: the collocation polynomial at ts with the ledger integrated to
+            // ts by the same quadrature (so the ledger stays closed across events).
+            break Ok((ts, solver.state_at(&rhs, ts), located));
         }
         if t >= seg.t_stop {
-            break Ok((seg.t_stop, ys));
+            break Ok((seg.t_stop, ys, None));
         }
     };
-    let c = solver.counts;
-    stats.jacobians += c.jacobians;
-    stats.lu_decompositions += c.decompositions;
-    stats.newton_iterations += c.newton_iterations;
-    stats.newton_failures += c.newton_failures;
+    add_counts(stats, &solver.counts);
     match outcome {
-        Ok((t, y)) => Ok(SegmentEnd { t, y, h_last }),
+        Ok((t, y, located)) => Ok(SegmentEnd {
+            t,
+            y,
+            h_last,
+            located,
+        }),
         Err(Failed(e)) => Err(e),
         Err(Stalled(t, y)) => {
             // Hand over to Dopri5 for a short stretch; the next segment is implicit again.
@@ -726,6 +767,7 @@ fn implicit_segment(
                     t: t_stop,
                     y,
                     h_last,
+                    located: None,
                 });
             }
             stats.explicit_bridges += 1;
@@ -739,6 +781,14 @@ fn implicit_segment(
             explicit_segment(run, rec, disc, &bridge, opts, evals, stats)
         }
     }
+}
+
+/// Adds one implicit segment's counters to the run's.
+fn add_counts(stats: &mut SolverStats, c: &stiff::ImplicitCounts) {
+    stats.jacobians += c.jacobians;
+    stats.lu_decompositions += c.decompositions;
+    stats.newton_iterations += c.newton_iterations;
+    stats.newton_failures += c.newton_failures;
 }
 
 /// Why a state is not physical, if it is not: a non-finite entry, or a magnitude no hand-cranked
@@ -775,8 +825,10 @@ fn unphysical(y: &State) -> Option<&'static str> {
         .map(|c| c.3)
 }
 
-/// Applies every transition due at (t, y) until none is, recording charge completion. A mode that
-/// keeps flipping at one instant is a modelling error and is reported, not looped over.
+/// Applies every transition due at (t, y) until none is, recording charge completion; `located`,
+/// the transition the event search found due at t, goes first (the state handed in may sit a
+/// rounding error on the other side of its threshold). A mode that keeps flipping at one instant
+/// is a modelling error and is reported, not looped over.
 fn cascade(
     plant: &Plant,
     t: f64,
@@ -784,11 +836,13 @@ fn cascade(
     disc: &mut Discrete,
     observer: &mut Observer,
     stats: &mut SolverStats,
+    located: Option<Transition>,
 ) -> Result<(), SimError> {
     let mut applied = Vec::new();
+    let mut first = located;
     for _ in 0..MAX_CASCADE {
         let p = plant.eval(t, y, disc);
-        let Some(tr) = due(plant, &p, y, disc) else {
+        let Some(tr) = first.take().or_else(|| due(plant, &p, y, disc)) else {
             return Ok(());
         };
         apply(plant, tr, t, &p, y, disc);
@@ -813,6 +867,62 @@ fn cascade(
         changes: format!("{applied:?}"),
         state: describe(y),
     })
+}
+
+/// The plant in a fixed mode, for a short integration that must run to its end.
+struct Free<'a> {
+    plant: &'a Plant,
+    disc: Discrete,
+    evals: &'a Cell<u64>,
+}
+
+impl System<f64, State> for Free<'_> {
+    fn system(&self, t: f64, y: &State, dy: &mut State) {
+        let p = self.plant.eval(t, y, &self.disc);
+        self.plant.derivatives(&p, y, &self.disc, dy);
+        self.evals.set(self.evals.get() + 1);
+    }
+}
+
+/// Integrates from an accepted step (t0, y0) to t1 ≤ the next step end (one step, or a few if the
+/// error control asks), under the same tolerances. None if the integrator fails.
+fn step_to(
+    plant: &Plant,
+    disc: &Discrete,
+    t0: f64,
+    y0: State,
+    t1: f64,
+    opts: &SimOptions,
+    evals: &Cell<u64>,
+) -> Option<State> {
+    if t1 <= t0 {
+        return Some(y0);
+    }
+    let h = t1 - t0;
+    let mut solver = Dopri5::from_param(
+        Free {
+            plant,
+            disc: *disc,
+            evals,
+        },
+        t0,
+        t1,
+        h,
+        y0,
+        opts.rtol,
+        opts.atol,
+        0.9,
+        0.04,
+        0.2,
+        10.0,
+        h,
+        h,
+        1000,
+        u32::MAX,
+        OutputType::Sparse,
+    );
+    solver.integrate().ok()?;
+    solver.y_out().last().copied().filter(all_finite)
 }
 
 /// Locates changes of the watched conditions inside (a, b] and applies them.
@@ -906,6 +1016,9 @@ fn mode_of(plant: &Plant, p: &Point, d: &Discrete) -> Mode {
     if !d.enabled || d.ov_shutdown {
         return Mode::Lockout;
     }
+    if plant.usb.is_some() && !d.device_on && d.soft_done {
+        return Mode::DeviceOff;
+    }
     if d.stage == Stage::Done {
         return Mode::Done;
     }
@@ -939,7 +1052,7 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         generator_current_a: p.net.generator_current_a,
         input_v: p.net.input_v,
         duty: p.net.duty,
-        output_v: p.net.battery_v,
+        output_v: p.bus.bus_v,
         battery_v: p.net.battery_v,
         battery_current_a: p.net.battery_current_a,
         soc: y[SOC],
@@ -951,6 +1064,8 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         w_prime_balance_j: y[W_PRIME],
         winding_temp_c: y[WINDING_TEMP],
         in_regulation: p.in_regulation,
+        bus_v: p.bus.bus_v,
+        bus_current_a: p.bus.bus_current_a,
     }
 }
 
@@ -974,6 +1089,7 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         rc_change_j: plant.battery.rc_energy_j(&b1) - plant.battery.rc_energy_j(&b0),
         field_change_j: plant.field_energy_j(y) - plant.field_energy_j(y0),
         charge_as: y[Q_BATTERY],
+        device_loss_j: y[E_DEVICE],
     }
 }
 
@@ -984,7 +1100,7 @@ fn describe(y: &State) -> String {
         .iter()
         .zip(y.iter())
         .enumerate()
-        .filter(|(k, _)| *k <= SOFT_START || *k >= ARMATURE_I)
+        .filter(|(k, _)| !stiff::is_ledger(*k))
         .map(|(_, (n, v))| format!("{n}={v:.6e}"))
         .collect::<Vec<_>>()
         .join(", ")

@@ -6,5 +6,6 @@ pub mod plant;
 pub mod state;
 pub mod stiff;
 pub mod transitions;
+pub mod usb_port;
 
 pub use engine::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};

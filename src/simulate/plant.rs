@@ -13,12 +13,14 @@ use crate::model::jitter::JitterTrack;
 use crate::model::network::{self, Load, NetworkPoint, Source};
 use crate::model::operator::OperatorModel;
 use crate::model::thermal::Lumped;
+use crate::model::usb::{BusPoint, UsbModel};
 use crate::scenario::profile::Profile;
 use crate::scenario::setup::{Alerts, Setup, Topology};
 use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
 
 use super::engine::Fidelity;
 use super::state::*;
+use super::usb_port::{device_charger, usb_gains, usb_in_regulation};
 
 /// Crank bearing friction, N·m (acts on the crank side, in the friction ledger).
 const CRANK_BEARING_N_M: f64 = 0.05;
@@ -60,6 +62,14 @@ pub struct Discrete {
     pub soft_done: bool,
     /// When the converter last locked out or went to sleep, s (−∞ before the first time).
     pub disabled_at_s: f64,
+    /// USB port: the device is attached and draws from the bus.
+    pub device_on: bool,
+    /// USB port: when the device last cut itself off, s (−∞ before the first time).
+    pub device_off_at_s: f64,
+    /// USB port: when the device last attached, s (its draw ramps up from there).
+    pub device_on_at_s: f64,
+    /// USB port: cut-offs so far.
+    pub device_cutoffs: u32,
 }
 
 /// Charger settings resolved with defaults.
@@ -127,6 +137,11 @@ pub struct Plant {
     /// Detailed fidelity: circuit constants and loop gains.
     pub circuit: CircuitConstants,
     pub gains: ControllerGains,
+    /// A USB port on the converter output (None: the battery sits there). With a port, `charger`
+    /// describes the device's own charger (its current limit, termination) and `battery` its cell.
+    pub usb: Option<UsbModel>,
+    /// Detailed fidelity with a USB port: loop gains designed for the bus.
+    pub usb_gains: Option<ControllerGains>,
 }
 
 /// What the charger asks of the converter at one instant.
@@ -173,6 +188,8 @@ pub struct Point {
     /// dV_RC/dt of the Li-ion RC branch, V/s.
     pub v_rc_rate: f64,
     pub in_regulation: bool,
+    /// The converter is enabled but still in its soft-start ramp.
+    pub restarting: bool,
     pub band: TempBand,
     /// Input voltage the converter would see at its quiescent draw (what UVLO and sleep compare
     /// before enabling, so that enabling cannot at once undo itself), V.
@@ -180,6 +197,8 @@ pub struct Point {
     /// Detailed fidelity: rates of the fast states and of the two loop integrators.
     pub fast_rates: FastRates,
     pub ctrl_rates: (f64, f64),
+    /// The converter's output: a USB bus and its device, or the battery terminal.
+    pub bus: BusPoint,
 }
 
 impl Plant {
@@ -208,7 +227,7 @@ impl Plant {
         let battery = BatteryModel::from_config(&setup.battery);
         let c = &setup.converter;
         let cap = battery.capacity_ah();
-        let charger = Charger {
+        let mut charger = Charger {
             topology: c.topology,
             charge_current_a: c.charge_current_a,
             cv_setpoint_v: c.cv_setpoint_v,
@@ -273,6 +292,10 @@ impl Plant {
         };
         let buck_boost = BuckBoostModel::from_config(c);
         let linear = LinearModel::from_config(c);
+        let usb = setup.usb.as_ref().map(UsbModel::from_config);
+        if let Some(u) = &setup.usb {
+            device_charger(&mut charger, u, cap);
+        }
         Ok(Self {
             fidelity,
             circuit: CircuitConstants {
@@ -289,6 +312,8 @@ impl Plant {
                         .max(1e-3),
                 ..ControllerGains::design(&buck, v_nominal, slope)
             },
+            usb_gains: usb.map(|u| usb_gains(setup, &buck, &u)),
+            usb,
             ambient_c: setup.ambient_c,
             generator,
             diode,
@@ -432,7 +457,12 @@ impl Plant {
         let frozen = self.battery.freeze(&bs);
         let term = frozen.terminal();
         let request = self.request(d, bs.temp_c, band, y[SOFT_START]);
+        let usb_eval = self
+            .usb
+            .as_ref()
+            .map(|u| self.usb_network(u, &src, (t, request), &term, y, d));
         let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
+            _ if self.usb.is_some() => usb_eval.map_or_else(Default::default, |u| u.electrical),
             Fidelity::Fast => {
                 let (load, target, cv) = self.fast_load(request, &term);
                 (
@@ -445,6 +475,10 @@ impl Plant {
             }
             Fidelity::Detailed => self.detailed_network(&src, request, &term, y),
         };
+        let bus = usb_eval.map_or_else(
+            || BusPoint::battery(net.battery_v, net.battery_current_a),
+            |u| u.bus,
+        );
         let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
         let idle_input_v = match (request, self.fidelity) {
             (Request::Off, Fidelity::Fast) => src.node_v(self.buck.quiescent_current_a),
@@ -494,10 +528,17 @@ impl Plant {
         };
 
         let powers = frozen.powers(net.battery_current_a, net.battery_v);
+        // Regulating means holding the set point: locked out, shut down, in dropout, or still
+        // ramping up after a (re)start, a charger is not. A converter that keeps restarting
+        // (hiccup) spends its time in the soft-start ramp and is counted out of regulation there.
         let in_regulation = if self.has_converter() {
-            d.enabled && !d.ov_shutdown && (!net.dropout || target_current <= 0.0)
+            d.enabled && !d.ov_shutdown && d.soft_done && (!net.dropout || target_current <= 0.0)
         } else {
             true
+        };
+        let in_regulation = match &self.usb {
+            Some(u) => usb_in_regulation(u, d, &bus),
+            None => in_regulation,
         };
         Point {
             t,
@@ -523,10 +564,12 @@ impl Plant {
             battery_powers: powers,
             v_rc_rate: frozen.v_rc_rate(net.battery_current_a),
             in_regulation,
+            restarting: self.has_converter() && d.enabled && !d.soft_done,
             band,
             idle_input_v,
             fast_rates,
             ctrl_rates,
+            bus,
         }
     }
 
@@ -743,6 +786,7 @@ impl Plant {
         dy[OUTPUT_V] = p.fast_rates.output;
         dy[CTRL_V] = p.ctrl_rates.0;
         dy[CTRL_I] = p.ctrl_rates.1;
+        dy[E_DEVICE] = p.bus.device_loss_w;
     }
 
     /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.

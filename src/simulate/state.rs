@@ -3,7 +3,7 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 28;
+pub const N_STATES: usize = 29;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
@@ -56,6 +56,8 @@ pub const OUTPUT_V: usize = 25;
 pub const CTRL_V: usize = 26;
 /// Current-loop integrator (duty trim), 1.
 pub const CTRL_I: usize = 27;
+/// Energy ledger, USB port only: heat in the device's charger (its pass element), J.
+pub const E_DEVICE: usize = 28;
 
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
@@ -92,4 +94,5 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "output_v",
     "voltage_loop_a",
     "current_loop",
+    "e_device_j",
 ];

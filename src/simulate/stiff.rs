@@ -19,31 +19,52 @@ use differential_equations::stats::Evals;
 use super::plant::{Discrete, Plant};
 use super::state::*;
 
+/// Whether state `k` is an energy-ledger quadrature (read by nothing that feeds back).
+pub const fn is_ledger(k: usize) -> bool {
+    (k >= E_OPERATOR && k <= Q_BATTERY) || k == E_DEVICE
+}
+
+const fn ledger_count() -> usize {
+    let (mut n, mut k) = (0, 0);
+    while k < N_STATES {
+        if is_ledger(k) {
+            n += 1;
+        }
+        k += 1;
+    }
+    n
+}
+
 /// Number of states in the implicit solve: every state except the ledger quadratures.
-pub const N_DYN: usize = N_STATES - (Q_BATTERY + 1 - E_OPERATOR);
+pub const N_DYN: usize = N_STATES - ledger_count();
 
 /// The state as the implicit solvers see it: the states that feed back, as a plain array.
 pub type Flat = [f64; N_DYN];
 
 /// Position in [`State`] of each entry of [`Flat`].
-const fn dyn_index(k: usize) -> usize {
-    if k < E_OPERATOR {
-        k
-    } else {
-        k + (Q_BATTERY + 1 - E_OPERATOR)
+const DYN_INDEX: [usize; N_DYN] = {
+    let mut out = [0; N_DYN];
+    let (mut k, mut j) = (0, 0);
+    while k < N_STATES {
+        if !is_ledger(k) {
+            out[j] = k;
+            j += 1;
+        }
+        k += 1;
     }
-}
+    out
+};
 
 /// The feedback states of a full state.
 pub fn flat_of(y: &State) -> Flat {
-    std::array::from_fn(|k| y[dyn_index(k)])
+    std::array::from_fn(|k| y[DYN_INDEX[k]])
 }
 
 /// A full state from feedback states and ledger quadratures taken from `q`.
 pub fn state_of(f: &Flat, q: &State) -> State {
     let mut y = *q;
-    for (k, v) in f.iter().enumerate() {
-        y[dyn_index(k)] = *v;
+    for (k, v) in DYN_INDEX.iter().zip(f) {
+        y[*k] = *v;
     }
     y
 }
@@ -222,7 +243,7 @@ where
 /// One segment of implicit integration, driven step by step.
 ///
 /// The energy-ledger quadratures feed nothing back, so they stay out of the Newton system (a
-/// 16×16 LU instead of 28×28; the linear algebra was ~80 % of the run time): after each accepted
+/// 16×16 LU instead of 29×29; the linear algebra was ~80 % of the run time): after each accepted
 /// step they are advanced with the Radau IIA quadrature on the step's dense output. For Radau5
 /// that output is the collocation polynomial, which passes through the stage values, so the
 /// ledger gets exactly the update it would get inside the solve.
@@ -344,7 +365,7 @@ impl Segment {
                 None => state_of(self.solver.y(), &q),
             };
             let d = rhs.full(tn, &yn);
-            for k in E_OPERATOR..=Q_BATTERY {
+            for k in (0..N_STATES).filter(|&k| is_ledger(k)) {
                 q[k] += h * b * d[k];
             }
         }
@@ -430,8 +451,9 @@ mod tests {
             *v = k as f64 + 0.5;
         }
         let f = flat_of(&y);
+        // The ledger: operator work through charge, and the USB device's loss.
         let expected: Vec<f64> = (0..N_STATES)
-            .filter(|k| !(E_OPERATOR..=Q_BATTERY).contains(k))
+            .filter(|k| !(E_OPERATOR..=Q_BATTERY).contains(k) && *k != E_DEVICE)
             .map(|k| k as f64 + 0.5)
             .collect();
         assert_eq!(f.to_vec(), expected);

@@ -33,10 +33,18 @@ pub enum Transition {
     Disengage,
     /// Freewheel: crank caught up with the shaft.
     Engage,
+    /// USB port: the bus fell below the device's cut-off; the device lets go of it.
+    DeviceCutoff,
+    /// USB port: the running converter's bus is back at the device's reconnect voltage and the
+    /// device has been off for its delay: it attaches again.
+    DeviceReconnect,
 }
 
 /// The first transition due at point `p` in mode `d`, if any.
 pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transition> {
+    if let Some(tr) = device_due(plant, p, d) {
+        return Some(tr);
+    }
     if plant.has_converter() {
         let c = &plant.charger;
         if d.ov_shutdown {
@@ -50,6 +58,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             // UVLO, or sleep: an input below the battery cannot charge it.
             if p.net.input_v < c.uvlo_off_v
                 || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v)
+                || usb_sleeps(plant, p, 0.0)
             {
                 return Some(Transition::Disable);
             }
@@ -78,6 +87,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             }
         } else if p.idle_input_v >= c.uvlo_on_v
             && (!c.sleeps_below_battery || p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V)
+            && !usb_sleeps(plant, p, SLEEP_HYSTERESIS_V)
             && p.t - d.disabled_at_s >= c.restart_delay_s
         {
             return Some(Transition::Enable);
@@ -101,6 +111,40 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
         }
     }
     None
+}
+
+/// Headroom a buck needs over its USB bus to keep running, V: with less, it sleeps (an input at
+/// the bus level cannot hold it, and the averaged DCM stage becomes singular as V_in − V_o → 0).
+pub const USB_SLEEP_MARGIN_V: f64 = 0.05;
+
+/// Whether a buck feeding a USB bus lacks headroom: its input (idle input when off) is below the
+/// bus plus [`USB_SLEEP_MARGIN_V`] plus `hysteresis_v` (the wake-up margin).
+fn usb_sleeps(plant: &Plant, p: &Point, hysteresis_v: f64) -> bool {
+    let input_v = if hysteresis_v > 0.0 {
+        p.idle_input_v
+    } else {
+        p.net.input_v
+    };
+    plant.usb.is_some()
+        && plant.charger.sleeps_below_battery
+        && input_v < p.bus.bus_v + USB_SLEEP_MARGIN_V + hysteresis_v
+}
+
+/// USB device: cut off below the cut-off voltage; reconnect (after the delay, once the converter
+/// runs with its soft-start done) at or above the reconnect voltage. The delay keeps a device on a
+/// bus that collapses under it from cycling faster than once per delay.
+fn device_due(plant: &Plant, p: &Point, d: &Discrete) -> Option<Transition> {
+    let u = plant.usb.as_ref()?;
+    if d.device_on {
+        (p.bus.bus_v < u.cutoff_v).then_some(Transition::DeviceCutoff)
+    } else {
+        (d.enabled
+            && !d.ov_shutdown
+            && d.soft_done
+            && p.bus.bus_v >= u.reconnect_v
+            && p.t - d.device_off_at_s >= u.reconnect_delay_s)
+            .then_some(Transition::DeviceReconnect)
+    }
 }
 
 /// Applies a transition at time `t`, possibly resetting states (soft-start, clutch impact).
@@ -153,6 +197,15 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
             y[GEN_SPEED] = n * wc;
             y[E_FRICTION] += (before - plant.kinetic_j(y)).max(0.0);
             d.engaged = true;
+        }
+        Transition::DeviceCutoff => {
+            d.device_on = false;
+            d.device_off_at_s = t;
+            d.device_cutoffs += 1;
+        }
+        Transition::DeviceReconnect => {
+            d.device_on = true;
+            d.device_on_at_s = t;
         }
     }
 }

@@ -23,6 +23,7 @@ use crate::scenario::Scenario;
 use crate::simulate::plant::Plant;
 use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
 
+use super::check_usb::{self, UsbFigures, UsbStatics};
 use super::run::{scenario_from, FidelityArg, SessionArgs};
 
 /// Highest crank cadence searched, rpm (well above what a person can hold).
@@ -65,6 +66,8 @@ pub struct Report {
     pub profile: String,
     pub topology: String,
     pub chemistry: String,
+    /// What the converter feeds: `battery` or `usb_5v`.
+    pub output: String,
     pub ambient_c: f64,
     pub drive: DriveFigures,
     pub generator: GeneratorFigures,
@@ -73,6 +76,8 @@ pub struct Report {
     pub converter: Option<ConverterFigures>,
     /// Diode-only figures (None with a converter).
     pub direct: Option<DirectFigures>,
+    /// USB port figures (None for a battery output).
+    pub usb: Option<UsbFigures>,
     /// The operating point at the profile's first cranking cadence (None if the profile never cranks).
     pub at_profile_cadence: Option<OperatingFigures>,
     /// Highest planned target cadence of the profile, rpm.
@@ -367,8 +372,15 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         * scale;
     let critical_power = sc.profile.operator.critical_power_w;
     let mut notes = Vec::new();
+    let mut usb = None;
 
     let (converter, direct, at_profile) = match plant.charger.topology {
+        _ if plant.usb.is_some() => {
+            let (figures, at) =
+                usb_port(&st, &bs_start, band, first_cadence_rpm, highest, &mut notes);
+            usb = figures;
+            (None, None, at)
+        }
         Topology::Buck | Topology::BuckBoost | Topology::Linear => {
             let c = &plant.charger;
             // Outside the charge window the charger holds off; the figures then describe the
@@ -495,6 +507,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         profile: sc.profile.name.clone(),
         topology: setup.converter.topology.as_str().to_string(),
         chemistry: setup.battery.chemistry.as_str().to_string(),
+        output: setup.output_word().to_string(),
         ambient_c: ambient,
         drive: DriveFigures {
             stages: setup.drive.stages.len(),
@@ -516,11 +529,49 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         },
         converter,
         direct,
+        usb,
         at_profile_cadence: at_profile,
         highest_profile_cadence_rpm: highest,
         notes,
         cautions: cautions(sc),
     }
+}
+
+/// USB port figures and the operating point at the profile's cadence (the device drawing its
+/// start current from the running converter; in regulation when the bus lies in the band).
+fn usb_port(
+    st: &Statics,
+    bs_start: &BatteryState,
+    band: TempBand,
+    profile_rpm: Option<f64>,
+    highest_rpm: f64,
+    notes: &mut Vec<String>,
+) -> (Option<UsbFigures>, Option<OperatingFigures>) {
+    let Some(u) = &st.plant.usb else {
+        return (None, None);
+    };
+    let us = UsbStatics {
+        plant: st.plant,
+        usb: u,
+        resistance_ohm: st.resistance_ohm,
+        cell: *bs_start,
+    };
+    let demand = check_usb::start_demand_a(st.plant, bs_start, band);
+    let figures = check_usb::analyse(&us, demand, profile_rpm, highest_rpm, notes);
+    let critical_power = st.plant.operator.critical_power_w;
+    let at = profile_rpm.map(|r| {
+        let c = &st.plant.charger;
+        let on = st.emf_v(r) >= c.uvlo_on_v;
+        let (p, bus) = if on {
+            us.solve(r, demand)
+        } else {
+            let p = st.solve(r, Load::Off, bs_start);
+            let bus = crate::model::usb::BusPoint::default();
+            (p, bus)
+        };
+        operating(st, r, &p, on, on && u.in_band(bus.bus_v), critical_power)
+    });
+    (Some(figures), at)
 }
 
 fn operating(
@@ -600,6 +651,9 @@ pub fn cautions(sc: &Scenario) -> Vec<String> {
         c.push("Lithium cells can vent hot gas or catch fire when they are overcharged, charged outside their temperature window, or short-circuited.".to_string());
     } else {
         c.push("Lead-acid batteries give off hydrogen when they gas near full charge: charge them where air moves freely, away from sparks and flames.".to_string());
+    }
+    if sc.setup.usb.is_some() {
+        c.push("A USB port feeds devices that trust its 5 V: a converter fault can put the full generator voltage on the bus; give the port over-voltage and over-current protection.".to_string());
     }
     if sc.setup.converter.topology == Topology::Direct {
         c.push("With a diode only, nothing but the operator limits the charge: such a design can overcharge the battery.".to_string());
@@ -685,6 +739,9 @@ fn print_report(r: &Report, sc: &Scenario) {
             format!("{:.1} rpm", c.input_limit_cadence_rpm),
         ));
     }
+    if let Some(u) = &r.usb {
+        lines.extend(check_usb::cadence_lines(u, opt_rpm));
+    }
     if let Some(d) = &r.direct {
         lines.push((
             format!(
@@ -717,6 +774,17 @@ fn print_report(r: &Report, sc: &Scenario) {
         ));
         let state = if r.direct.is_some() {
             "through the diode".to_string()
+        } else if let (Some(u), true) = (&r.usb, at.converter_on) {
+            format!(
+                "device's cell; bus {:.3} V at {:.3} A, {}",
+                u.bus_v_at_profile_cadence.unwrap_or(0.0),
+                u.bus_current_a_at_profile_cadence.unwrap_or(0.0),
+                if at.in_regulation {
+                    "in the band"
+                } else {
+                    "out of the band"
+                }
+            )
         } else if !at.converter_on {
             "converter locked out".to_string()
         } else if at.in_regulation {

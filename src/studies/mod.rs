@@ -2,6 +2,7 @@
 //! run no session: check (static design figures) and fit (generator constants from measurements).
 
 pub mod check;
+pub mod check_usb;
 pub mod compare;
 pub mod fit;
 pub mod montecarlo;

@@ -161,6 +161,18 @@ fn report(s: &Session, dir: &std::path::Path) {
         "  {regulation}; max battery {:.3} V vs limit {:.3} V",
         m.max_battery_v, m.charge_limit_v
     ));
+    if let Some(u) = &m.usb {
+        say(&format!(
+            "  USB bus {:.2} V: lowest {:.3} V while the device drew, {:.1} s outside {:.2}–{:.2} V, {} device cut-off(s); {:.2} Wh to the device",
+            u.bus_setpoint_v,
+            u.min_bus_v,
+            u.out_of_band_s,
+            u.band_low_v,
+            u.band_high_v,
+            u.device_cutoffs,
+            u.energy_to_bus_wh
+        ));
+    }
     say(&format!(
         "  energy ledger closes to {:.2e}; {} alerts; verdict: {}",
         m.energy_balance_error,

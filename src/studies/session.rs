@@ -3,8 +3,8 @@
 
 use std::time::Instant;
 
-use crate::analysis::events::EventKind;
-use crate::analysis::summary::{self, Summary, Verdict};
+use crate::analysis::events::{EventKind, OUT_OF_BAND_DETAIL};
+use crate::analysis::summary::{self, Summary, UsbSummary, Verdict};
 use crate::model::jitter::JitterTrack;
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
@@ -135,6 +135,8 @@ fn first_non_finite(r: &SimResult) -> Option<f64> {
             row.operator_torque_n_m,
             row.w_prime_balance_j,
             row.winding_temp_c,
+            row.bus_v,
+            row.bus_current_a,
         ];
         v.iter().any(|x| !x.is_finite()).then_some(row.time_s)
     })
@@ -251,6 +253,7 @@ fn summarise(
         trace_interval_s: trace_interval_s(sc.setup.solver.trace_interval_s, duration),
         topology: sc.setup.converter.topology.as_str().to_string(),
         chemistry: sc.setup.battery.chemistry.as_str().to_string(),
+        output: sc.setup.output_word().to_string(),
         cranking_s: cranking,
         charging_fraction: if cranking > 0.0 {
             (charging_time / cranking).min(1.0)
@@ -272,5 +275,46 @@ fn summarise(
             .collect(),
         ledger: *led,
         solver: r.stats,
+        usb: usb_summary(sc, r),
     }
+}
+
+/// The bus figures of a session with a USB port (None for a battery output).
+fn usb_summary(sc: &Scenario, r: &SimResult) -> Option<UsbSummary> {
+    let u = sc.setup.usb.as_ref()?;
+    let rows = &r.trace.rows;
+    let lowest = |drawing: bool| {
+        rows.iter()
+            .filter(|row| !drawing || row.bus_current_a > 1e-6)
+            .map(|row| row.bus_v)
+            .fold(f64::INFINITY, f64::min)
+    };
+    let min_bus_v = match lowest(true) {
+        v if v.is_finite() => v,
+        _ => lowest(false),
+    };
+    let cutoffs = r
+        .events
+        .iter()
+        .filter(|e| e.kind == EventKind::DeviceCutoff);
+    let led = &r.ledger;
+    Some(UsbSummary {
+        bus_setpoint_v: u.bus_v,
+        port_current_a: u.port_current_a,
+        band_low_v: u.band_low_v,
+        band_high_v: u.band_high_v,
+        min_bus_v,
+        max_bus_v: rows.iter().map(|row| row.bus_v).fold(0.0, f64::max),
+        out_of_band_s: r
+            .events
+            .iter()
+            .filter(|e| {
+                e.kind == EventKind::RegulationLoss && e.detail.starts_with(OUT_OF_BAND_DETAIL)
+            })
+            .fold(0.0, |a, e| a + e.duration_s),
+        device_cutoffs: cutoffs.clone().count(),
+        device_cutoff_s: cutoffs.fold(0.0, |a, e| a + e.duration_s),
+        energy_to_bus_wh: (led.battery_terminal_j + led.device_loss_j) / 3600.0,
+        device_loss_wh: led.device_loss_j / 3600.0,
+    })
 }
