@@ -43,11 +43,13 @@
 //! Where Radau5 is weak: Newton wants a right-hand side smooth in the state. `lead-acid-buck` has
 //! two points where it is not (the battery's current at its rest voltage, whose slope changes
 //! 385-fold, and the float stage's light load); there Radau5 takes short steps and many Newton
-//! failures (10 minutes: ~230 s of wall time, one Dopri5 bridge after a stall; a 330-s session
-//! into float took Radau5 28 s and Dopri5 271 s, both showing the same ±0.4-V oscillation of the
-//! battery terminal in float, a behaviour of the model), and it can accept a step onto a spurious
-//! root (a ~50-mV bump of the output node during lock-out, ~1e-4 of the charge). The shipped demo
-//! and the other setups do not meet those points for long.
+//! failures (a 330-s session into float took Radau5 28 s and Dopri5 271 s at rtol 1e-6, both
+//! showing the same ±0.4-V oscillation of the battery terminal in float, a behaviour of the
+//! model), and it can accept a step onto a spurious root (a ~50-mV bump of the output node during
+//! lock-out). The engine now retakes any step whose energy ledger does not balance (see
+//! DEVELOPERS.md); with that, 5 minutes of `lead-acid-buck` took 4 s against Dopri5's 113 s,
+//! with the same charge to 1e-6 and the ledger closed to 1.2e-6. The shipped demo and the other
+//! setups do not meet those points for long.
 
 use std::cell::Cell;
 use std::time::Instant;
