@@ -45,6 +45,15 @@ const IMPLICIT_MAX_NEWTON: usize = 7;
 const IMPLICIT_BRIDGE_AFTER_REJECTIONS: usize = 30;
 /// Length of a Dopri5 bridge, s (a few hundred of its ~13-µs steps).
 const BRIDGE_S: f64 = 5e-3;
+/// Most Dopri5 steps in one bridge: 500 000 over 5 ms is a 10-ns average step, the same floor
+/// the explicit detailed fidelity had (5 M steps per 50-ms segment); below it the run fails.
+const BRIDGE_MAX_STEPS: u32 = 500_000;
+/// Implicit methods: every this many step attempts the run must have advanced at least
+/// [`PROGRESS_MIN_S`] (a 10-ns average step, as above), or it fails: a right-hand side that
+/// switches faster than any solver can follow would otherwise run for hours. Ordinary runs
+/// advance seconds per window (the slowest shipped stretch, lead-acid float, ~25 s).
+const PROGRESS_WINDOW: u64 = 200_000;
+const PROGRESS_MIN_S: f64 = 2e-3;
 /// Implicit methods: an accepted step whose energy defect exceeds this many times rtol of the
 /// energy it moved (plus [`ENERGY_DEFECT_FLOOR_J`]) is taken again from its start with an eighth
 /// of the step. Ordinary steps stay below 0.06·rtol on the shipped setups; steps that landed on a
@@ -398,6 +407,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         plant,
         sampler,
         observer,
+        progress: (0, 0.0),
     };
     while t < t_end {
         if t_end - t <= 1e-9 * t_end.max(1.0) {
@@ -434,7 +444,9 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             Method::Dopri5 => {
                 // One recorder for all segments: its step buffer keeps its capacity.
                 rec.clear();
-                explicit_segment(&mut run, &mut rec, &disc, &seg, opts, &evals, &mut stats)?
+                explicit_segment(
+                    &mut run, &mut rec, &disc, &seg, opts, MAX_STEPS, &evals, &mut stats,
+                )?
             }
             Method::Radau5 => implicit_segment(
                 &mut run,
@@ -529,6 +541,8 @@ struct Walk<'a> {
     plant: &'a Plant,
     sampler: Sampler,
     observer: Observer,
+    /// Implicit step attempts since the last progress mark, and the time of that mark.
+    progress: (u64, f64),
 }
 
 impl Walk<'_> {
@@ -588,12 +602,14 @@ impl Walk<'_> {
 /// One segment with Dopri5 (ode_solvers): the whole segment is integrated with the callback
 /// stopping at the first step after which a mode change is due, then the recorded steps are
 /// walked with the segment's continuous output.
+#[allow(clippy::too_many_arguments)]
 fn explicit_segment(
     run: &mut Walk,
     rec: &mut Recorder,
     disc: &Discrete,
     seg: &SegmentStart,
     opts: &SimOptions,
+    max_steps: u32,
     evals: &Cell<u64>,
     stats: &mut SolverStats,
 ) -> Result<SegmentEnd, SimError> {
@@ -623,7 +639,7 @@ fn explicit_segment(
             10.0,
             h_max,
             seg.h_guess.min(h_max),
-            MAX_STEPS,
+            max_steps,
             u32::MAX,
             OutputType::Continuous,
         );
@@ -737,6 +753,22 @@ fn implicit_segment(
     let mut rejected_in_a_row = 0usize;
     let mut h_last = 0.0;
     let outcome = loop {
+        let (attempts, t_mark) = run.progress;
+        if attempts >= PROGRESS_WINDOW {
+            if solver.t() - t_mark < PROGRESS_MIN_S {
+                break Err(Failed(fail(
+                    solver.t(),
+                    format!(
+                        "{attempts} step attempts advanced only {:.3e} s (the right-hand side \
+                         switches faster than the solver can follow)",
+                        solver.t() - t_mark
+                    ),
+                    &y_last,
+                )));
+            }
+            run.progress = (0, solver.t());
+        }
+        run.progress.0 += 1;
         let attempt = match solver.attempt(&rhs) {
             Ok(a) => a,
             // The crate's own guards (step-size underflow, singular matrices) also end in a
@@ -830,7 +862,16 @@ fn implicit_segment(
                 h_guess: 0.0,
             };
             rec.clear();
-            explicit_segment(run, rec, disc, &bridge, opts, evals, stats)
+            explicit_segment(
+                run,
+                rec,
+                disc,
+                &bridge,
+                opts,
+                BRIDGE_MAX_STEPS,
+                evals,
+                stats,
+            )
         }
     }
 }
