@@ -574,7 +574,7 @@ impl Default for Alerts {
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields, default)]
 pub struct Solver {
-    /// Relative tolerance of the Dopri5 integrator (1e-10 … 1e-2).
+    /// Relative tolerance of the integrator, Dopri5 (fast) or Radau5 (detailed) (1e-10 … 1e-2).
     pub rtol: f64,
     /// Absolute tolerance (1e-12 … 1e-2).
     pub atol: f64,

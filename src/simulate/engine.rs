@@ -1,7 +1,8 @@
-//! The integrator loop: Dopri5 (ode_solvers) on segments between events. Each accepted step is
-//! checked for a due mode change; the switching time is located by bisection on the solver's
-//! continuous output and the next segment restarts there, so no step crosses an event blindly.
-//! The trace is sampled from the continuous output on a fixed grid, independent of the steps.
+//! The integrator loop: segments between events, Dopri5 (ode_solvers) for the fast fidelity and
+//! Radau5 (differential-equations, see [`Method`]) for the detailed one. Each accepted step is
+//! checked (finite, physical, a due mode change); a switching time is located by bisection on
+//! the solver's dense output and the next segment restarts there, so no step crosses an event
+//! blindly. The trace is sampled from the dense output on a fixed grid, independent of the steps.
 
 use std::cell::Cell;
 
@@ -15,18 +16,101 @@ use crate::units::rad_s_to_rpm;
 use super::observe::{codes, Codes, Observer};
 use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
+use super::stiff::{self, Attempt, Implicit, Limits, StiffRhs};
 use super::transitions::{apply, due, Transition};
 
-/// Longest segment between restarts, s (bounds the memory of the continuous output): the fast
-/// fidelity takes steps of milliseconds, the detailed one of microseconds.
+/// Longest Dopri5 segment between restarts, s: the segment's continuous output is kept in memory
+/// until the segment is walked, so it is bounded. The fast fidelity steps in milliseconds; Dopri5
+/// on the detailed network steps in microseconds (benchmark only), hence the shorter bound.
 const MAX_SEGMENT_FAST_S: f64 = 10.0;
-const MAX_SEGMENT_DETAILED_S: f64 = 0.05;
+const MAX_SEGMENT_EXPLICIT_DETAILED_S: f64 = 0.05;
 /// Located switching times are within this of the true crossing, s.
 const EVENT_TOL_S: f64 = 1e-7;
 /// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
 const MAX_CASCADE: usize = 8;
-/// Step limit per segment.
+/// Dopri5 step limit per segment.
 const MAX_STEPS: u32 = 5_000_000;
+/// Implicit methods: step attempts per segment (a segment of a long session at the 50-ms step
+/// limit needs ~72 000 for 1 h; the limit only stops a solver that has stalled).
+const IMPLICIT_MAX_ATTEMPTS: usize = 5_000_000;
+/// Implicit methods: Newton iterations per attempt before it is retried with a shorter step
+/// (Hairer & Wanner's RADAU5 default, 7).
+const IMPLICIT_MAX_NEWTON: usize = 7;
+/// Implicit methods: rejected attempts in a row after which the implicit solver hands over to a
+/// short Dopri5 bridge. Newton needs a right-hand side smooth in the state; the averaged
+/// converter has points where it is not (an empty inductor held at zero, the kink of a lead-acid
+/// battery's current at its rest voltage), and the solution can sit on them. An explicit method
+/// does not iterate, so it passes them at its (stability-bound) step; the implicit solver resumes
+/// after the bridge.
+const IMPLICIT_BRIDGE_AFTER_REJECTIONS: usize = 30;
+/// Length of a Dopri5 bridge, s (a few hundred of its ~13-µs steps).
+const BRIDGE_S: f64 = 5e-3;
+/// Most Dopri5 steps in one bridge: 500 000 over 5 ms is a 10-ns average step, the same floor
+/// the explicit detailed fidelity had (5 M steps per 50-ms segment); below it the run fails.
+const BRIDGE_MAX_STEPS: u32 = 500_000;
+/// Implicit methods: every this many step attempts the run must have advanced at least
+/// [`PROGRESS_MIN_S`] (a 10-ns average step, as above), or it fails: a right-hand side that
+/// switches faster than any solver can follow would otherwise run for hours. Ordinary runs
+/// advance seconds per window (the slowest shipped stretch, lead-acid float, ~25 s).
+const PROGRESS_WINDOW: u64 = 200_000;
+const PROGRESS_MIN_S: f64 = 2e-3;
+/// Implicit methods: an accepted step whose energy defect exceeds this many times rtol of the
+/// energy it moved (plus [`ENERGY_DEFECT_FLOOR_J`]) is taken again from its start with an eighth
+/// of the step. Ordinary steps stay below 0.06·rtol on the shipped setups; steps that landed on a
+/// spurious root at the lead-acid battery's rest-voltage kink sat near 0.8 (rtol 1e-4).
+const ENERGY_DEFECT_FACTOR: f64 = 10.0;
+const ENERGY_DEFECT_FLOOR_J: f64 = 1e-9;
+
+/// Integration method of a run.
+///
+/// Choice (measured by benches/session.rs, whose header has the reasoning): the detailed
+/// fidelity uses Radau5 from `differential-equations`. Dopri5 is held there by stability to
+/// ~13-µs steps (the 60-s demo: 3.3 M steps, 5–9 s); Radau5, L-stable, steps at the accuracy
+/// asked or the step limit (~1 400 steps, ~45 ms at the defaults) and lands closer to the scipy
+/// reference. Its one-step-at-a-time API with per-step dense output is what the per-step checks
+/// and event location need. That crate's BDF lost the mode changes; `ivp`'s BDF was quicker on a smooth
+/// stretch but missed its tolerance. The fast fidelity has no stiff state left and stays on
+/// Dopri5, whose cheap steps win there (Radau5 was 5–13 times slower, and at rtol 1e-6 failed on
+/// the demo's branch change).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Method {
+    /// Explicit Dormand–Prince 5(4), ode_solvers.
+    Dopri5,
+    /// Radau IIA order 5, differential-equations.
+    Radau5,
+    /// Variable-order BDF, differential-equations (measured, not used by default).
+    Bdf,
+}
+
+impl Method {
+    /// The method each fidelity uses.
+    pub fn for_fidelity(f: Fidelity) -> Self {
+        match f {
+            Fidelity::Fast => Method::Dopri5,
+            Fidelity::Detailed => Method::Radau5,
+        }
+    }
+
+    /// The word used in summaries and the benchmark.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            Method::Dopri5 => "dopri5",
+            Method::Radau5 => "radau5",
+            Method::Bdf => "bdf",
+        }
+    }
+
+    /// Longest segment between restarts, s (implicit segments are walked step by step and hold
+    /// no dense output, so only events end them).
+    fn max_segment_s(self, f: Fidelity) -> f64 {
+        match (self, f) {
+            (Method::Dopri5, Fidelity::Fast) => MAX_SEGMENT_FAST_S,
+            (Method::Dopri5, Fidelity::Detailed) => MAX_SEGMENT_EXPLICIT_DETAILED_S,
+            _ => f64::INFINITY,
+        }
+    }
+}
 
 /// Model fidelity.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
@@ -57,6 +141,8 @@ pub struct SimOptions {
     pub rtol: f64,
     pub atol: f64,
     pub max_step_s: f64,
+    /// Integration method ([`Method::for_fidelity`] unless a benchmark compares them).
+    pub method: Method,
 }
 
 /// Why a simulation failed (exit code 3 at the edge).
@@ -76,6 +162,12 @@ pub enum SimError {
     },
     #[error("the state became non-finite at t = {t_s:.6} s; state: {state}")]
     NonFinite { t_s: f64, state: String },
+    #[error("the solution diverged at t = {t_s:.6} s ({what}); state: {state}")]
+    Unphysical {
+        t_s: f64,
+        what: &'static str,
+        state: String,
+    },
 }
 
 /// Totals of the energy ledger, J (charge in A·s).
@@ -104,6 +196,11 @@ pub struct Ledger {
 impl Ledger {
     /// Relative closure error |W − ΣE| / max(W, 1 J).
     pub fn closure_error(&self) -> f64 {
+        self.imbalance_j().abs() / self.operator_work_j.abs().max(1.0)
+    }
+
+    /// Operator work minus everything it went to, W − ΣE, J.
+    fn imbalance_j(&self) -> f64 {
         let out = self.kinetic_change_j
             + self.drive_loss_j
             + self.friction_j
@@ -117,18 +214,49 @@ impl Ledger {
             + self.rc_change_j
             + self.field_change_j
             + self.device_loss_j;
-        (self.operator_work_j - out).abs() / self.operator_work_j.abs().max(1.0)
+        self.operator_work_j - out
     }
+}
+
+/// Energy an accepted step created or lost, and the energy it moved, J: the change of the
+/// ledger's imbalance W − ΣE over the step against the sum of every flow's magnitude in it. The
+/// exact solution keeps the imbalance constant; a step that lands on a spurious root of its
+/// stage equations (possible where the right-hand side has a kink) books energy from nowhere.
+fn step_energy_defect(plant: &Plant, ya: &State, yb: &State) -> (f64, f64) {
+    let across = ledger_of(plant, ya, yb);
+    let before = ledger_of(plant, ya, ya);
+    let moved: f64 = (0..N_STATES)
+        .filter(|&k| stiff::is_ledger(k) && k != Q_BATTERY)
+        .map(|k| (yb[k] - ya[k]).abs())
+        .sum::<f64>()
+        + across.kinetic_change_j.abs()
+        + across.field_change_j.abs()
+        + across.rc_change_j.abs();
+    (across.imbalance_j() - before.imbalance_j(), moved)
 }
 
 /// Solver statistics.
 #[derive(Debug, Clone, Copy, PartialEq, Default, serde::Serialize)]
 pub struct SolverStats {
+    /// Right-hand-side evaluations, including those of finite-difference Jacobians.
     pub evaluations: u64,
     pub accepted_steps: u64,
     pub rejected_steps: u64,
     pub segments: u64,
     pub mode_changes: u64,
+    /// Implicit methods: Jacobians formed, LU decompositions, Newton iterations, and step
+    /// attempts abandoned because Newton did not converge (0 for Dopri5).
+    pub jacobians: u64,
+    pub lu_decompositions: u64,
+    pub newton_iterations: u64,
+    pub newton_failures: u64,
+    /// Implicit methods: stalls handed to a short Dopri5 bridge.
+    pub explicit_bridges: u64,
+    /// Implicit methods: accepted steps taken again because they created or lost energy.
+    pub energy_retries: u64,
+    /// Integration method (`dopri5`, `radau5`); after the figures that came first, so their
+    /// order in `summary.json` is unchanged.
+    pub method: &'static str,
 }
 
 /// Everything a run produced.
@@ -154,7 +282,8 @@ struct StepEnd {
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Stop {
     Due,
-    NonFinite(f64),
+    /// The state left the physical range at this time.
+    Bad(f64, &'static str),
 }
 
 /// Per-segment record filled from the solver's callback.
@@ -193,8 +322,8 @@ impl System<f64, State> for Rhs<'_> {
     }
 
     fn solout(&mut self, t: f64, y: &State, _dy: &State) -> bool {
-        if !all_finite(y) {
-            self.rec.stop = Some(Stop::NonFinite(t));
+        if let Some(what) = unphysical(y) {
+            self.rec.stop = Some(Stop::Bad(t, what));
             self.rec.last_state = Some(*y);
             return true;
         }
@@ -259,9 +388,12 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     };
     let mut y = y0;
     let mut t = 0.0;
-    let mut stats = SolverStats::default();
+    let mut stats = SolverStats {
+        method: opts.method.as_str(),
+        ..SolverStats::default()
+    };
     let mut observer = Observer::new();
-    let mut sampler = Sampler::new(opts.trace_interval_s, t_end);
+    let sampler = Sampler::new(opts.trace_interval_s, t_end);
     let evals = Cell::new(0u64);
 
     cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats, None)?;
@@ -271,6 +403,12 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let mut next_event = 0usize;
     let mut rec = Recorder::default();
 
+    let mut run = Walk {
+        plant,
+        sampler,
+        observer,
+        progress: (0, 0.0),
+    };
     while t < t_end {
         if t_end - t <= 1e-9 * t_end.max(1.0) {
             break;
@@ -278,15 +416,11 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         while next_event < time_events.len() && time_events[next_event] <= t {
             next_event += 1;
         }
-        let max_segment = match opts.fidelity {
-            Fidelity::Fast => MAX_SEGMENT_FAST_S,
-            Fidelity::Detailed => MAX_SEGMENT_DETAILED_S,
-        };
         let mut t_stop = time_events
             .get(next_event)
             .copied()
             .unwrap_or(t_end)
-            .min(t + max_segment);
+            .min(t + opts.method.max_segment_s(opts.fidelity));
         // Snap to a time event a rounding sliver away: a 1e-15 s segment would make the solver
         // report a step-size underflow.
         if let Some(&te) = time_events.get(next_event) {
@@ -300,144 +434,47 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
                 t_stop = deadline;
             }
         }
-        // One recorder for all segments: its step buffer keeps its capacity (no regrowth).
-        rec.clear();
-        let mut model = ContinuousOutputModel::default();
-        let result = {
-            let rhs = Rhs {
-                plant,
-                disc,
-                rec: &mut rec,
-                cache: Cell::new(None),
-                evals: &evals,
-            };
-            let h_max = opts.max_step_s.min(t_stop - t);
-            let mut solver = Dopri5::from_param(
-                rhs,
-                t,
-                t_stop,
-                t_stop - t,
-                y,
-                opts.rtol,
-                opts.atol,
-                0.9,
-                0.04,
-                0.2,
-                10.0,
-                h_max,
-                h_guess.min(h_max),
-                MAX_STEPS,
-                u32::MAX,
-                OutputType::Continuous,
-            );
-            solver.integrate_with_continuous_output_model(&mut model)
+        let seg = SegmentStart {
+            t,
+            y,
+            t_stop,
+            h_guess,
+        };
+        let end = match opts.method {
+            Method::Dopri5 => {
+                // One recorder for all segments: its step buffer keeps its capacity.
+                rec.clear();
+                explicit_segment(
+                    &mut run, &mut rec, &disc, &seg, opts, MAX_STEPS, &evals, &mut stats,
+                )?
+            }
+            Method::Radau5 => implicit_segment(
+                &mut run,
+                &mut rec,
+                &disc,
+                &seg,
+                opts,
+                Implicit::Radau5,
+                &evals,
+                &mut stats,
+            )?,
+            Method::Bdf => implicit_segment(
+                &mut run,
+                &mut rec,
+                &disc,
+                &seg,
+                opts,
+                Implicit::Bdf,
+                &evals,
+                &mut stats,
+            )?,
         };
         stats.segments += 1;
-        let solver_stats = result.map_err(|e| SimError::Solver {
-            t_s: rec.steps.last().map_or(t, |s| s.t),
-            reason: e.to_string(),
-            state: describe(rec.last_state.as_ref().unwrap_or(&y)),
-        })?;
-        stats.accepted_steps += u64::from(solver_stats.accepted_steps);
-        stats.rejected_steps += u64::from(solver_stats.rejected_steps);
-        if let Some(Stop::NonFinite(tf)) = rec.stop {
-            return Err(SimError::NonFinite {
-                t_s: tf,
-                state: describe(rec.last_state.as_ref().unwrap_or(&y)),
-            });
+        if end.h_last > 0.0 {
+            h_guess = end.h_last;
         }
-        // Evaluate inside the model's range: grid times a few ulps past the last step must not
-        // fall back to a stale state.
-        let (lo_b, hi_b) = if rec.steps.is_empty() {
-            (t, t)
-        } else {
-            model.bounds()
-        };
-        let dense = |tq: f64| {
-            if rec.steps.is_empty() {
-                return y;
-            }
-            model
-                .evaluate(tq.clamp(lo_b, hi_b))
-                .unwrap_or_else(|| rec.last_state.unwrap_or(y))
-        };
-
-        // End of the valid part: the located switching time, or the segment end.
-        let n = rec.steps.len();
-        let mut located = None;
-        let (t_valid, y_valid) = if rec.stop == Some(Stop::Due) && n > 0 {
-            let lo = if n >= 2 { rec.steps[n - 2].t } else { t };
-            let hi = rec.steps[n - 1].t;
-            let ts = bisect(lo, hi, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, &disc);
-                due(plant, &pq, &yq, &disc).is_some()
-            });
-            let yd = dense(ts);
-            located = due(plant, &plant.eval(ts, &yd, &disc), &yd, &disc);
-            // The state at the switching time comes from one integration step from the last
-            // accepted step, not from the dense output: the dense output interpolates each state
-            // on its own, and restarting from it opened the energy ledger a little at every event
-            // (8.9e-4 after 24 000 restarts at rtol 1e-4; 5.5e-6 this way).
-            let y_lo = if n >= 2 { rec.steps[n - 2].y } else { y };
-            (
-                ts,
-                step_to(plant, &disc, lo, y_lo, ts, opts, &evals).unwrap_or(yd),
-            )
-        } else {
-            (t_stop, rec.last_state.unwrap_or(y))
-        };
-        if n >= 1 {
-            let last = rec.steps[n - 1].t;
-            let prev = if n >= 2 { rec.steps[n - 2].t } else { t };
-            h_guess = (last - prev).max(1e-6);
-        }
-
-        // Trace samples and watched conditions over (t, t_valid]. Watched conditions are checked
-        // at every step end and every grid time (already evaluated for the trace), and each change
-        // is located between the two check points around it: a condition that comes and goes
-        // inside one long step is still caught when it holds at a grid time.
-        let mut a = t;
-        for step in rec.steps.iter() {
-            let b = step.t.min(t_valid);
-            if b <= a {
-                continue;
-            }
-            sampler.sample_until(b, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, &disc);
-                if tq > a {
-                    watch(plant, &disc, &mut observer, a, tq, &yq, &pq, &dense);
-                    a = tq;
-                }
-                observer.touch(&pq, &yq);
-                row(plant, &pq, &yq, &disc)
-            });
-            let (yb, pb) = if b < step.t {
-                let yb = dense(b);
-                (yb, plant.eval(b, &yb, &disc))
-            } else {
-                (step.y, step.p)
-            };
-            if b > a {
-                watch(plant, &disc, &mut observer, a, b, &yb, &pb, &dense);
-            }
-            observer.touch(&pb, &yb);
-            a = b;
-            if b >= t_valid {
-                break;
-            }
-        }
-        if a < t_valid {
-            // A segment with no recorded step reaching t_valid (cannot normally happen).
-            sampler.sample_until(t_valid, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, &disc);
-                row(plant, &pq, &yq, &disc)
-            });
-        }
-        t = t_valid;
-        y = y_valid;
+        t = end.t;
+        y = end.y;
 
         // Time events at t: rests start or end.
         let resting = plant.jitter.resting(t);
@@ -450,13 +487,19 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             t,
             &mut y,
             &mut disc,
-            &mut observer,
+            &mut run.observer,
             &mut stats,
-            located,
+            end.located,
         )?;
         let p = plant.eval(t, &y, &disc);
-        observer.set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
+        run.observer
+            .set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
     }
+    let Walk {
+        mut sampler,
+        observer,
+        ..
+    } = run;
     stats.evaluations = evals.get();
     let events = observer.finish(t_end);
     if sampler.rows.last().is_none_or(|r| r.time_s < t_end) {
@@ -472,6 +515,407 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         final_state: y,
         duration_s: t_end,
     })
+}
+
+/// Where a segment starts.
+struct SegmentStart {
+    t: f64,
+    y: State,
+    t_stop: f64,
+    /// Step size to start with (the previous segment's last), s; 0 lets the solver choose.
+    h_guess: f64,
+}
+
+/// Where a segment ended: the located switching time or the segment end, the last step size,
+/// and the transition found due at a located switching time.
+struct SegmentEnd {
+    t: f64,
+    y: State,
+    h_last: f64,
+    located: Option<Transition>,
+}
+
+/// Per-step bookkeeping shared by every integrator: trace sampling, watched conditions and the
+/// location of due mode changes, all from one accepted step and its dense output.
+struct Walk<'a> {
+    plant: &'a Plant,
+    sampler: Sampler,
+    observer: Observer,
+    /// Implicit step attempts since the last progress mark, and the time of that mark.
+    progress: (u64, f64),
+}
+
+impl Walk<'_> {
+    /// Handles the accepted step (a, end.t]. If a mode change is due at its end, the switching
+    /// time is located by bisection on `dense` and the step is used only up to there; that time
+    /// and the transition found due there are returned (the segment ends; the caller supplies
+    /// the state to restart from). Trace rows are taken up to the end of the valid part, and
+    /// watched conditions are checked at every grid time and at the step end, each change located
+    /// between the two check points around it (a condition that comes and goes inside one long
+    /// step is still caught when it holds at a grid time).
+    fn step(
+        &mut self,
+        disc: &Discrete,
+        a: f64,
+        end: &StepEnd,
+        dense: &dyn Fn(f64) -> State,
+    ) -> Option<(f64, Option<Transition>)> {
+        let plant = self.plant;
+        let stop = due(plant, &end.p, &end.y, disc).map(|_| {
+            let ts = bisect(a, end.t, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, disc);
+                due(plant, &pq, &yq, disc).is_some()
+            });
+            let yd = dense(ts);
+            (ts, due(plant, &plant.eval(ts, &yd, disc), &yd, disc))
+        });
+        let b = stop.map_or(end.t, |(ts, _)| ts);
+        let mut a = a;
+        if b > a {
+            let observer = &mut self.observer;
+            self.sampler.sample_until(b, |tq| {
+                let yq = dense(tq);
+                let pq = plant.eval(tq, &yq, disc);
+                if tq > a {
+                    watch(plant, disc, observer, a, tq, &yq, &pq, dense);
+                    a = tq;
+                }
+                observer.touch(&pq, &yq);
+                row(plant, &pq, &yq, disc)
+            });
+            let (yb, pb) = if b < end.t {
+                let yb = dense(b);
+                (yb, plant.eval(b, &yb, disc))
+            } else {
+                (end.y, end.p)
+            };
+            if b > a {
+                watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
+            }
+            self.observer.touch(&pb, &yb);
+        }
+        stop
+    }
+}
+
+/// One segment with Dopri5 (ode_solvers): the whole segment is integrated with the callback
+/// stopping at the first step after which a mode change is due, then the recorded steps are
+/// walked with the segment's continuous output.
+#[allow(clippy::too_many_arguments)]
+fn explicit_segment(
+    run: &mut Walk,
+    rec: &mut Recorder,
+    disc: &Discrete,
+    seg: &SegmentStart,
+    opts: &SimOptions,
+    max_steps: u32,
+    evals: &Cell<u64>,
+    stats: &mut SolverStats,
+) -> Result<SegmentEnd, SimError> {
+    let plant = run.plant;
+    let (t, y, t_stop) = (seg.t, seg.y, seg.t_stop);
+    let mut model = ContinuousOutputModel::default();
+    let result = {
+        let rhs = Rhs {
+            plant,
+            disc: *disc,
+            rec: &mut *rec,
+            cache: Cell::new(None),
+            evals,
+        };
+        let h_max = opts.max_step_s.min(t_stop - t);
+        let mut solver = Dopri5::from_param(
+            rhs,
+            t,
+            t_stop,
+            t_stop - t,
+            y,
+            opts.rtol,
+            opts.atol,
+            0.9,
+            0.04,
+            0.2,
+            10.0,
+            h_max,
+            seg.h_guess.min(h_max),
+            max_steps,
+            u32::MAX,
+            OutputType::Continuous,
+        );
+        solver.integrate_with_continuous_output_model(&mut model)
+    };
+    let solver_stats = result.map_err(|e| SimError::Solver {
+        t_s: rec.steps.last().map_or(t, |s| s.t),
+        reason: e.to_string(),
+        state: describe(rec.last_state.as_ref().unwrap_or(&y)),
+    })?;
+    stats.accepted_steps += u64::from(solver_stats.accepted_steps);
+    stats.rejected_steps += u64::from(solver_stats.rejected_steps);
+    if let Some(Stop::Bad(tf, what)) = rec.stop {
+        return Err(SimError::Unphysical {
+            t_s: tf,
+            what,
+            state: describe(rec.last_state.as_ref().unwrap_or(&y)),
+        });
+    }
+    if rec.steps.is_empty() {
+        // Nothing was stepped (cannot normally happen): hold the state to the segment end.
+        run.sampler.sample_until(t_stop, |tq| {
+            let pq = plant.eval(tq, &y, disc);
+            row(plant, &pq, &y, disc)
+        });
+        return Ok(SegmentEnd {
+            t: t_stop,
+            y,
+            h_last: 0.0,
+            located: None,
+        });
+    }
+    // Evaluate inside the model's range: grid times a few ulps past the last step must not fall
+    // back to a stale state.
+    let (lo_b, hi_b) = model.bounds();
+    let last_y = rec.last_state.unwrap_or(y);
+    let dense = |tq: f64| model.evaluate(tq.clamp(lo_b, hi_b)).unwrap_or(last_y);
+    let n = rec.steps.len();
+    let h_last = rec.steps[n - 1].t - if n >= 2 { rec.steps[n - 2].t } else { t };
+    let mut a = t;
+    let mut y_a = y;
+    for step in &rec.steps {
+        if let Some((ts, located)) = run.step(disc, a, step, &dense) {
+            // The state at the switching time comes from one integration step from the last
+            // accepted step, not from the dense output: the dense output interpolates each state
+            // on its own, and restarting from it opened the energy ledger a little at every
+            // event (8.9e-4 after 24 000 restarts at rtol 1e-4; 5.5e-6 this way).
+            let ys = step_to(plant, disc, a, y_a, ts, opts, evals).unwrap_or_else(|| dense(ts));
+            return Ok(SegmentEnd {
+                t: ts,
+                y: ys,
+                h_last: h_last.max(1e-6),
+                located,
+            });
+        }
+        a = step.t;
+        y_a = step.y;
+    }
+    Ok(SegmentEnd {
+        t: t_stop,
+        y: last_y,
+        h_last: h_last.max(1e-6),
+        located: None,
+    })
+}
+
+/// One segment with an implicit method, one step at a time: each accepted step is checked
+/// (finite and physical), walked with its own dense output, and the segment ends at a located
+/// mode change or at `t_stop`.
+#[allow(clippy::too_many_arguments)]
+fn implicit_segment(
+    run: &mut Walk,
+    rec: &mut Recorder,
+    disc: &Discrete,
+    seg: &SegmentStart,
+    opts: &SimOptions,
+    method: Implicit,
+    evals: &Cell<u64>,
+    stats: &mut SolverStats,
+) -> Result<SegmentEnd, SimError> {
+    let plant = run.plant;
+    let rhs = StiffRhs {
+        plant,
+        disc: *disc,
+        evals,
+        t_stop: seg.t_stop,
+    };
+    let limits = Limits {
+        rtol: opts.rtol,
+        atol: opts.atol,
+        h_max: opts.max_step_s.min(seg.t_stop - seg.t),
+        h0: seg.h_guess,
+        max_steps: IMPLICIT_MAX_ATTEMPTS,
+        max_newton_iter: IMPLICIT_MAX_NEWTON,
+    };
+    let fail = |t_s: f64, reason: String, y: &State| SimError::Solver {
+        t_s,
+        reason,
+        state: describe(y),
+    };
+    /// Why the step loop ended without a segment end.
+    enum Halt {
+        Failed(SimError),
+        /// Too many rejections in a row at this time and state.
+        Stalled(f64, State),
+    }
+    use Halt::{Failed, Stalled};
+    let mut solver = stiff::Segment::start(method, &rhs, seg.t, &seg.y, seg.t_stop, &limits)
+        .map_err(|e| fail(seg.t, e, &seg.y))?;
+    let mut y_last = seg.y;
+    let mut rejected_in_a_row = 0usize;
+    let mut h_last = 0.0;
+    let outcome = loop {
+        let (attempts, t_mark) = run.progress;
+        if attempts >= PROGRESS_WINDOW {
+            if solver.t() - t_mark < PROGRESS_MIN_S {
+                break Err(Failed(fail(
+                    solver.t(),
+                    format!(
+                        "{attempts} step attempts advanced only {:.3e} s (the right-hand side \
+                         switches faster than the solver can follow)",
+                        solver.t() - t_mark
+                    ),
+                    &y_last,
+                )));
+            }
+            run.progress = (0, solver.t());
+        }
+        run.progress.0 += 1;
+        let attempt = match solver.attempt(&rhs) {
+            Ok(a) => a,
+            // The crate's own guards (step-size underflow, singular matrices) also end in a
+            // bridge: an explicit method may pass where Newton cannot.
+            Err(_) => break Err(Stalled(solver.t(), y_last)),
+        };
+        let Attempt::Accepted { t_prev, t } = attempt else {
+            stats.rejected_steps += 1;
+            rejected_in_a_row += 1;
+            if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
+                break Err(Stalled(solver.t(), y_last));
+            }
+            continue;
+        };
+        stats.accepted_steps += 1;
+        h_last = t - t_prev;
+        let ys = *solver.y();
+        if let Some(what) = unphysical(&ys) {
+            break Err(Failed(SimError::Unphysical {
+                t_s: t,
+                what,
+                state: describe(&ys),
+            }));
+        }
+        let (defect_j, moved_j) = step_energy_defect(plant, &y_last, &ys);
+        if defect_j.abs() > ENERGY_DEFECT_FACTOR * opts.rtol * moved_j + ENERGY_DEFECT_FLOOR_J {
+            // Take the step again from its start, shorter; the solver restarts there.
+            stats.energy_retries += 1;
+            stats.accepted_steps -= 1;
+            stats.rejected_steps += 1;
+            rejected_in_a_row += 1;
+            if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
+                break Err(Stalled(t_prev, y_last));
+            }
+            add_counts(stats, &solver.counts);
+            let retry = Limits {
+                h0: (t - t_prev) / 8.0,
+                h_max: opts.max_step_s.min(seg.t_stop - t_prev),
+                ..limits
+            };
+            match stiff::Segment::start(method, &rhs, t_prev, &y_last, seg.t_stop, &retry) {
+                Ok(s) => solver = s,
+                Err(_) => break Err(Stalled(t_prev, y_last)),
+            }
+            continue;
+        }
+        rejected_in_a_row = 0;
+        y_last = ys;
+        let end = StepEnd {
+            t,
+            y: ys,
+            p: plant.eval(t, &ys, disc),
+        };
+        let cell = std::cell::RefCell::new(&mut solver);
+        let dense = |tq: f64| cell.borrow_mut().dense(tq);
+        if let Some((ts, located)) = run.step(disc, t_prev, &end, &dense) {
+            // The restart state: the collocation polynomial at ts with the ledger integrated to
+            // ts by the same quadrature (so the ledger stays closed across events).
+            break Ok((ts, solver.state_at(&rhs, ts), located));
+        }
+        if t >= seg.t_stop {
+            break Ok((seg.t_stop, ys, None));
+        }
+    };
+    add_counts(stats, &solver.counts);
+    match outcome {
+        Ok((t, y, located)) => Ok(SegmentEnd {
+            t,
+            y,
+            h_last,
+            located,
+        }),
+        Err(Failed(e)) => Err(e),
+        Err(Stalled(t, y)) => {
+            // Hand over to Dopri5 for a short stretch; the next segment is implicit again.
+            let t_stop = (t + BRIDGE_S).min(seg.t_stop);
+            if t_stop - t <= 1e-12 * t.abs().max(1.0) {
+                // Stalled a rounding sliver short of the segment end: that end is reached.
+                return Ok(SegmentEnd {
+                    t: t_stop,
+                    y,
+                    h_last,
+                    located: None,
+                });
+            }
+            stats.explicit_bridges += 1;
+            let bridge = SegmentStart {
+                t,
+                y,
+                t_stop,
+                h_guess: 0.0,
+            };
+            rec.clear();
+            explicit_segment(
+                run,
+                rec,
+                disc,
+                &bridge,
+                opts,
+                BRIDGE_MAX_STEPS,
+                evals,
+                stats,
+            )
+        }
+    }
+}
+
+/// Adds one implicit segment's counters to the run's.
+fn add_counts(stats: &mut SolverStats, c: &stiff::ImplicitCounts) {
+    stats.jacobians += c.jacobians;
+    stats.lu_decompositions += c.decompositions;
+    stats.newton_iterations += c.newton_iterations;
+    stats.newton_failures += c.newton_failures;
+}
+
+/// Why a state is not physical, if it is not: a non-finite entry, or a magnitude no hand-cranked
+/// charger reaches (these bounds are far outside any valid run and catch a diverging solution,
+/// not a bad design).
+fn unphysical(y: &State) -> Option<&'static str> {
+    if !all_finite(y) {
+        return Some("a state is not finite");
+    }
+    let checks: [(usize, f64, f64, &'static str); 9] = [
+        (CRANK_SPEED, -1e4, 1e4, "crank speed beyond ±10 000 rad/s"),
+        (GEN_SPEED, -1e6, 1e6, "generator speed beyond ±1e6 rad/s"),
+        (SOC, -0.5, 1.5, "state of charge outside −0.5 … 1.5"),
+        (
+            BATTERY_TEMP,
+            -150.0,
+            1000.0,
+            "battery temperature outside −150 … 1000 °C",
+        ),
+        (
+            WINDING_TEMP,
+            -150.0,
+            1000.0,
+            "winding temperature outside −150 … 1000 °C",
+        ),
+        (ARMATURE_I, -1e4, 1e4, "armature current beyond ±10 kA"),
+        (INPUT_V, -1e4, 1e4, "input voltage beyond ±10 kV"),
+        (INDUCTOR_I, -1e4, 1e4, "inductor current beyond ±10 kA"),
+        (OUTPUT_V, -1e4, 1e4, "output voltage beyond ±10 kV"),
+    ];
+    checks
+        .iter()
+        .find(|&&(k, lo, hi, _)| !(lo..=hi).contains(&y[k]))
+        .map(|c| c.3)
 }
 
 /// Applies every transition due at (t, y) until none is, recording charge completion; `located`,
@@ -742,13 +1186,42 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
     }
 }
 
-/// Named state dump for failure messages.
+/// Named state dump for failure messages (the physical states; the ledger quadratures are left
+/// out).
 fn describe(y: &State) -> String {
     STATE_NAMES
         .iter()
         .zip(y.iter())
-        .take(SOFT_START + 1)
-        .map(|(n, v)| format!("{n}={v:.6e}"))
+        .enumerate()
+        .filter(|(k, _)| !stiff::is_ledger(*k))
+        .map(|(_, (n, v))| format!("{n}={v:.6e}"))
         .collect::<Vec<_>>()
         .join(", ")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn unphysical_flags_non_finite_and_out_of_range_states_only() {
+        let mut y = State::zeros();
+        y[SOC] = 0.5;
+        y[BATTERY_TEMP] = 25.0;
+        y[WINDING_TEMP] = 25.0;
+        y[OUTPUT_V] = 12.0;
+        assert_eq!(unphysical(&y), None);
+        // Ledger quadratures may grow without bound in a long session.
+        y[E_OPERATOR] = 1e12;
+        assert_eq!(unphysical(&y), None);
+        let mut bad = y;
+        bad[INPUT_V] = f64::NAN;
+        assert_eq!(unphysical(&bad), Some("a state is not finite"));
+        let mut bad = y;
+        bad[E_DIODE] = f64::INFINITY;
+        assert_eq!(unphysical(&bad), Some("a state is not finite"));
+        let mut bad = y;
+        bad[OUTPUT_V] = -2e4;
+        assert_eq!(unphysical(&bad), Some("output voltage beyond ±10 kV"));
+    }
 }

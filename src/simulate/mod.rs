@@ -4,7 +4,8 @@ pub mod engine;
 pub mod observe;
 pub mod plant;
 pub mod state;
+pub mod stiff;
 pub mod transitions;
 pub mod usb_port;
 
-pub use engine::{simulate, Fidelity, SimError, SimOptions, SimResult};
+pub use engine::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};

@@ -9,7 +9,7 @@ use crate::model::jitter::JitterTrack;
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
 use crate::simulate::plant::Plant;
-use crate::simulate::{simulate, Fidelity, SimError, SimOptions, SimResult};
+use crate::simulate::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};
 
 /// How to run a session beyond what the files say.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -62,6 +62,16 @@ pub enum SessionError {
 
 /// Runs one session and summarises it.
 pub fn run_session(sc: &Scenario, rs: &RunSettings) -> Result<Session, SessionError> {
+    run_session_with(sc, rs, Method::for_fidelity(rs.fidelity))
+}
+
+/// Runs one session with a given integration method (the benchmark compares them; every study
+/// uses [`run_session`]).
+pub fn run_session_with(
+    sc: &Scenario,
+    rs: &RunSettings,
+    method: Method,
+) -> Result<Session, SessionError> {
     let started = Instant::now();
     let seed = rs.seed.unwrap_or(sc.profile.seed);
     let duration = rs
@@ -84,6 +94,7 @@ pub fn run_session(sc: &Scenario, rs: &RunSettings) -> Result<Session, SessionEr
         rtol: so.rtol,
         atol: so.atol,
         max_step_s: so.max_step_s,
+        method,
     };
     let b = &sc.setup.battery;
     let y0 = initial_state(

@@ -3,7 +3,8 @@
 
 Integrates the detailed equations of ONE shipped scenario with scipy's implicit Radau method at
 tight tolerances and writes the trace on the product's 0.1-s grid, for tests/fidelity.rs to hold
-the Rust engine (explicit Dopri5, its own event location) against.
+the Rust engine (its own integrator, Radau5 from a Rust crate since it left explicit Dopri5, and
+its own event location) against.
 
 Scenario: profiles/setups/demo.ron with profiles/cranking/steady.ron, `jitter.enabled = false`
 (no cadence wander, no per-turn ripple, no rests), 3 s from rest: crank spin-up, UVLO release,

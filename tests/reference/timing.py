@@ -6,7 +6,7 @@ One run times, on the same scenario and the same simulated span,
 - scipy's solve_ivp with LSODA and with Radau on the detailed equations of
   `detailed_reference.py` (imported from it: the same model, segments, events and per-step checks
   that produce the committed fixture, nothing written);
-- the product's release binary, detailed fidelity (explicit Dopri5), as a whole process:
+- the product's release binary, detailed fidelity (Radau5; explicit Dopri5 before), as a whole process:
   `target/release/crankcharge run <demo.ron> --profile <steady.ron> --fidelity detailed
   --duration <D> --set profile.jitter.enabled=false --no-plot --out <tmp>`; its solver figures
   (evaluations, accepted and rejected steps, in-process wall time) come from its summary.json;
