@@ -1,5 +1,6 @@
-//! Session benchmark: wall time, steps, evaluations, Jacobians, LU decompositions and real-time
-//! factor per shipped setup, fidelity and integration method. Prints three tables; run with
+//! Session benchmark: wall time (and its equivalent per 10-minute session), steps, right-hand-side
+//! evaluations and ns per evaluation, Jacobians, LU decompositions and real-time factor per
+//! shipped setup, fidelity and integration method. Prints three tables; run with
 //! `cargo bench --bench session` (`-- --quick` for short spans).
 //!
 //! 1. Whole sessions through the engine (events located, trace sampled, ledger), steady profile.
@@ -225,15 +226,17 @@ fn sessions(quick: bool) {
     ];
     println!("Sessions through the engine (steady profile, best of the repeats)");
     println!(
-        "{:<18} {:<9} {:<7} {:>6} {:>9} {:>9} {:>8} {:>10} {:>7} {:>7} {:>7} {:>11} {:>9}",
+        "{:<18} {:<9} {:<7} {:>6} {:>9} {:>10} {:>9} {:>8} {:>10} {:>7} {:>7} {:>7} {:>7} {:>11} {:>9}",
         "setup",
         "fidelity",
         "method",
         "sim s",
         "wall ms",
+        "ms/10 min",
         "accepted",
         "rejected",
         "evals",
+        "ns/eval",
         "jac",
         "LU",
         "Nfail",
@@ -266,11 +269,13 @@ fn sessions(quick: bool) {
             Ok(s) => {
                 let st = s.summary.solver;
                 println!(
-                    "{head} {:>9.1} {:>9} {:>8} {:>10} {:>7} {:>7} {:>7} {:>11.8} {:>9.0}",
+                    "{head} {:>9.1} {:>10.1} {:>9} {:>8} {:>10} {:>7.0} {:>7} {:>7} {:>7} {:>11.8} {:>9.0}",
                     best * 1e3,
+                    best * 1e3 * 600.0 / c.duration_s,
                     st.accepted_steps,
                     st.rejected_steps,
                     st.evaluations,
+                    best * 1e9 / st.evaluations.max(1) as f64,
                     st.jacobians,
                     st.lu_decompositions,
                     st.newton_failures,
