@@ -633,10 +633,10 @@ fn explicit_segment(
             y,
             opts.rtol,
             opts.atol,
-            0.9,
-            0.04,
-            0.2,
-            10.0,
+            DOPRI5_SAFETY,
+            DOPRI5_BETA,
+            DOPRI5_FAC_MIN,
+            DOPRI5_FAC_MAX,
             h_max,
             seg.h_guess.min(h_max),
             max_steps,
@@ -977,6 +977,13 @@ impl System<f64, State> for Free<'_> {
     }
 }
 
+/// Dopri5's step-size control (Hairer, Nørsett & Wanner, Solving ODEs I, §II.4): safety factor,
+/// the PI stabilisation β recommended for Dopri5, and the bounds on one step's change of size.
+const DOPRI5_SAFETY: f64 = 0.9;
+const DOPRI5_BETA: f64 = 0.04;
+const DOPRI5_FAC_MIN: f64 = 0.2;
+const DOPRI5_FAC_MAX: f64 = 10.0;
+
 /// Integrates from an accepted step (t0, y0) to t1 ≤ the next step end (one step, or a few if the
 /// error control asks), under the same tolerances. None if the integrator fails.
 fn step_to(
@@ -1004,10 +1011,10 @@ fn step_to(
         y0,
         opts.rtol,
         opts.atol,
-        0.9,
-        0.04,
-        0.2,
-        10.0,
+        DOPRI5_SAFETY,
+        DOPRI5_BETA,
+        DOPRI5_FAC_MIN,
+        DOPRI5_FAC_MAX,
         h,
         h,
         1000,
