@@ -199,43 +199,52 @@ pub fn run(a: &CheckArgs) -> Result<i32, Failure> {
 }
 
 /// The static network of a plant: what is needed to solve operating points at a cadence.
-struct Statics<'a> {
-    plant: &'a Plant,
-    resistance_ohm: f64,
+pub(super) struct Statics<'a> {
+    pub plant: &'a Plant,
+    pub resistance_ohm: f64,
 }
 
 impl Statics<'_> {
     /// Open-circuit EMF at a crank cadence, V.
-    fn emf_v(&self, crank_rpm: f64) -> f64 {
+    pub fn emf_v(&self, crank_rpm: f64) -> f64 {
         self.plant
             .generator
             .emf_v(rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio)
     }
 
     /// Crank cadence at which the open-circuit EMF equals `v`, rpm.
-    fn cadence_for_emf(&self, v: f64) -> f64 {
+    pub fn cadence_for_emf(&self, v: f64) -> f64 {
         rad_s_to_rpm(v / self.plant.generator.ke_v_s_per_rad / self.plant.drive.ratio)
     }
 
-    fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {
-        let src = Source {
+    /// The generator side at a crank cadence (winding at ambient).
+    pub fn source(&self, crank_rpm: f64) -> Source<'_> {
+        Source {
             generator: &self.plant.generator,
             diode: &self.plant.diode,
             emf_v: self.emf_v(crank_rpm),
             resistance_ohm: self.resistance_ohm,
-        };
-        let term = self.plant.battery.terminal(bs);
-        network::solve(&src, load, &term)
+        }
     }
 
-    /// The charger asking for `target_a`, trimming it to hold its input floor when it has one.
-    fn buck(&self, target_a: f64) -> Load<'_> {
-        let conv = network::Converters {
+    /// The design's converter models.
+    pub fn converters(&self) -> network::Converters<'_> {
+        network::Converters {
             topology: self.plant.charger.topology,
             buck: &self.plant.buck,
             buck_boost: &self.plant.buck_boost,
             linear: &self.plant.linear,
-        };
+        }
+    }
+
+    fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {
+        let term = self.plant.battery.terminal(bs);
+        network::solve(&self.source(crank_rpm), load, &term)
+    }
+
+    /// The charger asking for `target_a`, trimming it to hold its input floor when it has one.
+    fn buck(&self, target_a: f64) -> Load<'_> {
+        let conv = self.converters();
         match self.plant.charger.input_floor_v {
             Some(floor_v) => Load::Floored {
                 conv,
@@ -560,9 +569,9 @@ fn usb_port(
         return (None, None);
     };
     let us = UsbStatics {
+        statics: st,
         plant: st.plant,
         usb: u,
-        resistance_ohm: st.resistance_ohm,
         cell: *bs_start,
     };
     let demand = check_usb::start_demand_a(st.plant, bs_start, band);

@@ -7,14 +7,13 @@ use serde::Serialize;
 
 use crate::model::battery::li_ion::TempBand;
 use crate::model::battery::{BatteryModel, BatteryState};
-use crate::model::network::{Converters, NetworkPoint, Source};
+use crate::model::network::NetworkPoint;
 use crate::model::usb::{BusPoint, UsbModel};
 use crate::model::usb_network;
 use crate::simulate::plant::Plant;
 use crate::simulate::transitions::USB_SLEEP_MARGIN_V;
-use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
 
-use super::check::{first_cadence, MAX_SEARCH_RPM};
+use super::check::{first_cadence, Statics, MAX_SEARCH_RPM};
 
 /// USB port figures. Cadences are crank cadences, rpm, with the converter running (once UVLO has
 /// released it, which `unlock_cadence_rpm` gives); None: not reached below the search limit.
@@ -47,40 +46,21 @@ pub struct UsbFigures {
     pub bus_current_a_at_profile_cadence: Option<f64>,
 }
 
-/// The static network of a plant with a USB port.
+/// The static network of a plant with a USB port: the plant's own, plus the port and the cell.
 pub struct UsbStatics<'a> {
+    pub(super) statics: &'a Statics<'a>,
     pub plant: &'a Plant,
     pub usb: &'a UsbModel,
-    pub resistance_ohm: f64,
     pub cell: BatteryState,
 }
 
 impl UsbStatics<'_> {
-    fn emf_v(&self, crank_rpm: f64) -> f64 {
-        self.plant
-            .generator
-            .emf_v(rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio)
-    }
-
     /// The running converter and the device asking for `demand_a`: the point (cell side) and the bus.
     pub fn solve(&self, crank_rpm: f64, demand_a: f64) -> (NetworkPoint, BusPoint) {
-        let p = self.plant;
-        let src = Source {
-            generator: &p.generator,
-            diode: &p.diode,
-            emf_v: self.emf_v(crank_rpm),
-            resistance_ohm: self.resistance_ohm,
-        };
-        let conv = Converters {
-            topology: p.charger.topology,
-            buck: &p.buck,
-            buck_boost: &p.buck_boost,
-            linear: &p.linear,
-        };
-        let cell = p.battery.terminal(&self.cell);
+        let cell = self.plant.battery.terminal(&self.cell);
         usb_network::solve(
-            &src,
-            &conv,
+            &self.statics.source(crank_rpm),
+            &self.statics.converters(),
             self.usb,
             (self.usb.bus_v, self.usb.port_current_a),
             demand_a,
@@ -120,14 +100,14 @@ pub fn analyse(
 ) -> UsbFigures {
     let u = st.usb;
     let c = &st.plant.charger;
-    let unlock = (c.uvlo_on_v > 0.0).then(|| cadence_for_emf(st, c.uvlo_on_v));
+    let unlock = (c.uvlo_on_v > 0.0).then(|| st.statics.cadence_for_emf(c.uvlo_on_v));
     let band = first_cadence(|r| st.holds(r, demand_a, |b| b.bus_v >= u.band_low_v));
     let setpoint = first_cadence(|r| st.holds(r, demand_a, |b| !b.converter_saturated));
     let cutoff = first_cadence(|r| st.holds(r, demand_a, |b| b.bus_v >= u.cutoff_v));
-    let limit_cadence = cadence_for_emf(st, c.input_overvoltage_v);
+    let limit_cadence = st.statics.cadence_for_emf(c.input_overvoltage_v);
     // The bus at the profile's cadence: nothing while UVLO holds the converter off.
     let at = profile_rpm.map(|r| {
-        if st.emf_v(r) >= c.uvlo_on_v {
+        if st.statics.emf_v(r) >= c.uvlo_on_v {
             st.solve(r, demand_a).1
         } else {
             BusPoint::default()
@@ -140,7 +120,7 @@ pub fn analyse(
         )
     };
     if let (Some(r), Some(b)) = (profile_rpm, &at) {
-        let unlocked = st.emf_v(r) >= c.uvlo_on_v;
+        let unlocked = st.statics.emf_v(r) >= c.uvlo_on_v;
         if unlocked && b.bus_v < u.band_low_v {
             notes.push(format!(
                 "At the profile's cadence ({r:.0} rpm) the bus sits at {:.2} V with the device drawing {:.3} A, below the {:.2} V band edge; it needs {}.",
@@ -189,10 +169,6 @@ pub fn analyse(
         bus_v_at_profile_cadence: at.map(|b| b.bus_v),
         bus_current_a_at_profile_cadence: at.map(|b| b.bus_current_a),
     }
-}
-
-fn cadence_for_emf(st: &UsbStatics, v: f64) -> f64 {
-    rad_s_to_rpm(v / st.plant.generator.ke_v_s_per_rad / st.plant.drive.ratio)
 }
 
 /// The lines of the "Crank cadences" table for a USB port.
