@@ -14,7 +14,7 @@ use crankcharge::scenario::{load_scenario, Scenario, SourceText};
 use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::{run_session, RunSettings, Session};
 
-use crate::common::{read_csv, repo, run_code, run_ok, WorkDir};
+use crate::common::{read_csv, repo, run_code, run_ok, WorkDir, RUN_FILES};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -634,13 +634,7 @@ fn usb_phone_demo_runs_end_to_end() {
     let w = WorkDir::new();
     let setup = setup_path("usb-phone");
     run_ok(&w, &["run", setup.to_str().expect("utf-8"), "--out", "usb"]);
-    for f in [
-        "trace.csv",
-        "events.csv",
-        "summary.json",
-        "session.png",
-        "session.svg",
-    ] {
+    for f in RUN_FILES {
         assert!(w.path("usb").join(f).is_file(), "{f} written");
     }
     let m: serde_json::Value =

@@ -38,6 +38,15 @@ impl WorkDir {
 }
 
 /// Root of the repository (for shipped files).
+/// The files a run folder holds (DESIGN.md §4, the interface contract).
+pub const RUN_FILES: [&str; 5] = [
+    "trace.csv",
+    "events.csv",
+    "summary.json",
+    "session.png",
+    "session.svg",
+];
+
 pub fn repo() -> &'static Path {
     Path::new(env!("CARGO_MANIFEST_DIR"))
 }

@@ -12,7 +12,7 @@ use std::time::Duration;
 use serde::Deserialize;
 use serde_json::Value;
 
-use crate::common::{column, read_csv, repo, run_code, run_ok, WorkDir};
+use crate::common::{column, read_csv, repo, run_code, run_ok, WorkDir, RUN_FILES};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers
@@ -306,13 +306,7 @@ fn demo_run_writes_every_contract_file() {
     let wd = WorkDir::new();
     let stdout = run_ok(&wd, &["run"]);
     let d = wd.path("outputs/demo");
-    for f in [
-        "trace.csv",
-        "events.csv",
-        "summary.json",
-        "session.png",
-        "session.svg",
-    ] {
+    for f in RUN_FILES {
         let len = std::fs::metadata(d.join(f))
             .unwrap_or_else(|e| panic!("outputs/demo/{f} missing: {e}\nstdout:\n{stdout}"))
             .len();
