@@ -176,7 +176,7 @@ fn accuracy() {
         }
         let uvlo = session
             .result
-            .events
+            .runs
             .iter()
             .find(|e| e.kind == crankcharge::analysis::events::EventKind::Lockout)
             .map_or(f64::NAN, |e| e.end_s - uvlo_ref);

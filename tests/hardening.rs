@@ -368,6 +368,9 @@ fn a_restart_delay_holds_the_charger_off_after_each_lockout() {
             "profile.jitter.rest_interval_s=0",
             "--set",
             "converter.restart_delay_s=0.5",
+            // Each lock-out a row of its own, however close the next.
+            "--set",
+            "alerts.lockout.merge_gap_s=0",
         ])
         .assert()
         .success();

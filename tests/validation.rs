@@ -826,10 +826,10 @@ fn usb_band_is_4_75_to_5_25_v_by_behaviour() {
     // Source: Universal Serial Bus Specification Revision 2.0, USB-IF, 2000, §7.2.1 (VBUS 4.75–5.25 V)
     let (_, all_out, low) = held(4.70);
     assert!(all_out, "4.70 V counts as out of regulation");
-    assert!(low.summary.in_regulation_fraction < 0.1);
+    assert!(low.summary.in_regulation_fraction.unwrap() < 0.1);
     assert!(low
         .result
-        .events
+        .runs
         .iter()
         .any(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("4.75–5.25 V")));
     assert!(low.summary.usb.as_ref().unwrap().out_of_band_s > 20.0);
@@ -1275,7 +1275,7 @@ fn li_ion_session_holds_cv_and_tapers() {
     assert!(max_v <= cells * 4.25, "max {max_v}");
     assert!(!s
         .result
-        .events
+        .runs
         .iter()
         .any(|e| e.kind == EventKind::Overcharge));
     let cv: Vec<_> = rows.iter().filter(|r| r.mode == Mode::Cv).collect();

@@ -20,7 +20,7 @@ pub enum EventKind {
     ChargeTempWindow,
     /// Operator's anaerobic reserve W' nearly exhausted.
     OperatorOverload,
-    /// Charge terminated (informational).
+    /// Charge terminated: from the termination to the session end (informational).
     ChargeComplete,
     /// USB port: the device cut itself off the sagging (or vanished) bus, until it reconnects.
     DeviceCutoff,
@@ -42,36 +42,64 @@ impl EventKind {
         }
     }
 
-    /// Whether the kind is an alert (a problem) rather than information.
-    pub fn is_alert(self) -> bool {
-        !matches!(self, EventKind::ChargeComplete)
-    }
+    /// Every kind, in the order of the README's alert table.
+    pub const ALL: [EventKind; 9] = [
+        EventKind::Overcharge,
+        EventKind::RegulationLoss,
+        EventKind::Lockout,
+        EventKind::InputOvervoltage,
+        EventKind::BatteryOvertemp,
+        EventKind::ChargeTempWindow,
+        EventKind::OperatorOverload,
+        EventKind::DeviceCutoff,
+        EventKind::ChargeComplete,
+    ];
 }
 
 /// How the detail of a USB `regulation_loss` period begins when the bus left its band while the
 /// device drew from it (the summary totals these periods as the time out of band).
 pub const OUT_OF_BAND_DETAIL: &str = "bus outside the band";
 
-/// One period or instant of interest.
+/// One episode: a quantity past its threshold from `start_s` to `end_s`.
+///
+/// Sign convention: `worst` is the value of `quantity` at the moment it lay furthest past
+/// `threshold` (above it for upper limits such as `overcharge`, below it for lower limits such
+/// as `lockout`), and `threshold` is the limit in force at that moment.
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct Event {
     pub kind: EventKind,
     pub start_s: f64,
     pub end_s: f64,
     pub duration_s: f64,
-    /// Extreme value reached during the period (see `unit`).
-    pub peak: f64,
-    pub unit: String,
+    /// What was measured (a trace column name, e.g. `battery_v`).
+    pub quantity: &'static str,
+    pub unit: &'static str,
+    /// The limit in force where the quantity was furthest past it.
+    pub threshold: f64,
+    /// The value furthest past the threshold.
+    pub worst: f64,
+    /// Whether this row counts towards a flag of the verdict.
+    pub affects_verdict: bool,
     pub detail: String,
+    /// Cause within the kind (e.g. dropout or soft-start for `regulation_loss`): episodes merge
+    /// only with episodes of the same cause. Not written.
+    #[serde(skip)]
+    pub cause: u8,
+    /// Whether past the threshold means above it (upper limits) or below it. Not written.
+    #[serde(skip)]
+    pub above: bool,
 }
 
 /// Column names of `events.csv`, in order.
-pub const EVENT_COLUMNS: [&str; 7] = [
+pub const EVENT_COLUMNS: [&str; 10] = [
     "kind",
     "start_s",
     "end_s",
     "duration_s",
-    "peak",
+    "quantity",
     "unit",
+    "threshold",
+    "worst",
+    "affects_verdict",
     "detail",
 ];

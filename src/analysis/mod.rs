@@ -1,5 +1,6 @@
 //! Reading results: trace, events, summary figures and statistics. Never reaches back into the model.
 
+pub mod episodes;
 pub mod events;
 pub mod fit;
 pub mod stats;

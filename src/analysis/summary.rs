@@ -2,8 +2,9 @@
 
 use serde::Serialize;
 
-use super::events::{Event, EventKind};
+use super::events::Event;
 use super::trace::Trace;
+use crate::scenario::alerts::Alerts;
 use crate::simulate::engine::{Ledger, SolverStats};
 
 /// Verdict of a run: `ok`, one flag, or a list of flags.
@@ -27,6 +28,14 @@ impl Verdict {
     /// Whether the design was flagged.
     pub fn flagged(&self) -> bool {
         !matches!(self, Verdict::One(s) if s == "ok")
+    }
+
+    /// Whether the verdict holds the flag `word`.
+    pub fn has(&self, word: &str) -> bool {
+        match self {
+            Verdict::One(s) => s == word,
+            Verdict::Many(v) => v.iter().any(|s| s == word),
+        }
     }
 
     /// The flags as words.
@@ -53,18 +62,42 @@ pub struct Summary {
     pub operator_work_j: f64,
     pub mean_operator_power_w: f64,
     pub peak_operator_power_w: f64,
-    pub in_regulation_fraction: f64,
-    pub regulation_loss_s: f64,
+    /// Fraction of cranking time the converter held its set point; `null` for a direct design
+    /// (nothing regulates).
+    pub in_regulation_fraction: Option<f64>,
+    /// Cranking time out of regulation (every moment, dwell or not), s; `null` for direct.
+    pub regulation_loss_s: Option<f64>,
+    /// Time the battery spent past the overcharge threshold (every moment, dwell or not), s.
     pub overcharge_s: f64,
     pub max_battery_v: f64,
     pub charge_limit_v: f64,
     pub energy_balance_error: f64,
+    /// The rows that count towards a flag of the verdict (`affects_verdict`).
     pub alerts: Vec<Event>,
     pub verdict: Verdict,
     pub wall_time_s: f64,
+    /// Charge limit at the peak minus the highest battery voltage, V (negative when crossed).
+    pub overcharge_margin_v: f64,
+    /// Lowest sustained crank cadence minus the cadence regulation needs (from `check`), rpm;
+    /// `null` when no converter regulates or either figure is undefined.
+    pub cadence_margin_rpm: Option<f64>,
+    // Extras after the contract keys.
+    /// Why the verdict is what it is, one sentence per flag (empty when `ok`).
+    pub verdict_reasons: Vec<String>,
+    /// Informational rows (everything in events.csv that does not affect the verdict).
+    pub episodes: Vec<Event>,
+    /// The alert rules the run used (thresholds, hysteresis, dwell, merge gaps; `alerts` in the
+    /// setup), and the overcharge threshold they give at the peak, V.
+    pub alert_rules: Alerts,
+    pub overcharge_threshold_v: f64,
+    /// Lowest mean crank cadence over any [`SUSTAINED_WINDOW_S`] of cranking (rests and spin-up
+    /// left out), rpm.
+    pub lowest_sustained_cadence_rpm: Option<f64>,
+    /// Crank cadence from which the converter holds its start target (as `check` computes it),
+    /// rpm.
+    pub regulation_cadence_rpm: Option<f64>,
     /// Grid of trace.csv, s (widened for very long sessions to bound memory).
     pub trace_interval_s: f64,
-    // Extras after the contract keys.
     pub topology: String,
     pub chemistry: String,
     /// What the converter feeds: `battery` or `usb_5v`.
@@ -85,6 +118,10 @@ pub struct Summary {
     pub usb: Option<UsbSummary>,
 }
 
+/// Window over which the lowest sustained cadence is averaged, s: a few crank turns, so that the
+/// dip inside one stroke does not count as the operator's cadence.
+pub const SUSTAINED_WINDOW_S: f64 = 5.0;
+
 /// Figures of a USB port's bus (`summary.json` `usb`).
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct UsbSummary {
@@ -95,7 +132,8 @@ pub struct UsbSummary {
     /// Regulation band, V.
     pub band_low_v: f64,
     pub band_high_v: f64,
-    /// Lowest bus voltage while the device drew (all samples if it never drew), trace grid, V.
+    /// Lowest bus voltage while the operator cranked and the device drew (all samples if it never
+    /// drew), trace grid, V.
     pub min_bus_v: f64,
     /// Highest bus voltage, trace grid, V.
     pub max_bus_v: f64,
@@ -105,20 +143,15 @@ pub struct UsbSummary {
     pub device_cutoffs: usize,
     /// Their total time, s.
     pub device_cutoff_s: f64,
+    /// Least time the device stays off before it reconnects, as configured, s.
+    pub reconnect_delay_s: f64,
+    /// Shortest and longest time off of the cut-offs that ended in a reconnection, s (`null`
+    /// when none did).
+    pub observed_reconnect_delay_s: Option<(f64, f64)>,
     /// Energy the bus delivered to the device, Wh.
     pub energy_to_bus_wh: f64,
     /// Heat in the device's charger between bus and cell, Wh.
     pub device_loss_wh: f64,
-}
-
-/// Total duration of the events of one kind, s.
-pub fn total_duration(events: &[Event], kind: EventKind) -> f64 {
-    events
-        .iter()
-        .filter(|e| e.kind == kind)
-        .map(|e| e.duration_s)
-        // A fold from +0.0: `sum()` of no floats is −0.0, which would print as "-0.0".
-        .fold(0.0, |a, d| a + d)
 }
 
 /// Peak battery voltage in the trace and the charge limit in force at that sample.
@@ -138,7 +171,7 @@ pub fn battery_peak(trace: &Trace) -> (f64, f64) {
 
 /// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
 /// so that study files are identical for identical inputs.
-pub const SCALAR_KEYS: [&str; 30] = [
+pub const SCALAR_KEYS: [&str; 34] = [
     "duration_s",
     "fidelity",
     "soc_start",
@@ -169,14 +202,20 @@ pub const SCALAR_KEYS: [&str; 30] = [
     "min_bus_v",
     "bus_out_of_band_s",
     "device_cutoffs",
+    "overcharge_margin_v",
+    "cadence_margin_rpm",
+    "episode_count",
+    "marginal_figures",
 ];
 
 impl Summary {
-    /// The scalar keys as strings, in [`SCALAR_KEYS`] order.
+    /// The scalar keys as strings, in [`SCALAR_KEYS`] order (an empty cell where a figure does
+    /// not apply).
     pub fn scalar_values(&self) -> Vec<String> {
         let mut kinds: Vec<&str> = self.alerts.iter().map(|e| e.kind.as_str()).collect();
         kinds.sort_unstable();
         kinds.dedup();
+        let opt = |v: Option<f64>| v.map_or_else(String::new, fmt);
         vec![
             fmt(self.duration_s),
             self.fidelity.clone(),
@@ -187,8 +226,8 @@ impl Summary {
             fmt(self.operator_work_j),
             fmt(self.mean_operator_power_w),
             fmt(self.peak_operator_power_w),
-            fmt(self.in_regulation_fraction),
-            fmt(self.regulation_loss_s),
+            opt(self.in_regulation_fraction),
+            opt(self.regulation_loss_s),
             fmt(self.overcharge_s),
             fmt(self.max_battery_v),
             fmt(self.charge_limit_v),
@@ -205,17 +244,50 @@ impl Summary {
             self.alerts.len().to_string(),
             kinds.join("+"),
             self.output.clone(),
-            self.usb
-                .as_ref()
-                .map_or_else(String::new, |u| fmt(u.min_bus_v)),
-            self.usb
-                .as_ref()
-                .map_or_else(String::new, |u| fmt(u.out_of_band_s)),
+            opt(self.usb.as_ref().map(|u| u.min_bus_v)),
+            opt(self.usb.as_ref().map(|u| u.out_of_band_s)),
             self.usb
                 .as_ref()
                 .map_or_else(String::new, |u| u.device_cutoffs.to_string()),
+            fmt(self.overcharge_margin_v),
+            opt(self.cadence_margin_rpm),
+            self.episodes.len().to_string(),
+            self.marginal_figures().join("+"),
         ]
     }
+
+    /// Every row of `events.csv`: the alerts and the episodes, by start time.
+    pub fn events(&self) -> Vec<Event> {
+        let mut v: Vec<Event> = self.alerts.iter().chain(&self.episodes).cloned().collect();
+        v.sort_by(|a, b| a.start_s.total_cmp(&b.start_s).then(a.kind.cmp(&b.kind)));
+        v
+    }
+
+    /// The figures a `marginal` verdict names (empty otherwise).
+    pub fn marginal_figures(&self) -> Vec<&'static str> {
+        let mut v = Vec::new();
+        if self.verdict.has(MARGINAL) {
+            for r in &self.verdict_reasons {
+                for f in MARGINAL_FIGURES {
+                    if r.starts_with(f) && !v.contains(&f) {
+                        v.push(f);
+                    }
+                }
+            }
+        }
+        v
+    }
+}
+
+/// The verdict word for a figure too close to its threshold to decide.
+pub const MARGINAL: &str = "marginal";
+/// The figures a `marginal` verdict can name (each reason starts with one).
+pub const MARGINAL_FIGURES: [&str; 2] = ["max_battery_v", "in_regulation_fraction"];
+
+/// A fraction as a percentage with one decimal, or `n/a` where it does not apply (a direct
+/// design's regulation).
+pub fn percent_or_na(v: Option<f64>) -> String {
+    v.map_or_else(|| "n/a".to_string(), |f| format!("{:.1}", 100.0 * f))
 }
 
 /// Compact float formatting for tables (shortest round-trip representation).

@@ -74,6 +74,18 @@ impl<'a> Converters<'a> {
             Topology::Direct => Load::Direct,
         }
     }
+
+    /// Least input voltage at which the charger passes `i` into a battery at `v_o`, V: the
+    /// dropout edge of a switching charger (duty at D_max), the pass element's headroom for a
+    /// linear one, the battery itself for a direct connection.
+    pub fn regulation_input_v(&self, v_o: f64, i: f64) -> f64 {
+        match self.topology {
+            Topology::Buck => self.buck.dropout_input_v(v_o, i),
+            Topology::BuckBoost => self.buck_boost.dropout_input_v(v_o, i),
+            Topology::Linear => v_o + i * self.linear.pass_resistance_ohm,
+            Topology::Direct => v_o,
+        }
+    }
 }
 
 /// The generator side of the network at one instant.

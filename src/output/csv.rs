@@ -132,8 +132,11 @@ pub fn events_csv(events: &[Event]) -> Result<Vec<u8>, CsvError> {
             f(e.start_s, 4),
             f(e.end_s, 4),
             f(e.duration_s, 4),
-            f(e.peak, 5),
-            e.unit.clone(),
+            e.quantity.to_string(),
+            e.unit.to_string(),
+            f(e.threshold, 5),
+            f(e.worst, 5),
+            e.affects_verdict.to_string(),
             e.detail.clone(),
         ])?;
     }

@@ -1507,9 +1507,14 @@ mod tests {
             start_s,
             end_s,
             duration_s: end_s - start_s,
-            peak: 1.0,
-            unit: "V".to_string(),
+            quantity: "battery_v",
+            unit: "V",
+            threshold: 1.0,
+            worst: 1.0,
+            affects_verdict: false,
             detail: String::new(),
+            cause: 1,
+            above: true,
         }
     }
 

@@ -1,5 +1,6 @@
 //! Scenario input: setup and profile files (RON), validation, `--set` overrides, embedded demo.
 
+pub mod alerts;
 pub mod demo;
 pub mod error;
 pub mod load;

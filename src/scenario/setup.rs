@@ -2,6 +2,8 @@
 
 use serde::{Deserialize, Serialize};
 
+pub use super::alerts::Alerts;
+
 /// A whole charger design. Every physical field carries its unit in its name.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields)]
@@ -544,28 +546,6 @@ impl Setup {
             "usb_5v"
         } else {
             "battery"
-        }
-    }
-}
-
-/// Alert thresholds and the verdict rule.
-#[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
-#[serde(deny_unknown_fields, default)]
-pub struct Alerts {
-    /// Battery over-temperature alert, °C.
-    pub battery_overtemp_c: f64,
-    /// Verdict `fails_regulation` when the in-regulation fraction of cranking time is below this (0 … 1).
-    pub min_in_regulation_fraction: f64,
-    /// Operator overload alert when W′ balance falls below this fraction of W′ (0 … 1).
-    pub operator_reserve_fraction: f64,
-}
-
-impl Default for Alerts {
-    fn default() -> Self {
-        Self {
-            battery_overtemp_c: 50.0,
-            min_in_regulation_fraction: 0.9,
-            operator_reserve_fraction: 0.1,
         }
     }
 }

@@ -1,7 +1,7 @@
 //! Range checks of every physical field, with the path and the allowed range for the message.
 
 use super::profile::Profile;
-use super::setup::{DiodeKind, Setup, Topology, UsbPort};
+use super::setup::{Alerts, DiodeKind, Setup, Topology, UsbPort};
 
 /// One field outside its allowed range.
 #[derive(Debug, Clone, PartialEq)]
@@ -417,13 +417,17 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         usb(&mut c, s, u);
     }
 
-    let a = &s.alerts;
-    c.range(
-        "alerts.battery_overtemp_c",
-        a.battery_overtemp_c,
-        -40.0,
-        150.0,
-    );
+    alerts(&mut c, &s.alerts);
+    let so = &s.solver;
+    c.range("solver.rtol", so.rtol, 1e-10, 1e-2);
+    c.range("solver.atol", so.atol, 1e-12, 1e-2);
+    c.range("solver.max_step_s", so.max_step_s, 1e-4, 1.0);
+    c.range("solver.trace_interval_s", so.trace_interval_s, 1e-3, 60.0);
+    c.out
+}
+
+/// Ranges of the `alerts` section: thresholds, hysteresis bands, dwell times and merge gaps.
+fn alerts(c: &mut Checker, a: &Alerts) {
     c.range(
         "alerts.min_in_regulation_fraction",
         a.min_in_regulation_fraction,
@@ -431,17 +435,89 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         1.0,
     );
     c.range(
-        "alerts.operator_reserve_fraction",
-        a.operator_reserve_fraction,
+        "alerts.regulation_decision_band",
+        a.regulation_decision_band,
+        0.0,
+        0.5,
+    );
+    c.range(
+        "alerts.overcharge_decision_band_v",
+        a.overcharge_decision_band_v,
         0.0,
         1.0,
     );
-    let so = &s.solver;
-    c.range("solver.rtol", so.rtol, 1e-10, 1e-2);
-    c.range("solver.atol", so.atol, 1e-12, 1e-2);
-    c.range("solver.max_step_s", so.max_step_s, 1e-4, 1.0);
-    c.range("solver.trace_interval_s", so.trace_interval_s, 1e-3, 60.0);
-    c.out
+    let o = &a.overcharge;
+    c.range(
+        "alerts.overcharge.tolerance_v_per_cell",
+        o.tolerance_v_per_cell,
+        0.0,
+        0.5,
+    );
+    c.range(
+        "alerts.overcharge.hysteresis_v_per_cell",
+        o.hysteresis_v_per_cell,
+        0.0,
+        0.5,
+    );
+    let io = &a.input_overvoltage;
+    c.range(
+        "alerts.input_overvoltage.hysteresis_v",
+        io.hysteresis_v,
+        0.0,
+        100.0,
+    );
+    let t = &a.battery_overtemp;
+    c.range(
+        "alerts.battery_overtemp.threshold_c",
+        t.threshold_c,
+        -40.0,
+        150.0,
+    );
+    c.range(
+        "alerts.battery_overtemp.hysteresis_k",
+        t.hysteresis_k,
+        0.0,
+        50.0,
+    );
+    let op = &a.operator_overload;
+    c.range(
+        "alerts.operator_overload.reserve_fraction",
+        op.reserve_fraction,
+        0.0,
+        1.0,
+    );
+    c.range(
+        "alerts.operator_overload.hysteresis_fraction",
+        op.hysteresis_fraction,
+        0.0,
+        1.0,
+    );
+    let timings = [
+        ("overcharge", o.dwell_s, o.merge_gap_s),
+        (
+            "regulation_loss",
+            a.regulation_loss.dwell_s,
+            a.regulation_loss.merge_gap_s,
+        ),
+        ("lockout", a.lockout.dwell_s, a.lockout.merge_gap_s),
+        ("input_overvoltage", io.dwell_s, io.merge_gap_s),
+        ("battery_overtemp", t.dwell_s, t.merge_gap_s),
+        (
+            "charge_temp_window",
+            a.charge_temp_window.dwell_s,
+            a.charge_temp_window.merge_gap_s,
+        ),
+        ("operator_overload", op.dwell_s, op.merge_gap_s),
+        (
+            "device_cutoff",
+            a.device_cutoff.dwell_s,
+            a.device_cutoff.merge_gap_s,
+        ),
+    ];
+    for (kind, dwell, gap) in timings {
+        c.range(&format!("alerts.{kind}.dwell_s"), dwell, 0.0, 3600.0);
+        c.range(&format!("alerts.{kind}.merge_gap_s"), gap, 0.0, 3600.0);
+    }
 }
 
 /// Ranges of a USB port and the rules that tie it to the rest of the setup: a switching

@@ -9,7 +9,7 @@ use std::cell::Cell;
 use ode_solvers::continuous_output_model::ContinuousOutputModel;
 use ode_solvers::{Dopri5, OutputType, System};
 
-use crate::analysis::events::{Event, EventKind};
+use crate::analysis::events::Event;
 use crate::analysis::trace::{Mode, Trace, TraceRow};
 use crate::units::rad_s_to_rpm;
 
@@ -263,7 +263,8 @@ pub struct SolverStats {
 #[derive(Debug, Clone)]
 pub struct SimResult {
     pub trace: Trace,
-    pub events: Vec<Event>,
+    /// Every run of a watched condition (`analysis::episodes` makes the rows of them).
+    pub runs: Vec<Event>,
     pub ledger: Ledger,
     pub stats: SolverStats,
     pub final_state: State,
@@ -396,9 +397,10 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let sampler = Sampler::new(opts.trace_interval_s, t_end);
     let evals = Cell::new(0u64);
 
-    cascade(plant, t, &mut y, &mut disc, &mut observer, &mut stats, None)?;
+    cascade(plant, t, &mut y, &mut disc, &mut stats, None)?;
     let p0 = plant.eval(t, &y, &disc);
-    observer.set(t, &codes(plant, &p0, &y, &disc), plant, &p0, &y);
+    let open = observer.current();
+    observer.set(t, &codes(plant, &p0, &y, &disc, &open), plant, &p0, &y);
     let mut h_guess: f64 = 0.0;
     let mut next_event = 0usize;
     let mut rec = Recorder::default();
@@ -482,18 +484,11 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
             disc.resting = resting;
             stats.mode_changes += 1;
         }
-        cascade(
-            plant,
-            t,
-            &mut y,
-            &mut disc,
-            &mut run.observer,
-            &mut stats,
-            end.located,
-        )?;
+        cascade(plant, t, &mut y, &mut disc, &mut stats, end.located)?;
         let p = plant.eval(t, &y, &disc);
+        let open = run.observer.current();
         run.observer
-            .set(t, &codes(plant, &p, &y, &disc), plant, &p, &y);
+            .set(t, &codes(plant, &p, &y, &disc, &open), plant, &p, &y);
     }
     let Walk {
         mut sampler,
@@ -501,7 +496,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         ..
     } = run;
     stats.evaluations = evals.get();
-    let events = observer.finish(t_end);
+    let runs = observer.finish(t_end);
     if sampler.rows.last().is_none_or(|r| r.time_s < t_end) {
         let p = plant.eval(t_end, &y, &disc);
         sampler.rows.push(row(plant, &p, &y, &disc));
@@ -509,7 +504,7 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     let ledger = ledger_of(plant, &y0, &y);
     Ok(SimResult {
         trace: Trace { rows: sampler.rows },
-        events,
+        runs,
         ledger,
         stats,
         final_state: y,
@@ -581,7 +576,7 @@ impl Walk<'_> {
                     watch(plant, disc, observer, a, tq, &yq, &pq, dense);
                     a = tq;
                 }
-                observer.touch(&pq, &yq);
+                observer.touch(plant, &pq, &yq);
                 row(plant, &pq, &yq, disc)
             });
             let (yb, pb) = if b < end.t {
@@ -593,7 +588,7 @@ impl Walk<'_> {
             if b > a {
                 watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
             }
-            self.observer.touch(&pb, &yb);
+            self.observer.touch(plant, &pb, &yb);
         }
         stop
     }
@@ -918,7 +913,7 @@ fn unphysical(y: &State) -> Option<&'static str> {
         .map(|c| c.3)
 }
 
-/// Applies every transition due at (t, y) until none is, recording charge completion; `located`,
+/// Applies every transition due at (t, y) until none is; `located`,
 /// the transition the event search found due at t, goes first (the state handed in may sit a
 /// rounding error on the other side of its threshold). A mode that keeps flipping at one instant
 /// is a modelling error and is reported, not looped over.
@@ -927,7 +922,6 @@ fn cascade(
     t: f64,
     y: &mut State,
     disc: &mut Discrete,
-    observer: &mut Observer,
     stats: &mut SolverStats,
     located: Option<Transition>,
 ) -> Result<(), SimError> {
@@ -941,15 +935,6 @@ fn cascade(
         apply(plant, tr, t, &p, y, disc);
         applied.push(tr);
         stats.mode_changes += 1;
-        if tr == Transition::Terminate {
-            observer.instant(
-                EventKind::ChargeComplete,
-                t,
-                p.net.battery_current_a,
-                "A",
-                "CV current fell below the termination current",
-            );
-        }
     }
     let p = plant.eval(t, y, disc);
     if due(plant, &p, y, disc).is_none() {
@@ -1025,7 +1010,8 @@ fn step_to(
     solver.y_out().last().copied().filter(all_finite)
 }
 
-/// Locates changes of the watched conditions inside (a, b] and applies them.
+/// Locates changes of the watched conditions inside (a, b] and applies them. Each condition's
+/// hysteresis depends on which runs are open, so the end codes are taken afresh after each change.
 #[allow(clippy::too_many_arguments)]
 fn watch(
     plant: &Plant,
@@ -1037,21 +1023,20 @@ fn watch(
     pb: &Point,
     dense: &dyn Fn(f64) -> State,
 ) {
-    let end_codes = codes(plant, pb, yb, disc);
     let mut lo = a;
     for _ in 0..WATCH_LIMIT {
         let now: Codes = observer.current();
-        if now == end_codes {
+        if codes(plant, pb, yb, disc, &now) == now {
             return;
         }
         let tc = bisect(lo, b, |tq| {
             let yq = dense(tq);
             let pq = plant.eval(tq, &yq, disc);
-            codes(plant, &pq, &yq, disc) != now
+            codes(plant, &pq, &yq, disc, &now) != now
         });
         let yc = dense(tc);
         let pc = plant.eval(tc, &yc, disc);
-        observer.set(tc, &codes(plant, &pc, &yc, disc), plant, &pc, &yc);
+        observer.set(tc, &codes(plant, &pc, &yc, disc, &now), plant, &pc, &yc);
         lo = tc;
     }
 }

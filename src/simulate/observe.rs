@@ -1,19 +1,21 @@
 //! Watched conditions (no mode change): each is a small code per point; a change of code closes
-//! one period and may open another. The engine locates each change inside its step.
+//! one run and may open another. The engine locates each change inside its step. Conditions
+//! with a threshold on a continuous quantity open when it is crossed and close only once the
+//! quantity is back by the setup's hysteresis (a Schmitt trigger), so a quantity resting on its
+//! threshold cannot chatter. The runs are raw: `analysis::episodes` turns them into rows.
 
 use crate::analysis::events::{Event, EventKind, OUT_OF_BAND_DETAIL};
 use crate::model::battery::li_ion::TempBand;
+use crate::model::battery::BatteryModel;
 use crate::scenario::setup::Topology;
 
-use super::plant::{Discrete, Plant, Point};
+use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
+use super::transitions::SLEEP_HYSTERESIS_V;
 use super::usb_port::device_cut_off;
 
-/// Voltage margin above the charge limit before an overcharge counts, V (below CSV precision).
-pub const OVERCHARGE_MARGIN_V: f64 = 1e-6;
-
 /// The watched conditions, in a fixed order.
-pub const WATCHED: [EventKind; 8] = [
+pub const WATCHED: [EventKind; 9] = [
     EventKind::RegulationLoss,
     EventKind::Lockout,
     EventKind::Overcharge,
@@ -22,15 +24,23 @@ pub const WATCHED: [EventKind; 8] = [
     EventKind::ChargeTempWindow,
     EventKind::OperatorOverload,
     EventKind::DeviceCutoff,
+    EventKind::ChargeComplete,
 ];
 
 /// Codes of every watched condition at one point (0 = not present).
 pub type Codes = [u8; WATCHED.len()];
 
+/// Regulation-loss causes that have a row kind of their own (the converter locked out or shut
+/// down: `lockout` or `input_overvoltage`; a USB device cut off: `device_cutoff`). Their time
+/// still counts against regulation, but they are not written a second time.
+pub const REGULATION_CAUSES_COUNTED_ONLY: [u8; 2] = [2, 6];
+/// The regulation-loss cause of a USB bus outside its band while the device draws.
+pub const USB_OUT_OF_BAND: u8 = 5;
+
 /// Why regulation is lost while the operator cranks: 0 held (or not cranking, or no converter),
 /// 1 dropout (duty at its limit or the pass element out of headroom), 2 locked out or shut down,
 /// 3 restarting (soft-start ramp), 4 another reason; with a USB port 5 the bus outside its band
-/// while the device draws and 6 the device cut off. Each reason is a period of its own, so
+/// while the device draws and 6 the device cut off. Each reason is a run of its own, so
 /// events.csv says which.
 fn regulation_code(plant: &Plant, conv: bool, p: &Point, d: &Discrete) -> u8 {
     if !conv || !p.cranking || p.in_regulation {
@@ -53,9 +63,33 @@ fn regulation_code(plant: &Plant, conv: bool, p: &Point, d: &Discrete) -> u8 {
     }
 }
 
-/// Evaluates every watched condition at a point.
-pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Codes {
+/// Whether a quantity is past its threshold, with hysteresis: `open` runs stay open until the
+/// quantity is back by `hysteresis` (same unit); `above` says which side is past.
+fn past(value: f64, threshold: f64, hysteresis: f64, above: bool, open: bool) -> bool {
+    let edge = match (above, open) {
+        (true, true) => threshold - hysteresis,
+        (true, false) => threshold,
+        (false, true) => threshold + hysteresis,
+        (false, false) => threshold,
+    };
+    if above {
+        value > edge
+    } else {
+        value < edge
+    }
+}
+
+/// Overcharge threshold of the battery terminal at a point: the charge limit in force plus the
+/// tolerance per series cell, V.
+pub fn overcharge_threshold_v(plant: &Plant, p: &Point) -> f64 {
+    p.charge_limit_v + plant.alerts.overcharge.tolerance_v_per_cell * plant.battery.series_cells()
+}
+
+/// Evaluates every watched condition at a point; `open` holds the codes of the runs open now
+/// (the hysteresis of each condition depends on them).
+pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) -> Codes {
     let conv = plant.has_converter();
+    let a = &plant.alerts;
     let band_code = match p.band {
         TempBand::Standard => 0,
         TempBand::TooCold => 1,
@@ -64,44 +98,169 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Codes {
         TempBand::TooHot => 4,
     };
     let w0 = plant.operator.w_prime_j;
+    let cells = plant.battery.series_cells();
+    let o = &a.overcharge;
     [
         regulation_code(plant, conv, p, d),
         u8::from(conv && p.cranking && !d.enabled),
-        u8::from(p.net.battery_v > p.charge_limit_v + OVERCHARGE_MARGIN_V),
-        u8::from(conv && p.net.input_v > plant.charger.input_overvoltage_v),
-        u8::from(y[BATTERY_TEMP] > plant.alerts.battery_overtemp_c),
+        u8::from(past(
+            p.net.battery_v,
+            overcharge_threshold_v(plant, p),
+            o.hysteresis_v_per_cell * cells,
+            true,
+            open[2] != 0,
+        )),
+        u8::from(
+            conv && past(
+                p.net.input_v,
+                plant.charger.input_overvoltage_v,
+                a.input_overvoltage.hysteresis_v,
+                true,
+                open[3] != 0,
+            ),
+        ),
+        u8::from(past(
+            y[BATTERY_TEMP],
+            a.battery_overtemp.threshold_c,
+            a.battery_overtemp.hysteresis_k,
+            true,
+            open[4] != 0,
+        )),
         if plant.battery_is_lithium() {
             band_code
         } else {
             0
         },
-        u8::from(w0 > 0.0 && y[W_PRIME] < plant.alerts.operator_reserve_fraction * w0),
-        device_cutoff_code(plant, p, d),
+        u8::from(
+            w0 > 0.0
+                && past(
+                    y[W_PRIME],
+                    a.operator_overload.reserve_fraction * w0,
+                    a.operator_overload.hysteresis_fraction * w0,
+                    false,
+                    open[6] != 0,
+                ),
+        ),
+        device_cutoff_code(plant, d),
+        u8::from(d.stage == Stage::Done),
     ]
 }
 
-/// A device cut off while the operator cranks. The code alternates with each cut-off (1, 2, 1 …),
-/// so that a reconnection that fails at once still closes one period and opens the next.
-fn device_cutoff_code(plant: &Plant, p: &Point, d: &Discrete) -> u8 {
-    if plant.usb.is_some() && p.cranking && device_cut_off(d) {
+/// A device cut off the bus, until it reconnects (cranking or not: the row's length is the time
+/// the device stayed off). The code alternates with each cut-off (1, 2, 1 …), so that a
+/// reconnection that fails at once still closes one run and opens the next.
+fn device_cutoff_code(plant: &Plant, d: &Discrete) -> u8 {
+    if plant.usb.is_some() && device_cut_off(d) {
         1 + (d.device_cutoffs % 2) as u8
     } else {
         0
     }
 }
 
-/// The value a period reports as its peak, and its unit.
-fn peak_of(kind: EventKind, p: &Point, y: &State) -> (f64, &'static str, bool) {
-    // (value, unit, larger-is-worse)
+/// What a run measures at one point: the quantity, its unit, its value, the threshold in force
+/// and whether past the threshold means above it.
+#[derive(Debug, Clone, Copy)]
+struct Reading {
+    quantity: &'static str,
+    unit: &'static str,
+    value: f64,
+    threshold: f64,
+    above: bool,
+}
+
+impl Reading {
+    fn of(quantity: &'static str, unit: &'static str, value: f64, threshold: f64) -> Self {
+        Self {
+            quantity,
+            unit,
+            value,
+            threshold,
+            above: true,
+        }
+    }
+
+    fn below(self) -> Self {
+        Self {
+            above: false,
+            ..self
+        }
+    }
+
+    /// How far past the threshold the value lies (positive when past it).
+    fn excess(&self) -> f64 {
+        if self.above {
+            self.value - self.threshold
+        } else {
+            self.threshold - self.value
+        }
+    }
+}
+
+/// Input voltage at which the charger would hold its target at this point, V.
+fn regulation_input_v(plant: &Plant, p: &Point) -> f64 {
+    plant
+        .converters()
+        .regulation_input_v(p.net.battery_v, p.target_current_a.max(0.0))
+}
+
+/// Input voltage the charger needs before it restarts: its UVLO on-threshold, and for a charger
+/// that sleeps below its battery the battery plus the wake-up margin, V.
+fn restart_input_v(plant: &Plant, p: &Point) -> f64 {
+    let c = &plant.charger;
+    if c.sleeps_below_battery {
+        c.uvlo_on_v.max(p.net.battery_v + SLEEP_HYSTERESIS_V)
+    } else {
+        c.uvlo_on_v
+    }
+}
+
+/// The reading a run of `kind` with cause `code` takes at a point.
+fn reading(kind: EventKind, code: u8, plant: &Plant, p: &Point, y: &State) -> Reading {
+    let bus = |threshold| Reading::of("bus_v", "V", p.bus.bus_v, threshold);
+    let input = |threshold| Reading::of("input_v", "V", p.net.input_v, threshold);
+    let temp = |threshold| Reading::of("battery_temp_c", "degC", y[BATTERY_TEMP], threshold);
     match kind {
-        EventKind::RegulationLoss if p.bus.usb => (p.bus.bus_v, "V", false),
-        EventKind::DeviceCutoff => (p.bus.bus_v, "V", false),
-        EventKind::RegulationLoss | EventKind::Lockout => (p.net.input_v, "V", false),
-        EventKind::Overcharge => (p.net.battery_v, "V", true),
-        EventKind::InputOvervoltage => (p.net.input_v, "V", true),
-        EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => (y[BATTERY_TEMP], "degC", true),
-        EventKind::OperatorOverload => (p.operator_power_w, "W", true),
-        EventKind::ChargeComplete => (p.net.battery_current_a, "A", false),
+        EventKind::RegulationLoss => match (&plant.usb, code) {
+            (Some(u), 5) if p.bus.bus_v > u.band_high_v => bus(u.band_high_v),
+            (Some(u), 5) => bus(u.band_low_v).below(),
+            (Some(u), 6) => bus(u.cutoff_v).below(),
+            (_, 2) => input(restart_input_v(plant, p)).below(),
+            _ => input(regulation_input_v(plant, p)).below(),
+        },
+        EventKind::Lockout => input(restart_input_v(plant, p)).below(),
+        EventKind::Overcharge => Reading::of(
+            "battery_v",
+            "V",
+            p.net.battery_v,
+            overcharge_threshold_v(plant, p),
+        ),
+        EventKind::InputOvervoltage => input(plant.charger.input_overvoltage_v),
+        EventKind::BatteryOvertemp => temp(plant.alerts.battery_overtemp.threshold_c),
+        EventKind::ChargeTempWindow => match (&plant.battery, code) {
+            (BatteryModel::LiIon(m), 1) => temp(m.window.min_c).below(),
+            (BatteryModel::LiIon(m), 2) => temp(m.window.cool_c).below(),
+            (BatteryModel::LiIon(m), 3) => temp(m.window.warm_c),
+            (BatteryModel::LiIon(m), _) => temp(m.window.max_c),
+            _ => temp(f64::NAN),
+        },
+        EventKind::OperatorOverload => Reading::of(
+            "w_prime_balance_j",
+            "J",
+            y[W_PRIME],
+            plant.alerts.operator_overload.reserve_fraction * plant.operator.w_prime_j,
+        )
+        .below(),
+        EventKind::DeviceCutoff => match &plant.usb {
+            Some(u) => bus(u.cutoff_v).below(),
+            None => bus(f64::NAN),
+        },
+        EventKind::ChargeComplete => Reading::of(
+            "battery_current_a",
+            "A",
+            p.net.battery_current_a,
+            plant.charger.termination_current_a,
+        )
+        .below(),
     }
 }
 
@@ -131,7 +290,7 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             }
             (EventKind::DeviceCutoff, _) => {
                 return format!(
-                    "bus below the device's {:.2} V cut-off; it reconnects at {:.2} V after {:.1} s",
+                    "bus below the device's {:.2} V cut-off; it reconnects once the bus is back at {:.2} V, at least {:.1} s later",
                     u.cutoff_v, u.reconnect_v, u.reconnect_delay_s
                 );
             }
@@ -158,19 +317,40 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             3 => "converter restarting: soft-start ramp below the set point".to_string(),
             _ => "converter not holding its set point".to_string(),
         },
-        EventKind::Lockout => format!(
-            "input below UVLO (on {:.2} V, off {:.2} V)",
-            plant.charger.uvlo_on_v, plant.charger.uvlo_off_v
+        EventKind::Lockout => {
+            let c = &plant.charger;
+            let wake_v = p.net.battery_v + SLEEP_HYSTERESIS_V;
+            if c.sleeps_below_battery && wake_v > c.uvlo_on_v && p.idle_input_v < wake_v {
+                format!(
+                    "input below the battery: the charger sleeps until it is {SLEEP_HYSTERESIS_V:.2} V above it (UVLO on {:.2} V, off {:.2} V)",
+                    c.uvlo_on_v, c.uvlo_off_v
+                )
+            } else {
+                format!(
+                    "input below UVLO (on {:.2} V, off {:.2} V)",
+                    c.uvlo_on_v, c.uvlo_off_v
+                )
+            }
+        }
+        EventKind::Overcharge => format!(
+            "battery above its charge limit {:.3} V plus the {:.3} V/cell tolerance",
+            p.charge_limit_v, plant.alerts.overcharge.tolerance_v_per_cell
         ),
-        EventKind::Overcharge => {
-            format!("battery above its charge limit {:.3} V", p.charge_limit_v)
-        }
         EventKind::InputOvervoltage => {
-            format!("input above {:.1} V", plant.charger.input_overvoltage_v)
+            let action = if plant.charger.overvoltage_shutdown {
+                "converter shut down"
+            } else {
+                "converter keeps running"
+            };
+            format!(
+                "input above {:.1} V ({action})",
+                plant.charger.input_overvoltage_v
+            )
         }
-        EventKind::BatteryOvertemp => {
-            format!("battery above {:.1} degC", plant.alerts.battery_overtemp_c)
-        }
+        EventKind::BatteryOvertemp => format!(
+            "battery above {:.1} degC",
+            plant.alerts.battery_overtemp.threshold_c
+        ),
         EventKind::ChargeTempWindow => match code {
             1 => "below the charge window: charging refused".to_string(),
             2 => "cool band: charge current reduced".to_string(),
@@ -179,28 +359,30 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
         },
         EventKind::OperatorOverload => format!(
             "operator reserve W' below {:.0} % (sustainable power only)",
-            100.0 * plant.alerts.operator_reserve_fraction
+            100.0 * plant.alerts.operator_overload.reserve_fraction
         ),
-        EventKind::ChargeComplete => "charge terminated".to_string(),
+        EventKind::ChargeComplete => {
+            "CV current fell below the termination current: charge terminated".to_string()
+        }
         EventKind::DeviceCutoff => "device cut off".to_string(),
     }
 }
 
-/// An open period being tracked.
+/// An open run being tracked.
 #[derive(Debug, Clone)]
 struct Open {
     code: u8,
     start_s: f64,
-    peak: f64,
-    unit: &'static str,
+    /// The reading where the quantity lay furthest past its threshold so far.
+    worst: Reading,
     detail: String,
 }
 
-/// Tracks all watched conditions through a session and produces the event rows.
+/// Tracks all watched conditions through a session and produces their runs.
 #[derive(Debug, Clone, Default)]
 pub struct Observer {
     open: Vec<Option<Open>>,
-    pub events: Vec<Event>,
+    pub runs: Vec<Event>,
 }
 
 impl Observer {
@@ -208,17 +390,18 @@ impl Observer {
     pub fn new() -> Self {
         Self {
             open: vec![None; WATCHED.len()],
-            events: Vec::new(),
+            runs: Vec::new(),
         }
     }
 
-    /// Updates peaks of open periods with a point inside them.
-    pub fn touch(&mut self, p: &Point, y: &State) {
+    /// Updates the worst readings of open runs with a point inside them.
+    pub fn touch(&mut self, plant: &Plant, p: &Point, y: &State) {
         for (k, slot) in self.open.iter_mut().enumerate() {
             if let Some(o) = slot {
-                let (v, _, larger) = peak_of(WATCHED[k], p, y);
-                if (larger && v > o.peak) || (!larger && v < o.peak) {
-                    o.peak = v;
+                let r = reading(WATCHED[k], o.code, plant, p, y);
+                // A finite reading also replaces a NaN one.
+                if r.excess() > o.worst.excess() || o.worst.excess().is_nan() {
+                    o.worst = r;
                 }
             }
         }
@@ -235,19 +418,17 @@ impl Observer {
                 self.close(k, o, t);
             }
             if code != 0 {
-                let (v, unit, _) = peak_of(WATCHED[k], p, y);
                 self.open[k] = Some(Open {
                     code,
                     start_s: t,
-                    peak: v,
-                    unit,
+                    worst: reading(WATCHED[k], code, plant, p, y),
                     detail: detail_of(WATCHED[k], code, p, plant),
                 });
             }
         }
     }
 
-    /// Current codes of the open periods.
+    /// Current codes of the open runs.
     pub fn current(&self) -> Codes {
         let mut c = [0u8; WATCHED.len()];
         for (k, o) in self.open.iter().enumerate() {
@@ -257,39 +438,31 @@ impl Observer {
     }
 
     fn close(&mut self, k: usize, o: Open, t: f64) {
-        self.events.push(Event {
+        self.runs.push(Event {
             kind: WATCHED[k],
             start_s: o.start_s,
             end_s: t,
             duration_s: t - o.start_s,
-            peak: o.peak,
-            unit: o.unit.to_string(),
+            quantity: o.worst.quantity,
+            unit: o.worst.unit,
+            threshold: o.worst.threshold,
+            worst: o.worst.value,
+            affects_verdict: false,
             detail: o.detail,
+            cause: o.code,
+            above: o.worst.above,
         });
     }
 
-    /// Closes every open period at the session end and returns the events sorted by start time.
+    /// Closes every open run at the session end and returns the runs sorted by start time.
     pub fn finish(mut self, t_end: f64) -> Vec<Event> {
         for k in 0..self.open.len() {
             if let Some(o) = self.open[k].take() {
                 self.close(k, o, t_end);
             }
         }
-        let mut ev = self.events;
+        let mut ev = self.runs;
         ev.sort_by(|a, b| a.start_s.total_cmp(&b.start_s).then(a.kind.cmp(&b.kind)));
         ev
-    }
-
-    /// Records an instant (e.g. charge complete).
-    pub fn instant(&mut self, kind: EventKind, t: f64, peak: f64, unit: &str, detail: &str) {
-        self.events.push(Event {
-            kind,
-            start_s: t,
-            end_s: t,
-            duration_s: 0.0,
-            peak,
-            unit: unit.to_string(),
-            detail: detail.to_string(),
-        });
     }
 }

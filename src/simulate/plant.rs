@@ -350,6 +350,16 @@ impl Plant {
         self.charger.topology != Topology::Direct
     }
 
+    /// The converter models of the design, the topology selecting one.
+    pub fn converters(&self) -> network::Converters<'_> {
+        network::Converters {
+            topology: self.charger.topology,
+            buck: &self.buck,
+            buck_boost: &self.buck_boost,
+            linear: &self.linear,
+        }
+    }
+
     /// Planned target cadence (segments × scale + offset), rpm, and its slope, rpm/s; no wander.
     pub fn planned_rpm(&self, t: f64) -> (f64, f64) {
         let seg = self
@@ -584,12 +594,7 @@ impl Plant {
                 ramp,
                 hold,
             } => {
-                let conv = network::Converters {
-                    topology: self.charger.topology,
-                    buck: &self.buck,
-                    buck_boost: &self.buck_boost,
-                    linear: &self.linear,
-                };
+                let conv = self.converters();
                 if hold {
                     return (conv.charging(0.0), 0.0, false);
                 }

@@ -7,7 +7,7 @@ use crate::model::battery::Terminal;
 use crate::model::circuit::{self, FastRates, FastStates};
 use crate::model::controller::{self, ControlInput, ControllerGains};
 use crate::model::converter::BuckModel;
-use crate::model::network::{Converters, NetworkPoint, Source};
+use crate::model::network::{NetworkPoint, Source};
 use crate::model::usb::{BusPoint, UsbModel};
 use crate::model::usb_network;
 use crate::scenario::setup::{Setup, Topology, UsbPort};
@@ -147,15 +147,6 @@ impl Plant {
                 let d_ff = ((v_o + b.catch_drop_v) / den).clamp(0.0, b.max_duty);
                 b.reported_duty(v_in, v_o, current_a, d_ff).0 - d_ff
             }
-        }
-    }
-
-    fn converters(&self) -> Converters<'_> {
-        Converters {
-            topology: self.charger.topology,
-            buck: &self.buck,
-            buck_boost: &self.buck_boost,
-            linear: &self.linear,
         }
     }
 

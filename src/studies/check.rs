@@ -88,6 +88,19 @@ pub struct Report {
     pub cautions: Vec<String>,
 }
 
+impl Report {
+    /// Crank cadence from which the design holds regulation at its start state, rpm: for a USB
+    /// port the cadence that holds the band's lower edge, for a battery charger the cadence that
+    /// holds its start target; None for a direct design or when it is never reached.
+    pub fn regulation_cadence_rpm(&self) -> Option<f64> {
+        match (&self.usb, &self.converter) {
+            (Some(u), _) => u.band_cadence_rpm,
+            (None, Some(c)) => c.regulation_cadence_at_start_rpm,
+            (None, None) => None,
+        }
+    }
+}
+
 /// Drive figures.
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct DriveFigures {
@@ -229,12 +242,7 @@ impl Statics<'_> {
 
     /// The design's converter models.
     pub fn converters(&self) -> network::Converters<'_> {
-        network::Converters {
-            topology: self.plant.charger.topology,
-            buck: &self.plant.buck,
-            buck_boost: &self.plant.buck_boost,
-            linear: &self.plant.linear,
-        }
+        self.plant.converters()
     }
 
     fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {

@@ -203,7 +203,7 @@ pub fn summary_table(runs: &[&Summary]) -> Vec<String> {
         "crank>battery [%]",
         "max battery [V]",
         "limit [V]",
-        "alerts",
+        "alerts+episodes",
         "verdict",
     ];
     let right = [
@@ -218,13 +218,13 @@ pub fn summary_table(runs: &[&Summary]) -> Vec<String> {
                 format!("{:.3}>{:.3}", m.soc_start, m.soc_end),
                 format!("{:.4}", m.charge_delivered_ah),
                 format!("{:.3}", m.energy_to_battery_wh),
-                format!("{:.1}", 100.0 * m.in_regulation_fraction),
+                crate::analysis::summary::percent_or_na(m.in_regulation_fraction),
                 format!("{:.1}", m.mean_operator_power_w),
                 format!("{:.1}", m.peak_operator_power_w),
                 format!("{:.1}", 100.0 * m.efficiency_crank_to_battery),
                 format!("{:.3}", m.max_battery_v),
                 format!("{:.3}", m.charge_limit_v),
-                m.alerts.len().to_string(),
+                format!("{}+{}", m.alerts.len(), m.episodes.len()),
                 m.verdict.words().join("+"),
             ]
         })

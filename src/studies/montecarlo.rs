@@ -21,8 +21,9 @@ use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 use serde::Serialize;
 
+use crate::analysis::events::EventKind;
 use crate::analysis::stats;
-use crate::analysis::summary::{fmt, Summary, SCALAR_KEYS};
+use crate::analysis::summary::{fmt, Summary, MARGINAL, SCALAR_KEYS};
 use crate::cli::{say, Failure, EXIT_OK};
 use crate::output::csv::table_csv;
 use crate::output::json::to_json;
@@ -170,17 +171,22 @@ pub struct Report {
     pub duration_s: f64,
     pub fidelity: String,
     pub charge_delivered_ah: Spread,
-    pub in_regulation_fraction: Spread,
+    /// `null` for a direct design (nothing regulates).
+    pub in_regulation_fraction: Option<Spread>,
     pub operator_work_j: Spread,
     pub mean_operator_power_w: Spread,
     pub max_battery_v: Spread,
-    /// Fraction of completed runs whose verdict includes `overcharge`.
+    /// Fraction of completed runs with at least one overcharge row.
     pub overcharge_probability: f64,
     /// Wilson 95 % interval of that fraction.
     pub overcharge_probability_95: (f64, f64),
-    /// Fraction of completed runs whose verdict includes `fails_regulation`.
-    pub regulation_failure_probability: f64,
-    pub regulation_failure_probability_95: (f64, f64),
+    /// Fraction of completed runs in regulation less than `alerts.min_in_regulation_fraction`
+    /// of their cranking time (`null` for a direct design), and its Wilson 95 % interval.
+    pub regulation_failure_probability: Option<f64>,
+    pub regulation_failure_probability_95: Option<(f64, f64)>,
+    /// Fraction of completed runs whose verdict is `marginal` (a figure too close to its
+    /// threshold for one operator to decide; the spread above decides it).
+    pub marginal_probability: f64,
     /// Fraction of completed runs with verdict `ok`.
     pub ok_probability: f64,
     /// Spreads used for the operator draws (standard deviations).
@@ -268,16 +274,20 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
 
     let metric = |f: fn(&Summary) -> f64| -> Vec<f64> { done.iter().map(|m| f(m)).collect() };
     let charge = metric(|m| m.charge_delivered_ah);
-    let reg = metric(|m| m.in_regulation_fraction);
+    let reg: Vec<f64> = done
+        .iter()
+        .filter_map(|m| m.in_regulation_fraction)
+        .collect();
     let work = metric(|m| m.operator_work_j);
-    let has = |flag: &str| {
-        done.iter()
-            .filter(|m| m.verdict.words().iter().any(|w| w == flag))
-            .count()
-    };
     let n = done.len();
-    let over = has("overcharge");
-    let fails = has("fails_regulation");
+    let over = done
+        .iter()
+        .filter(|m| m.alerts.iter().any(|e| e.kind == EventKind::Overcharge))
+        .count();
+    let min_reg = sc.setup.alerts.min_in_regulation_fraction;
+    let fails = reg.iter().filter(|&&f| f < min_reg).count();
+    let regulated = !reg.is_empty();
+    let marginal = done.iter().filter(|m| m.verdict.has(MARGINAL)).count();
     let ok = done.iter().filter(|m| !m.verdict.flagged()).count();
     let ci = |k| stats::wilson_interval(k, n, 1.96).unwrap_or((0.0, 1.0));
     let spread = &sc.profile.operator.spread;
@@ -291,14 +301,15 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         duration_s: done[0].duration_s,
         fidelity: done[0].fidelity.clone(),
         charge_delivered_ah: Spread::of(&charge),
-        in_regulation_fraction: Spread::of(&reg),
+        in_regulation_fraction: regulated.then(|| Spread::of(&reg)),
         operator_work_j: Spread::of(&work),
         mean_operator_power_w: Spread::of(&metric(|m| m.mean_operator_power_w)),
         max_battery_v: Spread::of(&metric(|m| m.max_battery_v)),
         overcharge_probability: over as f64 / n as f64,
         overcharge_probability_95: ci(over),
-        regulation_failure_probability: fails as f64 / n as f64,
-        regulation_failure_probability_95: ci(fails),
+        regulation_failure_probability: regulated.then_some(fails as f64 / n as f64),
+        regulation_failure_probability_95: regulated.then(|| ci(fails)),
+        marginal_probability: marginal as f64 / n as f64,
         ok_probability: ok as f64 / n as f64,
         spread_critical_power_w: spread.critical_power_w,
         spread_w_prime_j: spread.w_prime_j,
@@ -314,12 +325,13 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         .write("montecarlo.json", &json)
         .map_err(|e| other(&e))?;
     if !a.no_plot {
+        let mut panels: Vec<(&str, &str, &[f64])> = vec![("charge delivered", "Ah", &charge)];
+        if regulated {
+            panels.push(("in-regulation fraction", "1", &reg));
+        }
+        panels.push(("operator work", "J", &work));
         let chart = plot::histogram_chart(
-            &[
-                ("charge delivered", "Ah", &charge),
-                ("in-regulation fraction", "1", &reg),
-                ("operator work", "J", &work),
-            ],
+            &panels,
             &format!("{} operators: {} / {}", n, report.setup, report.profile),
         )
         .map_err(|e| other(&e))?;
@@ -340,27 +352,39 @@ fn print_report(r: &Report, dir: &std::path::Path) {
         "montecarlo: {} / {}, {} of {} runs done, base seed {}, {:.0} s sessions",
         r.setup, r.profile, r.runs, r.runs_requested, r.base_seed, r.duration_s
     ));
-    let rows = vec![
-        row("charge delivered [Ah]", &r.charge_delivered_ah, 4),
-        row("in-regulation fraction", &r.in_regulation_fraction, 3),
+    let mut rows = vec![row("charge delivered [Ah]", &r.charge_delivered_ah, 4)];
+    if let Some(reg) = &r.in_regulation_fraction {
+        rows.push(row("in-regulation fraction", reg, 3));
+    }
+    rows.extend([
         row("operator work [J]", &r.operator_work_j, 0),
         row("mean operator power [W]", &r.mean_operator_power_w, 1),
         row("max battery [V]", &r.max_battery_v, 3),
-    ];
+    ]);
     let header = ["figure", "p5", "p50", "p95", "min", "max"];
     for line in
         super::compare::aligned_table(&header, &rows, &[false, true, true, true, true, true])
     {
         say(&format!("  {line}"));
     }
+    let regulation = match (
+        r.regulation_failure_probability,
+        r.regulation_failure_probability_95,
+    ) {
+        (Some(p), Some((lo, hi))) => format!(
+            "fails regulation in {:.1} % ({:.1} … {:.1} %)",
+            100.0 * p,
+            100.0 * lo,
+            100.0 * hi
+        ),
+        _ => "regulation n/a (direct)".to_string(),
+    };
     say(&format!(
-        "  overcharge in {:.1} % of runs (95 % interval {:.1} … {:.1} %); fails regulation in {:.1} % ({:.1} … {:.1} %)",
+        "  overcharge in {:.1} % of runs (95 % interval {:.1} … {:.1} %); {regulation}; marginal in {:.1} %",
         100.0 * r.overcharge_probability,
         100.0 * r.overcharge_probability_95.0,
         100.0 * r.overcharge_probability_95.1,
-        100.0 * r.regulation_failure_probability,
-        100.0 * r.regulation_failure_probability_95.0,
-        100.0 * r.regulation_failure_probability_95.1,
+        100.0 * r.marginal_probability,
     ));
     if !r.failures.is_empty() {
         let mut err = std::io::stderr().lock();

@@ -5,6 +5,8 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::Args;
 
+use crate::analysis::events::{Event, EventKind};
+use crate::analysis::summary::{Summary, MARGINAL};
 use crate::cli::{parse_duration, say, Failure, EXIT_FLAGGED, EXIT_OK};
 use crate::output::{csv, json, rundir::Staging};
 use crate::scenario::load::{InputKind, Override};
@@ -119,11 +121,12 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
 /// Writes the contract files of one run into the staging folder.
 pub fn write_run(staging: &Staging, s: &Session, plots: bool) -> anyhow::Result<()> {
     staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
-    staging.write("events.csv", &csv::events_csv(&s.result.events)?)?;
+    let events = s.summary.events();
+    staging.write("events.csv", &csv::events_csv(&events)?)?;
     staging.write("summary.json", &json::to_json(&s.summary)?)?;
     if plots {
         let title = format!("{} / {}", s.summary.setup, s.summary.profile);
-        let chart = crate::output::plot::session_chart(&s.result.trace, &s.result.events, &title)?;
+        let chart = crate::output::plot::session_chart(&s.result.trace, &events, &title)?;
         staging.write("session.png", &chart.png)?;
         staging.write("session.svg", chart.svg.as_bytes())?;
     }
@@ -148,36 +151,99 @@ fn report(s: &Session, dir: &std::path::Path) {
         m.peak_operator_power_w,
         100.0 * m.efficiency_crank_to_battery
     ));
-    let regulation = if m.topology == "direct" {
-        "no converter (direct)".to_string()
-    } else {
-        format!(
-            "in regulation {:.1} % of cranking time ({:.1} s lost)",
-            100.0 * m.in_regulation_fraction,
-            m.regulation_loss_s
-        )
+    let regulation = match (m.in_regulation_fraction, m.regulation_loss_s) {
+        (Some(f), Some(lost)) => format!(
+            "in regulation {:.1} % of cranking time ({lost:.1} s lost)",
+            100.0 * f
+        ),
+        _ => "regulation n/a (direct: no converter)".to_string(),
     };
     say(&format!(
-        "  {regulation}; max battery {:.3} V vs limit {:.3} V",
-        m.max_battery_v, m.charge_limit_v
+        "  {regulation}; max battery {:.3} V vs limit {:.3} V (margin {:+.3} V)",
+        m.max_battery_v, m.charge_limit_v, m.overcharge_margin_v
     ));
-    if let Some(u) = &m.usb {
+    if let (Some(low), Some(need)) = (m.lowest_sustained_cadence_rpm, m.regulation_cadence_rpm) {
         say(&format!(
-            "  USB bus {:.2} V: lowest {:.3} V while the device drew, {:.1} s outside {:.2}–{:.2} V, {} device cut-off(s); {:.2} Wh to the device",
+            "  cadence: lowest sustained {low:.1} rpm vs {need:.1} rpm that regulation needs (margin {:+.1} rpm)",
+            low - need
+        ));
+    }
+    if let Some(u) = &m.usb {
+        let observed = match u.observed_reconnect_delay_s {
+            Some((lo, hi)) if (hi - lo).abs() < 0.05 => format!(", reconnected after {lo:.1} s"),
+            Some((lo, hi)) => format!(", reconnected after {lo:.1}–{hi:.1} s"),
+            None => String::new(),
+        };
+        say(&format!(
+            "  USB bus {:.2} V: lowest {:.3} V while cranking with the device drawing, {:.1} s outside {:.2}–{:.2} V; {} device cut-off(s) (reconnect delay {:.1} s{observed}); {:.2} Wh to the device",
             u.bus_setpoint_v,
             u.min_bus_v,
             u.out_of_band_s,
             u.band_low_v,
             u.band_high_v,
             u.device_cutoffs,
+            u.reconnect_delay_s,
             u.energy_to_bus_wh
         ));
     }
     say(&format!(
-        "  energy ledger closes to {:.2e}; {} alerts; verdict: {}",
-        m.energy_balance_error,
-        m.alerts.len(),
-        m.verdict.words().join(", ")
+        "  energy ledger closes to {:.2e}",
+        m.energy_balance_error
     ));
+    say(&format!("  {}", rows_digest(m)));
+    say(&format!("  thresholds: {}", thresholds_digest(m)));
+    say(&format!("  verdict: {}", m.verdict.words().join(", ")));
+    for r in &m.verdict_reasons {
+        say(&format!("    - {r}"));
+    }
+    if m.verdict.has(MARGINAL) {
+        say("    a single operator cannot decide a marginal figure: run `crankcharge montecarlo` on this setup for the spread over operators");
+    }
     say(&format!("  wrote {}", dir.display()));
+}
+
+/// One line naming the rows by kind: verdict-affecting alerts first, then informational episodes
+/// with their total time.
+pub fn rows_digest(m: &Summary) -> String {
+    let mut parts = Vec::new();
+    for (rows, verdict) in [(&m.alerts, true), (&m.episodes, false)] {
+        for kind in EventKind::ALL {
+            let of: Vec<&Event> = rows.iter().filter(|e| e.kind == kind).collect();
+            if of.is_empty() {
+                continue;
+            }
+            let total: f64 = of.iter().map(|e| e.duration_s).sum();
+            let name = kind.as_str().replace('_', "-");
+            parts.push(if verdict {
+                format!("{} {name} episode(s), {total:.1} s (verdict)", of.len())
+            } else {
+                format!("{} {name} episode(s), {total:.1} s", of.len())
+            });
+        }
+    }
+    if parts.is_empty() {
+        "no alerts or episodes".to_string()
+    } else {
+        parts.join("; ")
+    }
+}
+
+/// The thresholds the verdict used, in one line.
+pub fn thresholds_digest(m: &Summary) -> String {
+    let a = &m.alert_rules;
+    let mut s = format!(
+        "overcharge above {:.3} V (limit + {:.3} V/cell) for {} s",
+        m.overcharge_threshold_v, a.overcharge.tolerance_v_per_cell, a.overcharge.dwell_s
+    );
+    if m.in_regulation_fraction.is_some() {
+        s.push_str(&format!(
+            "; regulation at least {:.0} % of cranking time",
+            100.0 * a.min_in_regulation_fraction
+        ));
+    }
+    s.push_str(&format!(
+        "; marginal within {:.3} V / {:.3}",
+        a.overcharge_decision_band_v, a.regulation_decision_band
+    ));
+    s
 }

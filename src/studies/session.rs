@@ -3,13 +3,19 @@
 
 use std::time::Instant;
 
-use crate::analysis::events::{EventKind, OUT_OF_BAND_DETAIL};
-use crate::analysis::summary::{self, Summary, UsbSummary, Verdict};
+use crate::analysis::episodes::{self, Timing};
+use crate::analysis::events::{Event, EventKind};
+use crate::analysis::summary::{self, Summary, UsbSummary, Verdict, MARGINAL};
+use crate::analysis::trace::Trace;
 use crate::model::jitter::JitterTrack;
+use crate::scenario::alerts::Alerts;
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
+use crate::simulate::observe::{REGULATION_CAUSES_COUNTED_ONLY, USB_OUT_OF_BAND};
 use crate::simulate::plant::Plant;
 use crate::simulate::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};
+
+use super::check;
 
 /// How to run a session beyond what the files say.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -178,6 +184,139 @@ pub fn cranking_seconds(plant: &Plant, duration_s: f64) -> f64 {
         .max(0.0)
 }
 
+/// The rows of `events.csv` from a session's runs: the regulation-loss causes that have a row
+/// kind of their own are left out, then each kind's dwell and merge gap apply.
+pub fn rows_of(runs: &[Event], alerts: &Alerts) -> Vec<Event> {
+    let listed: Vec<Event> = runs
+        .iter()
+        .filter(|e| {
+            !(e.kind == EventKind::RegulationLoss
+                && REGULATION_CAUSES_COUNTED_ONLY.contains(&e.cause))
+        })
+        .cloned()
+        .collect();
+    episodes::rows(&listed, |k| timing(alerts, k))
+}
+
+/// Dwell and merge gap of one kind from the setup's `alerts` section.
+pub fn timing(a: &Alerts, kind: EventKind) -> Timing {
+    let (dwell_s, merge_gap_s) = match kind {
+        EventKind::Overcharge => (a.overcharge.dwell_s, a.overcharge.merge_gap_s),
+        EventKind::RegulationLoss => (a.regulation_loss.dwell_s, a.regulation_loss.merge_gap_s),
+        EventKind::Lockout => (a.lockout.dwell_s, a.lockout.merge_gap_s),
+        EventKind::InputOvervoltage => {
+            (a.input_overvoltage.dwell_s, a.input_overvoltage.merge_gap_s)
+        }
+        EventKind::BatteryOvertemp => (a.battery_overtemp.dwell_s, a.battery_overtemp.merge_gap_s),
+        EventKind::ChargeTempWindow => (
+            a.charge_temp_window.dwell_s,
+            a.charge_temp_window.merge_gap_s,
+        ),
+        EventKind::OperatorOverload => {
+            (a.operator_overload.dwell_s, a.operator_overload.merge_gap_s)
+        }
+        EventKind::DeviceCutoff => (a.device_cutoff.dwell_s, a.device_cutoff.merge_gap_s),
+        // A period from the termination to the session end: every one is a row.
+        EventKind::ChargeComplete => (0.0, 0.0),
+    };
+    Timing {
+        dwell_s,
+        merge_gap_s,
+    }
+}
+
+/// The verdict and the reasons for each flag. Overcharge: any overcharge row; regulation: the
+/// in-regulation fraction below its minimum. A figure closer to its threshold than the decision
+/// band (the agreement stated between the fidelities) is `marginal` instead: the model cannot
+/// decide it, a population of operators (`montecarlo`) can.
+fn verdict_of(
+    alerts: &Alerts,
+    rows: &[Event],
+    peak_v: f64,
+    threshold_at_peak_v: f64,
+    in_regulation: Option<f64>,
+) -> (Verdict, Vec<String>, bool) {
+    let mut flags = Vec::new();
+    let mut reasons = Vec::new();
+    let band_v = alerts.overcharge_decision_band_v;
+    let over: Vec<&Event> = rows
+        .iter()
+        .filter(|e| e.kind == EventKind::Overcharge)
+        .collect();
+    let deepest = over
+        .iter()
+        .map(|e| e.worst - e.threshold)
+        .fold(f64::NEG_INFINITY, f64::max);
+    if !over.is_empty() && deepest >= band_v {
+        flags.push("overcharge");
+        reasons.push(format!(
+            "overcharge: {} episode(s), up to {:.3} V past the threshold",
+            over.len(),
+            deepest
+        ));
+    } else if (threshold_at_peak_v - peak_v).abs() < band_v || !over.is_empty() {
+        flags.push(MARGINAL);
+        reasons.push(format!(
+            "max_battery_v {peak_v:.3} V lies within {band_v:.3} V of the overcharge threshold {threshold_at_peak_v:.3} V"
+        ));
+    }
+    let mut regulation_counts = false;
+    if let Some(f) = in_regulation {
+        let min = alerts.min_in_regulation_fraction;
+        let band = alerts.regulation_decision_band;
+        if (f - min).abs() < band {
+            flags.push(MARGINAL);
+            regulation_counts = true;
+            reasons.push(format!(
+                "in_regulation_fraction {f:.3} lies within {band:.3} of the {min:.3} threshold"
+            ));
+        } else if f < min {
+            flags.push("fails_regulation");
+            regulation_counts = true;
+            reasons.push(format!(
+                "fails_regulation: in regulation {:.1} % of cranking time, below {:.1} %",
+                100.0 * f,
+                100.0 * min
+            ));
+        }
+    }
+    flags.dedup();
+    (Verdict::from_flags(flags), reasons, regulation_counts)
+}
+
+/// Lowest mean crank cadence over any [`summary::SUSTAINED_WINDOW_S`] of uninterrupted cranking
+/// past the spin-up (trace grid), rpm; None if no such stretch is that long.
+fn lowest_sustained_cadence_rpm(plant: &Plant, trace: &Trace) -> Option<f64> {
+    let rows = &trace.rows;
+    let dt = match rows.get(1) {
+        Some(r) => r.time_s - rows[0].time_s,
+        None => return None,
+    };
+    let n = ((summary::SUSTAINED_WINDOW_S / dt).round() as usize).max(1);
+    let mut lowest = f64::INFINITY;
+    let mut run: Vec<f64> = Vec::new();
+    let mut flush = |run: &mut Vec<f64>| {
+        if run.len() >= n {
+            let mut sum: f64 = run[..n].iter().sum();
+            lowest = lowest.min(sum / n as f64);
+            for k in n..run.len() {
+                sum += run[k] - run[k - n];
+                lowest = lowest.min(sum / n as f64);
+            }
+        }
+        run.clear();
+    };
+    for r in rows {
+        if r.target_rpm > 0.0 && plant.spin_up(r.time_s) >= 1.0 {
+            run.push(r.crank_rpm);
+        } else {
+            flush(&mut run);
+        }
+    }
+    flush(&mut run);
+    lowest.is_finite().then_some(lowest)
+}
+
 fn summarise(
     sc: &Scenario,
     plant: &Plant,
@@ -188,37 +327,61 @@ fn summarise(
 ) -> Summary {
     let trace = &r.trace;
     let led = &r.ledger;
+    let alerts = &sc.setup.alerts;
     let duration = r.duration_s;
     let cranking = cranking_seconds(plant, duration);
-    let regulation_loss = summary::total_duration(&r.events, EventKind::RegulationLoss);
-    let in_regulation = if cranking > 0.0 {
-        (1.0 - regulation_loss / cranking).clamp(0.0, 1.0)
-    } else {
-        1.0
-    };
+    let regulated = plant.has_converter();
+    let regulation_loss = episodes::run_time(&r.runs, EventKind::RegulationLoss);
+    let in_regulation = regulated.then(|| {
+        if cranking > 0.0 {
+            (1.0 - regulation_loss / cranking).clamp(0.0, 1.0)
+        } else {
+            1.0
+        }
+    });
     let charging_time = trace.integrate(|row| f64::from(u8::from(row.battery_current_a > 1e-6)));
-    let (peak_v, limit_at_peak) = summary::battery_peak(trace);
-    let max_event_v = r
-        .events
+    let (trace_peak_v, limit_at_peak) = summary::battery_peak(trace);
+    // The runs' worst readings see peaks between grid samples.
+    let (peak_v, limit_at_peak) = r
+        .runs
         .iter()
-        .filter(|e| e.kind == EventKind::Overcharge)
-        .map(|e| e.peak)
-        .fold(f64::NEG_INFINITY, f64::max);
-    let overcharge_s = summary::total_duration(&r.events, EventKind::Overcharge);
-    let mut flags = Vec::new();
-    if r.events.iter().any(|e| e.kind == EventKind::Overcharge) {
-        flags.push("overcharge");
+        .filter(|e| e.kind == EventKind::Overcharge && e.worst > trace_peak_v)
+        .fold((trace_peak_v, limit_at_peak), |acc, e| {
+            if e.worst > acc.0 {
+                (e.worst, e.threshold - overcharge_tolerance_v(plant))
+            } else {
+                acc
+            }
+        });
+    let threshold_at_peak = limit_at_peak + overcharge_tolerance_v(plant);
+    let mut rows = rows_of(&r.runs, alerts);
+    let (verdict, verdict_reasons, regulation_counts) = verdict_of(
+        alerts,
+        &rows,
+        peak_v,
+        threshold_at_peak,
+        in_regulation.filter(|_| cranking > 0.0),
+    );
+    for e in &mut rows {
+        e.affects_verdict = match e.kind {
+            EventKind::Overcharge => true,
+            EventKind::RegulationLoss | EventKind::Lockout => regulation_counts,
+            _ => false,
+        };
     }
-    if plant.has_converter()
-        && cranking > 0.0
-        && in_regulation < sc.setup.alerts.min_in_regulation_fraction
-    {
-        flags.push("fails_regulation");
-    }
+    let overcharge_s = episodes::run_time(&r.runs, EventKind::Overcharge);
+    let (alert_rows, episode_rows): (Vec<Event>, Vec<Event>) =
+        rows.into_iter().partition(|e| e.affects_verdict);
     let fold_max = |f: fn(&crate::analysis::trace::TraceRow) -> f64| {
         trace.rows.iter().map(f).fold(f64::NEG_INFINITY, f64::max)
     };
     let soc_end = r.final_state[crate::simulate::state::SOC];
+    let lowest_cadence = lowest_sustained_cadence_rpm(plant, trace);
+    let regulation_cadence = if regulated {
+        check::analyse(sc, plant).regulation_cadence_rpm()
+    } else {
+        None
+    };
     Summary {
         setup: sc.setup.name.clone(),
         profile: sc.profile.name.clone(),
@@ -237,19 +400,25 @@ fn summarise(
         },
         peak_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
         in_regulation_fraction: in_regulation,
-        regulation_loss_s: regulation_loss,
+        regulation_loss_s: regulated.then_some(regulation_loss),
         overcharge_s,
-        max_battery_v: peak_v.max(max_event_v),
+        max_battery_v: peak_v,
         charge_limit_v: limit_at_peak,
         energy_balance_error: led.closure_error(),
-        alerts: r
-            .events
-            .iter()
-            .filter(|e| e.kind.is_alert())
-            .cloned()
-            .collect(),
-        verdict: Verdict::from_flags(flags),
+        alerts: alert_rows,
+        verdict,
         wall_time_s: wall_s,
+        overcharge_margin_v: limit_at_peak - peak_v,
+        cadence_margin_rpm: match (lowest_cadence, regulation_cadence) {
+            (Some(low), Some(need)) => Some(low - need),
+            _ => None,
+        },
+        verdict_reasons,
+        episodes: episode_rows,
+        alert_rules: alerts.clone(),
+        overcharge_threshold_v: threshold_at_peak,
+        lowest_sustained_cadence_rpm: lowest_cadence,
+        regulation_cadence_rpm: regulation_cadence,
         trace_interval_s: trace_interval_s(sc.setup.solver.trace_interval_s, duration),
         topology: sc.setup.converter.topology.as_str().to_string(),
         chemistry: sc.setup.battery.chemistry.as_str().to_string(),
@@ -260,7 +429,7 @@ fn summarise(
         } else {
             0.0
         },
-        lockout_s: summary::total_duration(&r.events, EventKind::Lockout),
+        lockout_s: episodes::run_time(&r.runs, EventKind::Lockout),
         max_input_v: fold_max(|r| r.input_v),
         max_battery_temp_c: fold_max(|r| r.battery_temp_c),
         efficiency_crank_to_battery: if led.operator_work_j > 0.0 {
@@ -279,13 +448,19 @@ fn summarise(
     }
 }
 
+/// The overcharge tolerance of the whole battery, V (per-cell tolerance × series cells).
+fn overcharge_tolerance_v(plant: &Plant) -> f64 {
+    plant.alerts.overcharge.tolerance_v_per_cell * plant.battery.series_cells()
+}
+
 /// The bus figures of a session with a USB port (None for a battery output).
 fn usb_summary(sc: &Scenario, r: &SimResult) -> Option<UsbSummary> {
     let u = sc.setup.usb.as_ref()?;
     let rows = &r.trace.rows;
+    // The same moments the time out of band counts: cranking with the device drawing.
     let lowest = |drawing: bool| {
         rows.iter()
-            .filter(|row| !drawing || row.bus_current_a > 1e-6)
+            .filter(|row| !drawing || (row.bus_current_a > 1e-6 && row.target_rpm > 0.0))
             .map(|row| row.bus_v)
             .fold(f64::INFINITY, f64::min)
     };
@@ -293,10 +468,17 @@ fn usb_summary(sc: &Scenario, r: &SimResult) -> Option<UsbSummary> {
         v if v.is_finite() => v,
         _ => lowest(false),
     };
-    let cutoffs = r
-        .events
+    let cutoffs: Vec<&Event> = r
+        .runs
         .iter()
-        .filter(|e| e.kind == EventKind::DeviceCutoff);
+        .filter(|e| e.kind == EventKind::DeviceCutoff)
+        .collect();
+    // A cut-off that lasted to the session end never saw its reconnection.
+    let reconnected: Vec<f64> = cutoffs
+        .iter()
+        .filter(|e| e.end_s < r.duration_s)
+        .map(|e| e.duration_s)
+        .collect();
     let led = &r.ledger;
     Some(UsbSummary {
         bus_setpoint_v: u.bus_v,
@@ -306,14 +488,14 @@ fn usb_summary(sc: &Scenario, r: &SimResult) -> Option<UsbSummary> {
         min_bus_v,
         max_bus_v: rows.iter().map(|row| row.bus_v).fold(0.0, f64::max),
         out_of_band_s: r
-            .events
+            .runs
             .iter()
-            .filter(|e| {
-                e.kind == EventKind::RegulationLoss && e.detail.starts_with(OUT_OF_BAND_DETAIL)
-            })
+            .filter(|e| e.kind == EventKind::RegulationLoss && e.cause == USB_OUT_OF_BAND)
             .fold(0.0, |a, e| a + e.duration_s),
-        device_cutoffs: cutoffs.clone().count(),
-        device_cutoff_s: cutoffs.fold(0.0, |a, e| a + e.duration_s),
+        device_cutoffs: cutoffs.len(),
+        device_cutoff_s: cutoffs.iter().fold(0.0, |a, e| a + e.duration_s),
+        reconnect_delay_s: u.device_reconnect_delay_s,
+        observed_reconnect_delay_s: crate::analysis::stats::min_max(&reconnected),
         energy_to_bus_wh: (led.battery_terminal_j + led.device_loss_j) / 3600.0,
         device_loss_wh: led.device_loss_j / 3600.0,
     })

@@ -286,7 +286,7 @@ fn table_row(value: &str, m: &Summary) -> Vec<String> {
         value.to_string(),
         format!("{:.4}", m.charge_delivered_ah),
         format!("{:.3}", m.soc_end),
-        format!("{:.1}", 100.0 * m.in_regulation_fraction),
+        crate::analysis::summary::percent_or_na(m.in_regulation_fraction),
         format!("{:.1}", m.mean_operator_power_w),
         format!("{:.1}", m.peak_operator_power_w),
         format!("{:.3}", m.max_battery_v),
@@ -349,7 +349,7 @@ fn write_chart(
     let pick =
         |f: fn(&Summary) -> f64| -> Vec<f64> { done.iter().map(|(_, s)| f(&s.summary)).collect() };
     let charge = pick(|m| m.charge_delivered_ah);
-    let reg = pick(|m| m.in_regulation_fraction);
+    let reg = pick(|m| m.in_regulation_fraction.unwrap_or(f64::NAN));
     let power = pick(|m| m.mean_operator_power_w);
     let first = &done[0].1.summary;
     let chart = plot::sweep_chart(

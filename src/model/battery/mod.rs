@@ -118,6 +118,14 @@ impl BatteryModel {
         }
     }
 
+    /// Cells in series (per-cell tolerances scale with it).
+    pub fn series_cells(&self) -> f64 {
+        match self {
+            BatteryModel::LiIon(m) => m.cells_series,
+            BatteryModel::LeadAcid(m) => m.cells,
+        }
+    }
+
     /// Lead-acid float voltage at `temp_c`, V; None for Li-ion.
     pub fn float_v(&self, temp_c: f64) -> Option<f64> {
         match self {
