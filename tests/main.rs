@@ -1,5 +1,6 @@
 //! All integration tests in one binary: the real CLI, studies, and validation against outside values.
 
+mod alerts;
 mod breadth;
 mod common;
 mod fidelity;

@@ -1292,6 +1292,9 @@ impl Figure for SweepFig<'_> {
             }
             if p == 0 && pts.is_empty() {
                 draw_note(area, "no sweep points")?;
+            } else if col.fraction && pts.is_empty() {
+                // Every point has a null fraction: a direct design regulates nothing.
+                draw_note(area, "n/a: no converter regulates (direct)")?;
             }
         }
         let items = [

@@ -1,0 +1,385 @@
+//! Alert semantics (README, "Alerts and the verdict"): a row is a quantity past a stated
+//! threshold for a stated dwell; rows of one kind closer than the merge gap are one; a lock-out
+//! is one row of one kind; a direct design's regulation is not applicable anywhere; the USB
+//! digest agrees with its rows; a figure too close to its threshold is `marginal`.
+
+use std::path::Path;
+
+use crankcharge::analysis::events::{Event, EventKind};
+use crankcharge::scenario::load::{InputKind, Override};
+use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::simulate::Fidelity;
+use crankcharge::studies::session::{run_session, RunSettings, Session};
+use serde_json::Value;
+
+use crate::common::{read_csv, repo, run_ok, WorkDir};
+
+// ---------------------------------------------------------------------------------------------
+// Helpers (no expectations in here)
+// ---------------------------------------------------------------------------------------------
+
+fn scenario(setup: &str, profile: &str, sets: &[(&str, &str)]) -> Scenario {
+    let path = |p: String| repo().join(p).to_string_lossy().into_owned();
+    let s = SourceText::resolve(
+        Some(&path(format!("profiles/setups/{setup}.ron"))),
+        InputKind::Setup,
+    )
+    .unwrap_or_else(|e| panic!("setup {setup}: {e}"));
+    let p = SourceText::resolve(
+        Some(&path(format!("profiles/cranking/{profile}.ron"))),
+        InputKind::Profile,
+    )
+    .unwrap_or_else(|e| panic!("profile {profile}: {e}"));
+    let ov: Vec<Override> = sets
+        .iter()
+        .map(|(k, v)| Override {
+            key: (*k).to_string(),
+            value: (*v).to_string(),
+        })
+        .collect();
+    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{setup}: {e}"))
+}
+
+fn session(setup: &str, profile: &str, duration_s: f64, sets: &[(&str, &str)]) -> Session {
+    let sc = scenario(setup, profile, sets);
+    let rs = RunSettings {
+        duration_s: Some(duration_s),
+        seed: None,
+        fidelity: Fidelity::Fast,
+        cadence_offset_rpm: 0.0,
+    };
+    run_session(&sc, &rs).unwrap_or_else(|e| panic!("{setup}/{profile}: {e}"))
+}
+
+fn of_kind(rows: &[Event], kind: EventKind) -> Vec<&Event> {
+    rows.iter().filter(|e| e.kind == kind).collect()
+}
+
+/// Time two rows overlap, s.
+fn overlap_s(a: &Event, b: &Event) -> f64 {
+    (a.end_s.min(b.end_s) - a.start_s.max(b.start_s)).max(0.0)
+}
+
+fn summary_json(dir: &Path) -> Value {
+    serde_json::from_str(&std::fs::read_to_string(dir.join("summary.json")).expect("summary"))
+        .expect("summary.json")
+}
+
+/// Settings that make every run of a condition a row of its own.
+const RAW_OVERCHARGE: [(&str, &str); 2] = [
+    ("alerts.overcharge.dwell_s", "0"),
+    ("alerts.overcharge.merge_gap_s", "0"),
+];
+
+// ---------------------------------------------------------------------------------------------
+// Dwell and merge gap
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn a_battery_held_at_its_charge_limit_raises_no_overcharge() {
+    // The lead-acid buck holds its battery at the absorption limit for minutes: the terminal sits
+    // on the limit to within rounding, which is no excursion at all.
+    let s = session("lead-acid-buck", "steady", 600.0, &[]);
+    let m = &s.summary;
+    assert!(
+        m.overcharge_margin_v.abs() < 1e-3,
+        "held at the limit: margin {}",
+        m.overcharge_margin_v
+    );
+    let rows = m.events();
+    assert!(of_kind(&rows, EventKind::Overcharge).is_empty(), "{rows:?}");
+    assert_eq!(m.overcharge_s, 0.0);
+    assert!(!m.verdict.has("overcharge"), "{:?}", m.verdict);
+}
+
+#[test]
+fn runs_shorter_than_the_dwell_are_dropped_and_close_rows_are_joined() {
+    // The diode-only lead-acid design passes its limit with every push of the crank: with no dwell and no
+    // merge gap each run is a row; the default rules keep only those held for the dwell, joined
+    // across the merge gap.
+    let raw = session("lead-acid-direct", "steady", 600.0, &RAW_OVERCHARGE);
+    let ruled = session("lead-acid-direct", "steady", 600.0, &[]);
+    let raw_rows = raw.summary.events();
+    let ruled_rows = ruled.summary.events();
+    let raw_over = of_kind(&raw_rows, EventKind::Overcharge);
+    let over = of_kind(&ruled_rows, EventKind::Overcharge);
+    let rules = &ruled.summary.alert_rules.overcharge;
+    assert!(
+        !over.is_empty() && raw_over.len() > over.len(),
+        "{raw_over:?}"
+    );
+    // The figure is the time past the threshold, whatever the rules.
+    assert_eq!(raw.summary.overcharge_s, ruled.summary.overcharge_s);
+    for e in &over {
+        assert!(e.duration_s >= rules.dwell_s, "{e:?}");
+        assert!(e.worst > e.threshold && e.affects_verdict, "{e:?}");
+    }
+    for w in over.windows(2) {
+        assert!(w[1].start_s - w[0].end_s > rules.merge_gap_s, "{w:?}");
+    }
+    // Every raw run held for the dwell lies inside a row; every raw run that lies inside no row
+    // was shorter than the dwell.
+    for r in &raw_over {
+        let covered = over.iter().any(|e| overlap_s(e, r) >= r.duration_s - 1e-9);
+        assert!(
+            covered || r.duration_s < rules.dwell_s,
+            "a run of {} s at {} s is missing",
+            r.duration_s,
+            r.start_s
+        );
+    }
+    // A row's worst is the worst of the runs it holds.
+    for e in &over {
+        let worst_inside = raw_over
+            .iter()
+            .filter(|r| r.start_s >= e.start_s - 1e-9 && r.end_s <= e.end_s + 1e-9)
+            .map(|r| r.worst)
+            .fold(f64::NEG_INFINITY, f64::max);
+        assert!(
+            (e.worst - worst_inside).abs() < 1e-9,
+            "{e:?} vs {worst_inside}"
+        );
+    }
+}
+
+#[test]
+fn a_lockout_is_one_row_and_its_regulation_cost_is_counted_not_repeated() {
+    // At 0.8 of its cadence the demo locks out now and then and drops out often.
+    let sets = [
+        ("profile.cadence_scale", "0.8"),
+        ("alerts.regulation_loss.dwell_s", "0"),
+        ("alerts.regulation_loss.merge_gap_s", "0"),
+        ("alerts.lockout.dwell_s", "0"),
+        ("alerts.lockout.merge_gap_s", "0"),
+    ];
+    let s = session("demo", "steady", 120.0, &sets);
+    let rows = s.summary.events();
+    let lockouts = of_kind(&rows, EventKind::Lockout);
+    let losses = of_kind(&rows, EventKind::RegulationLoss);
+    assert!(!lockouts.is_empty() && !losses.is_empty());
+    for l in &lockouts {
+        for r in &losses {
+            assert!(
+                overlap_s(l, r) < 1e-9,
+                "lock-out {l:?} written again as {r:?}"
+            );
+        }
+    }
+    // Its time is in the regulation figure: regulation rows and lock-out rows add up to it.
+    let sum: f64 = lockouts.iter().chain(&losses).map(|e| e.duration_s).sum();
+    let lost = s.summary.regulation_loss_s.expect("a buck regulates");
+    assert!((sum - lost).abs() < 1e-9, "{sum} vs {lost}");
+    // No row has zero length, and none appears twice.
+    for (k, e) in rows.iter().enumerate() {
+        assert!(e.duration_s > 0.0, "{e:?}");
+        assert!(!rows[k + 1..].contains(e), "{e:?} twice");
+    }
+}
+
+// ---------------------------------------------------------------------------------------------
+// Direct designs: regulation does not apply
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn a_direct_design_reports_regulation_as_not_applicable_everywhere() {
+    let wd = WorkDir::new();
+    let out = run_ok(
+        &wd,
+        &[
+            "run",
+            "lead-acid-direct",
+            "--duration",
+            "60",
+            "--no-plot",
+            "--out",
+            "run",
+        ],
+    );
+    assert!(out.contains("regulation n/a"), "{out}");
+    let s = summary_json(&wd.path("run"));
+    for key in [
+        "in_regulation_fraction",
+        "regulation_loss_s",
+        "cadence_margin_rpm",
+    ] {
+        assert!(s[key].is_null(), "{key}: {}", s[key]);
+    }
+
+    let table = run_ok(
+        &wd,
+        &[
+            "compare",
+            "lead-acid-direct",
+            "demo",
+            "--duration",
+            "30",
+            "--no-plot",
+            "--out",
+            "cmp",
+        ],
+    );
+    assert!(table.contains("n/a"), "{table}");
+    let (header, rows) = read_csv(&wd.path("cmp/compare.csv"));
+    let k = header
+        .iter()
+        .position(|h| h == "in_regulation_fraction")
+        .expect("column");
+    let setup = header.iter().position(|h| h == "setup").expect("setup");
+    for r in &rows {
+        let direct = r[setup].contains("direct");
+        assert_eq!(r[k].is_empty(), direct, "{r:?}");
+    }
+
+    run_ok(
+        &wd,
+        &[
+            "sweep",
+            "lead-acid-direct",
+            "--param",
+            "battery.soc_start",
+            "--values",
+            "0.5,0.6",
+            "--duration",
+            "20",
+            "--no-plot",
+            "--out",
+            "sw",
+        ],
+    );
+    let (header, rows) = read_csv(&wd.path("sw/sweep.csv"));
+    let k = header
+        .iter()
+        .position(|h| h == "in_regulation_fraction")
+        .expect("column");
+    assert!(rows.iter().all(|r| r[k].is_empty()), "{rows:?}");
+
+    run_ok(
+        &wd,
+        &[
+            "montecarlo",
+            "lead-acid-direct",
+            "--runs",
+            "4",
+            "--duration",
+            "20",
+            "--no-plot",
+            "--out",
+            "mc",
+        ],
+    );
+    let mc: Value = serde_json::from_str(&wd.read("mc/montecarlo.json")).expect("json");
+    assert!(mc["in_regulation_fraction"].is_null(), "{mc}");
+    assert!(mc["regulation_failure_probability"].is_null(), "{mc}");
+}
+
+// ---------------------------------------------------------------------------------------------
+// USB digest
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn the_usb_digest_agrees_with_its_rows_and_trace() {
+    // The tiring operator sags the bus: the device cuts off and reconnects several times.
+    let s = session("usb-phone", "tiring", 600.0, &[]);
+    let u = s.summary.usb.as_ref().expect("usb figures");
+    let rows = &s.result.trace.rows;
+    // Lowest bus while cranking with the device drawing: the same moments the time out of band
+    // counts.
+    let lowest = rows
+        .iter()
+        .filter(|r| r.bus_current_a > 1e-6 && r.target_rpm > 0.0)
+        .map(|r| r.bus_v)
+        .fold(f64::INFINITY, f64::min);
+    assert_eq!(u.min_bus_v, lowest);
+    if u.out_of_band_s == 0.0 {
+        assert!(u.min_bus_v >= u.band_low_v - 0.05, "{u:?}");
+    }
+    let events = s.summary.events();
+    let cuts = of_kind(&events, EventKind::DeviceCutoff);
+    assert!(cuts.len() >= 2, "{cuts:?}");
+    assert_eq!(cuts.len(), u.device_cutoffs);
+    // Every cut-off row lasts until the device reconnects, at least the configured delay.
+    for c in &cuts {
+        if c.end_s < s.summary.duration_s {
+            assert!(c.duration_s >= u.reconnect_delay_s - 1e-6, "{c:?}");
+        }
+    }
+    let (lo, hi) = u.observed_reconnect_delay_s.expect("reconnections");
+    let durations: Vec<f64> = cuts
+        .iter()
+        .filter(|c| c.end_s < s.summary.duration_s)
+        .map(|c| c.duration_s)
+        .collect();
+    assert_eq!(lo, durations.iter().cloned().fold(f64::INFINITY, f64::min));
+    assert_eq!(hi, durations.iter().cloned().fold(0.0, f64::max));
+    assert!(lo >= u.reconnect_delay_s - 1e-6);
+}
+
+// ---------------------------------------------------------------------------------------------
+// Marginal verdicts
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn a_regulation_figure_near_its_threshold_is_marginal() {
+    let base = session("demo", "steady", 600.0, &[]);
+    let f = base
+        .summary
+        .in_regulation_fraction
+        .expect("a buck regulates");
+    let verdict = |min: f64| {
+        let m = format!("{min}");
+        session(
+            "demo",
+            "steady",
+            600.0,
+            &[("alerts.min_in_regulation_fraction", m.as_str())],
+        )
+        .summary
+    };
+    // Within the 0.02 band on either side: the model cannot decide.
+    for min in [f - 0.01, f + 0.01] {
+        let m = verdict(min);
+        assert!(m.verdict.has("marginal"), "{min}: {:?}", m.verdict);
+        assert!(!m.verdict.has("fails_regulation"), "{min}: {:?}", m.verdict);
+        assert_eq!(m.marginal_figures(), ["in_regulation_fraction"]);
+    }
+    // Clear of the band: decided.
+    assert!(verdict(f + 0.025).verdict.has("fails_regulation"));
+    assert_eq!(verdict(f - 0.05).verdict.words(), ["ok"]);
+}
+
+#[test]
+fn a_battery_voltage_near_the_overcharge_threshold_is_marginal() {
+    // Held at its absorption limit, the lead-acid battery sits 0.3 V (6 × 0.05 V) under the
+    // default threshold; a 0.005 V/cell tolerance puts the threshold 0.03 V above it, inside the
+    // 0.05-V band.
+    let near = session(
+        "lead-acid-buck",
+        "steady",
+        600.0,
+        &[("alerts.overcharge.tolerance_v_per_cell", "0.005")],
+    );
+    assert!(
+        near.summary.verdict.has("marginal"),
+        "{:?}",
+        near.summary.verdict
+    );
+    assert_eq!(near.summary.marginal_figures(), ["max_battery_v"]);
+    let wd = WorkDir::new();
+    let out = run_ok(
+        &wd,
+        &[
+            "run",
+            "lead-acid-buck",
+            "--no-plot",
+            "--out",
+            "o",
+            "--set",
+            "alerts.overcharge.tolerance_v_per_cell=0.005",
+        ],
+    );
+    assert!(out.contains("verdict: marginal"), "{out}");
+    assert!(
+        out.contains("montecarlo"),
+        "the digest points to montecarlo: {out}"
+    );
+}
