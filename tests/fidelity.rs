@@ -48,6 +48,74 @@ fn load(setup: &Path, profile: &Path, sets: &[(&str, &str)]) -> Scenario {
     load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{}: {e}", setup.display()))
 }
 
+/// One session to run: setup and profile files, fidelity, length (None: the profile's own).
+struct Job {
+    setup: PathBuf,
+    profile: PathBuf,
+    fidelity: Fidelity,
+    duration_s: Option<f64>,
+}
+
+/// Runs the jobs, shared out to one worker per core, in job order; each with its wall time, s.
+/// A job that fails panics with its setup, profile and fidelity.
+fn run_jobs(jobs: &[Job]) -> Vec<(Session, f64)> {
+    type Slot = Option<Result<(Session, f64), String>>;
+    let results: Mutex<Vec<Slot>> = Mutex::new((0..jobs.len()).map(|_| None).collect());
+    let next = AtomicUsize::new(0);
+    let workers = std::thread::available_parallelism()
+        .map_or(2, |n| n.get())
+        .clamp(1, jobs.len().max(1));
+    std::thread::scope(|s| {
+        for _ in 0..workers {
+            s.spawn(|| loop {
+                let k = next.fetch_add(1, Ordering::SeqCst);
+                let Some(job) = jobs.get(k) else {
+                    break;
+                };
+                let sc = load(&job.setup, &job.profile, &[]);
+                let rs = RunSettings {
+                    duration_s: job.duration_s,
+                    seed: Some(sc.profile.seed),
+                    fidelity: job.fidelity,
+                    cadence_offset_rpm: 0.0,
+                };
+                let started = std::time::Instant::now();
+                let out = run_session(&sc, &rs)
+                    .map(|s| (s, started.elapsed().as_secs_f64()))
+                    .map_err(|e| e.to_string());
+                results.lock().expect("results")[k] = Some(out);
+            });
+        }
+    });
+    results
+        .into_inner()
+        .expect("results")
+        .into_iter()
+        .zip(jobs)
+        .map(|(r, j)| match r.expect("job ran") {
+            Ok(x) => x,
+            Err(e) => panic!(
+                "{} with {} ({:?}): {e}",
+                j.setup.display(),
+                j.profile.display(),
+                j.fidelity
+            ),
+        })
+        .collect()
+}
+
+/// Every shipped crank profile, sorted by name.
+fn shipped_profiles() -> Vec<PathBuf> {
+    let dir = repo().join("profiles/cranking");
+    let mut v: Vec<PathBuf> = std::fs::read_dir(&dir)
+        .unwrap_or_else(|e| panic!("read {}: {e}", dir.display()))
+        .map(|e| e.expect("dir entry").path())
+        .filter(|p| p.extension().is_some_and(|x| x == "ron"))
+        .collect();
+    v.sort();
+    v
+}
+
 fn steady_profile() -> PathBuf {
     repo().join("profiles/cranking/steady.ron")
 }
@@ -431,47 +499,20 @@ fn shipped_solver_settings_are_converged_on_every_shipped_setup() {
 fn fast_and_detailed_agree_on_every_shipped_setup() {
     let setups = shipped_setups();
     assert!(setups.len() >= 2, "shipped setups: {setups:?}");
-    // Detailed runs first (the slow ones), shared out to one worker per core.
-    let jobs: Vec<(PathBuf, Fidelity)> = [Fidelity::Detailed, Fidelity::Fast]
+    // Detailed runs first (the slow ones).
+    let jobs: Vec<Job> = [Fidelity::Detailed, Fidelity::Fast]
         .iter()
-        .flat_map(|f| setups.iter().map(move |s| (s.clone(), *f)))
+        .flat_map(|f| {
+            setups.iter().map(move |s| Job {
+                setup: s.clone(),
+                profile: steady_profile(),
+                fidelity: *f,
+                duration_s: Some(120.0),
+            })
+        })
         .collect();
-    let results: Mutex<Vec<Option<Result<Session, String>>>> =
-        Mutex::new((0..jobs.len()).map(|_| None).collect());
-    let next = AtomicUsize::new(0);
-    let workers = std::thread::available_parallelism()
-        .map_or(2, |n| n.get())
-        .clamp(1, jobs.len());
-    std::thread::scope(|s| {
-        for _ in 0..workers {
-            s.spawn(|| loop {
-                let k = next.fetch_add(1, Ordering::SeqCst);
-                let Some((setup, fidelity)) = jobs.get(k) else {
-                    break;
-                };
-                let sc = load(setup, &steady_profile(), &[]);
-                let out = if sc.profile.jitter.enabled {
-                    let rs = RunSettings {
-                        duration_s: Some(120.0),
-                        seed: Some(sc.profile.seed),
-                        fidelity: *fidelity,
-                        cadence_offset_rpm: 0.0,
-                    };
-                    run_session(&sc, &rs).map_err(|e| e.to_string())
-                } else {
-                    Err("the steady profile is meant to run with jitter on".to_string())
-                };
-                results.lock().expect("results")[k] = Some(out);
-            });
-        }
-    });
-    let results = results.into_inner().expect("results");
-    let take = |k: usize| -> &Session {
-        match results[k].as_ref().expect("job ran") {
-            Ok(s) => s,
-            Err(e) => panic!("{} ({:?}): {e}", jobs[k].0.display(), jobs[k].1),
-        }
-    };
+    let results = run_jobs(&jobs);
+    let take = |k: usize| -> &Session { &results[k].0 };
     let n = setups.len();
     for (i, setup) in setups.iter().enumerate() {
         let name = setup.file_stem().unwrap().to_string_lossy();
@@ -1054,4 +1095,98 @@ fn the_energy_ledger_stays_closed_where_the_lead_acid_battery_current_bends() {
         "energy_balance_error {}",
         s.summary.energy_balance_error
     );
+}
+
+// ---------------------------------------------------------------------------------------------
+// Fast against detailed: every shipped setup with every shipped profile, whole sessions
+// ---------------------------------------------------------------------------------------------
+
+/// The agreement the two fidelities promise (README, "Fidelities"), on whole default sessions of
+/// every shipped setup with every shipped profile: the same verdict, charge within 0.5 %, the
+/// peak battery voltage within 50 mV, the in-regulation fraction within 0.02, and overcharge
+/// rows that agree in number (a chattering limit would multiply them). Slow (the detailed
+/// sessions take seconds each): `cargo test --release -- --ignored whole_sessions`.
+#[test]
+#[ignore]
+fn fast_and_detailed_agree_on_whole_sessions_of_every_setup_and_profile() {
+    let setups = shipped_setups();
+    let profiles = shipped_profiles();
+    let pairs: Vec<(PathBuf, PathBuf)> = setups
+        .iter()
+        .flat_map(|s| profiles.iter().map(move |p| (s.clone(), p.clone())))
+        .collect();
+    let jobs: Vec<Job> = [Fidelity::Detailed, Fidelity::Fast]
+        .iter()
+        .flat_map(|f| {
+            pairs.iter().map(move |(s, p)| Job {
+                setup: s.clone(),
+                profile: p.clone(),
+                fidelity: *f,
+                duration_s: None,
+            })
+        })
+        .collect();
+    let results = run_jobs(&jobs);
+    let n = pairs.len();
+    let mut failures = Vec::new();
+    for (i, (setup, profile)) in pairs.iter().enumerate() {
+        let name = format!(
+            "{} / {}",
+            setup.file_stem().unwrap().to_string_lossy(),
+            profile.file_stem().unwrap().to_string_lossy()
+        );
+        let (det, det_wall) = (&results[i].0.summary, results[i].1);
+        let (fast, fast_wall) = (&results[n + i].0.summary, results[n + i].1);
+        let overcharge_rows = |m: &crankcharge::analysis::summary::Summary| {
+            m.events()
+                .iter()
+                .filter(|e| e.kind == EventKind::Overcharge)
+                .count()
+        };
+        let d_charge =
+            (fast.charge_delivered_ah - det.charge_delivered_ah).abs() / det.charge_delivered_ah;
+        let d_peak = (fast.max_battery_v - det.max_battery_v).abs();
+        let d_reg = match (fast.in_regulation_fraction, det.in_regulation_fraction) {
+            (Some(a), Some(b)) => (a - b).abs(),
+            (None, None) => 0.0,
+            _ => f64::INFINITY,
+        };
+        let (rows_fast, rows_det) = (overcharge_rows(fast), overcharge_rows(det));
+        eprintln!(
+            "{name:<34} charge {:+.3} %  peak {:+.1} mV  regulation {:+.4}  verdict {} / {}  overcharge rows {rows_fast} / {rows_det}  wall {fast_wall:.2} / {det_wall:.2} s",
+            100.0 * (fast.charge_delivered_ah / det.charge_delivered_ah - 1.0),
+            1e3 * (fast.max_battery_v - det.max_battery_v),
+            fast.in_regulation_fraction.unwrap_or(0.0) - det.in_regulation_fraction.unwrap_or(0.0),
+            fast.verdict.words().join("+"),
+            det.verdict.words().join("+"),
+        );
+        if fast.verdict != det.verdict {
+            failures.push(format!(
+                "{name}: verdict {:?} vs {:?}",
+                fast.verdict, det.verdict
+            ));
+        }
+        if d_charge > 0.005 {
+            failures.push(format!(
+                "{name}: charge differs by {:.3} %",
+                100.0 * d_charge
+            ));
+        }
+        if d_peak > 0.05 {
+            failures.push(format!(
+                "{name}: peak battery voltage differs by {d_peak:.4} V"
+            ));
+        }
+        if d_reg > 0.02 {
+            failures.push(format!(
+                "{name}: in-regulation fraction differs by {d_reg:.4}"
+            ));
+        }
+        if rows_fast != rows_det {
+            failures.push(format!(
+                "{name}: {rows_fast} overcharge rows fast, {rows_det} detailed"
+            ));
+        }
+    }
+    assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
