@@ -39,12 +39,13 @@ impl WorkDir {
 
 /// Root of the repository (for shipped files).
 /// The files a run folder holds (DESIGN.md §4, the interface contract).
-pub const RUN_FILES: [&str; 5] = [
+pub const RUN_FILES: [&str; 6] = [
     "trace.csv",
     "events.csv",
     "summary.json",
     "session.png",
     "session.svg",
+    "report.html",
 ];
 
 pub fn repo() -> &'static Path {

@@ -5,4 +5,5 @@ pub mod csv;
 pub mod font;
 pub mod json;
 pub mod plot;
+pub mod report;
 pub mod rundir;

@@ -112,6 +112,9 @@ pub struct Scenario {
     pub setup_source: SourceText,
     pub profile_source: SourceText,
     pub overrides: Vec<Override>,
+    /// The setup and profile texts as run: the files with the overrides written into them.
+    pub setup_text: String,
+    pub profile_text: String,
 }
 
 /// Parses, overrides and validates a setup and a profile.
@@ -144,6 +147,8 @@ pub fn load_scenario(
         setup_source: setup.clone(),
         profile_source: profile.clone(),
         overrides: overrides.to_vec(),
+        setup_text: s_text,
+        profile_text: p_text,
     })
 }
 

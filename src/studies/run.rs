@@ -8,7 +8,7 @@ use clap::Args;
 use crate::analysis::events::{Event, EventKind};
 use crate::analysis::summary::{Summary, MARGINAL};
 use crate::cli::{parse_duration, say, Failure, EXIT_FLAGGED, EXIT_OK};
-use crate::output::{csv, json, rundir::Staging};
+use crate::output::{csv, json, report, rundir::Staging};
 use crate::scenario::load::{InputKind, Override};
 use crate::scenario::{load_scenario, Scenario, SourceText};
 use crate::simulate::Fidelity;
@@ -108,7 +108,7 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
     });
     let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
     let session = session_or_failure(&sc, &settings_from(&a.session))?;
-    write_run(&staging, &session, !a.no_plot).map_err(Failure::Other)?;
+    write_run(&staging, &sc, &session, !a.no_plot).map_err(Failure::Other)?;
     let dir = staging.commit().map_err(|e| Failure::Other(e.into()))?;
     report(&session, &dir);
     Ok(if a.strict && session.summary.verdict.flagged() {
@@ -119,17 +119,21 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
 }
 
 /// Writes the contract files of one run into the staging folder.
-pub fn write_run(staging: &Staging, s: &Session, plots: bool) -> anyhow::Result<()> {
+pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> anyhow::Result<()> {
     staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
     let events = s.summary.events();
     staging.write("events.csv", &csv::events_csv(&events)?)?;
     staging.write("summary.json", &json::to_json(&s.summary)?)?;
+    let mut svg = None;
     if plots {
         let title = format!("{} / {}", s.summary.setup, s.summary.profile);
         let chart = crate::output::plot::session_chart(&s.result.trace, &events, &title)?;
         staging.write("session.png", &chart.png)?;
         staging.write("session.svg", chart.svg.as_bytes())?;
+        svg = Some(chart.svg);
     }
+    let page = super::pages::run_page(sc, &s.summary, svg.as_deref());
+    staging.write("report.html", report::render(&page).as_bytes())?;
     Ok(())
 }
 
