@@ -137,3 +137,65 @@ fn the_run_report_renders_in_a_browser_at_phone_width() {
         "{r}"
     );
 }
+
+#[test]
+fn every_study_folder_holds_a_self_contained_report() {
+    let wd = WorkDir::new();
+    run_ok(
+        &wd,
+        &[
+            "compare",
+            "demo",
+            "lead-acid-direct",
+            "--duration",
+            "20",
+            "--out",
+            "cmp",
+        ],
+    );
+    run_ok(
+        &wd,
+        &[
+            "sweep",
+            "--param",
+            "drive.stages.0.ratio",
+            "--values",
+            "4,6",
+            "--duration",
+            "20",
+            "--out",
+            "sw",
+        ],
+    );
+    run_ok(
+        &wd,
+        &[
+            "montecarlo",
+            "--runs",
+            "3",
+            "--duration",
+            "20",
+            "--out",
+            "mc",
+        ],
+    );
+    for (dir, must) in [
+        (
+            "cmp",
+            vec!["demo-liion-buck", "Setup as run: lead-acid", "hydrogen"],
+        ),
+        ("sw", vec!["drive.stages.0.ratio", "<svg"]),
+        ("mc", vec!["3 operators", "overcharge in", "Lithium cells"]),
+    ] {
+        let html = wd.read(&format!("{dir}/report.html"));
+        assert!(html.starts_with("<!doctype html>"), "{dir}");
+        assert!(html.contains("<table"), "{dir}: no table");
+        for m in must {
+            assert!(html.contains(m), "{dir}: no {m:?}");
+        }
+        let lower = html.to_lowercase();
+        for bad in ["<script", " src=", "href=", "url("] {
+            assert!(!lower.contains(bad), "{dir}: {bad}");
+        }
+    }
+}

@@ -14,12 +14,13 @@ use rayon::prelude::*;
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
 use crate::cli::{parse_duration, say, Failure, EXIT_OK, EXIT_SIM};
 use crate::output::csv::table_csv;
-use crate::output::plot;
 use crate::output::rundir::Staging;
+use crate::output::{plot, report};
 use crate::scenario::load::Override;
 use crate::scenario::Scenario;
 
 use super::check::build_plant;
+use super::pages;
 use super::run::{scenario_from, session_or_failure, settings_from, FidelityArg, SessionArgs};
 use super::session::Session;
 
@@ -142,6 +143,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
     staging
         .write("compare.csv", &csv)
         .map_err(|e| Failure::Other(e.into()))?;
+    let mut charts = Vec::new();
     if !a.no_plot {
         let runs: Vec<(String, &crate::analysis::trace::Trace)> = done
             .iter()
@@ -160,10 +162,30 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         staging
             .write("compare.svg", chart.svg.as_bytes())
             .map_err(|e| Failure::Other(e.into()))?;
+        charts.push((
+            chart.svg,
+            "State of charge and crank cadence of every run, overlaid.".to_string(),
+        ));
     }
+    let summaries: Vec<&Summary> = done.iter().map(|(_, s)| &s.summary).collect();
+    let (th, tr, _) = summary_rows(&summaries);
+    let scenarios: Vec<&Scenario> = done.iter().map(|(j, _)| &j.scenario).collect();
+    let page = pages::study_page(
+        &scenarios,
+        "crankcharge compare",
+        &format!("Comparison of {} run(s), seed {seed}", done.len()),
+        (th.iter().map(|h| h.to_string()).collect(), tr),
+        charts,
+        failed
+            .iter()
+            .map(|f| format!("Failed and left out: {f}"))
+            .collect(),
+    );
+    staging
+        .write("report.html", report::render(&page).as_bytes())
+        .map_err(|e| Failure::Other(e.into()))?;
     let dir = staging.commit().map_err(|e| Failure::Other(e.into()))?;
 
-    let summaries: Vec<&Summary> = done.iter().map(|(_, s)| &s.summary).collect();
     for line in summary_table(&summaries) {
         say(&line);
     }
@@ -191,6 +213,13 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
 
 /// The terminal table of several runs: one line a run, units in the headers.
 pub fn summary_table(runs: &[&Summary]) -> Vec<String> {
+    let (header, rows, right) = summary_rows(runs);
+    aligned_table(&header, &rows, &right)
+}
+
+/// The cells of [`summary_table`]: header, rows, and which columns are numbers.
+#[allow(clippy::type_complexity)]
+pub fn summary_rows(runs: &[&Summary]) -> (Vec<&'static str>, Vec<Vec<String>>, Vec<bool>) {
     let header = [
         "setup",
         "profile",
@@ -229,7 +258,7 @@ pub fn summary_table(runs: &[&Summary]) -> Vec<String> {
             ]
         })
         .collect();
-    aligned_table(&header, &rows, &right)
+    (header.to_vec(), rows, right.to_vec())
 }
 
 /// Lays out a table in columns two spaces apart; `right[k]` right-aligns column k (numbers).

@@ -27,11 +27,12 @@ use crate::analysis::summary::{fmt, Summary, MARGINAL, SCALAR_KEYS};
 use crate::cli::{say, Failure, EXIT_OK};
 use crate::output::csv::table_csv;
 use crate::output::json::to_json;
-use crate::output::plot;
 use crate::output::rundir::Staging;
+use crate::output::{plot, report};
 use crate::scenario::Scenario;
 
 use super::check::build_plant;
+use super::pages;
 use super::run::{scenario_from, session_or_failure, settings_from, SessionArgs};
 
 /// Most runs one study may have.
@@ -324,6 +325,7 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
     staging
         .write("montecarlo.json", &json)
         .map_err(|e| other(&e))?;
+    let mut charts = Vec::new();
     if !a.no_plot {
         let mut panels: Vec<(&str, &str, &[f64])> = vec![("charge delivered", "Ah", &charge)];
         if regulated {
@@ -341,7 +343,42 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         staging
             .write("montecarlo.svg", chart.svg.as_bytes())
             .map_err(|e| other(&e))?;
+        charts.push((
+            chart.svg,
+            "Histograms over the operators of the charge delivered, the time in regulation and the operator's work.".to_string(),
+        ));
     }
+    let mut notes = vec![
+        format!(
+            "{} of {} runs done, base seed {}, {:.0}-s sessions, {} fidelity.",
+            report.runs,
+            report.runs_requested,
+            report.base_seed,
+            report.duration_s,
+            report.fidelity
+        ),
+        probabilities_line(&report),
+    ];
+    notes.extend(report.failures.iter().map(|f| {
+        format!(
+            "Run {} (seed {}) failed and is left out: {}",
+            f.run, f.seed, f.error
+        )
+    }));
+    let page = pages::study_page(
+        &[&sc],
+        "crankcharge montecarlo",
+        &format!("{} operators: {} / {}", n, report.setup, report.profile),
+        (
+            SPREAD_HEADER.map(String::from).to_vec(),
+            spread_rows(&report),
+        ),
+        charts,
+        notes,
+    );
+    staging
+        .write("report.html", report::render(&page).as_bytes())
+        .map_err(|e| other(&e))?;
     let dir = staging.commit().map_err(|e| other(&e))?;
     print_report(&report, &dir);
     Ok(EXIT_OK)
@@ -352,40 +389,14 @@ fn print_report(r: &Report, dir: &std::path::Path) {
         "montecarlo: {} / {}, {} of {} runs done, base seed {}, {:.0} s sessions",
         r.setup, r.profile, r.runs, r.runs_requested, r.base_seed, r.duration_s
     ));
-    let mut rows = vec![row("charge delivered [Ah]", &r.charge_delivered_ah, 4)];
-    if let Some(reg) = &r.in_regulation_fraction {
-        rows.push(row("in-regulation fraction", reg, 3));
-    }
-    rows.extend([
-        row("operator work [J]", &r.operator_work_j, 0),
-        row("mean operator power [W]", &r.mean_operator_power_w, 1),
-        row("max battery [V]", &r.max_battery_v, 3),
-    ]);
-    let header = ["figure", "p5", "p50", "p95", "min", "max"];
+    let rows = spread_rows(r);
+    let header = SPREAD_HEADER;
     for line in
         super::compare::aligned_table(&header, &rows, &[false, true, true, true, true, true])
     {
         say(&format!("  {line}"));
     }
-    let regulation = match (
-        r.regulation_failure_probability,
-        r.regulation_failure_probability_95,
-    ) {
-        (Some(p), Some((lo, hi))) => format!(
-            "fails regulation in {:.1} % ({:.1} … {:.1} %)",
-            100.0 * p,
-            100.0 * lo,
-            100.0 * hi
-        ),
-        _ => "regulation n/a (direct)".to_string(),
-    };
-    say(&format!(
-        "  overcharge in {:.1} % of runs (95 % interval {:.1} … {:.1} %); {regulation}; marginal in {:.1} %",
-        100.0 * r.overcharge_probability,
-        100.0 * r.overcharge_probability_95.0,
-        100.0 * r.overcharge_probability_95.1,
-        100.0 * r.marginal_probability,
-    ));
+    say(&format!("  {}", probabilities_line(r)));
     if !r.failures.is_empty() {
         let mut err = std::io::stderr().lock();
         let _ = writeln!(
@@ -398,6 +409,46 @@ fn print_report(r: &Report, dir: &std::path::Path) {
         }
     }
     say(&format!("  wrote {}", dir.display()));
+}
+
+/// Columns of the spread table.
+const SPREAD_HEADER: [&str; 6] = ["figure", "p5", "p50", "p95", "min", "max"];
+
+/// The spread table: one row a figure (in-regulation left out for a direct design).
+fn spread_rows(r: &Report) -> Vec<Vec<String>> {
+    let mut rows = vec![row("charge delivered [Ah]", &r.charge_delivered_ah, 4)];
+    if let Some(reg) = &r.in_regulation_fraction {
+        rows.push(row("in-regulation fraction", reg, 3));
+    }
+    rows.extend([
+        row("operator work [J]", &r.operator_work_j, 0),
+        row("mean operator power [W]", &r.mean_operator_power_w, 1),
+        row("max battery [V]", &r.max_battery_v, 3),
+    ]);
+    rows
+}
+
+/// The probabilities in one line, with their intervals.
+fn probabilities_line(r: &Report) -> String {
+    let regulation = match (
+        r.regulation_failure_probability,
+        r.regulation_failure_probability_95,
+    ) {
+        (Some(p), Some((lo, hi))) => format!(
+            "fails regulation in {:.1} % ({:.1} … {:.1} %)",
+            100.0 * p,
+            100.0 * lo,
+            100.0 * hi
+        ),
+        _ => "regulation n/a (direct)".to_string(),
+    };
+    format!(
+        "overcharge in {:.1} % of runs (95 % interval {:.1} … {:.1} %); {regulation}; marginal in {:.1} %",
+        100.0 * r.overcharge_probability,
+        100.0 * r.overcharge_probability_95.0,
+        100.0 * r.overcharge_probability_95.1,
+        100.0 * r.marginal_probability,
+    )
 }
 
 fn row(name: &str, s: &Spread, decimals: usize) -> Vec<String> {

@@ -187,9 +187,10 @@ pub fn run_page(sc: &Scenario, m: &Summary, svg: Option<&str>) -> Page {
     }
 }
 
-/// The page of a study that ran several sessions: a table of them and its chart.
+/// The page of a study: its table (header, rows), its charts (SVG, caption), a few lines of
+/// notes, and the scenarios it ran (each distinct setup and profile is shown as run, once).
 pub fn study_page(
-    sc: &Scenario,
+    scenarios: &[&Scenario],
     what: &str,
     title: &str,
     table: (Vec<String>, Vec<Vec<String>>),
@@ -197,7 +198,23 @@ pub fn study_page(
     notes: Vec<String>,
 ) -> Page {
     let mut b = Vec::new();
-    b.push(Block::Facts(provenance(sc)));
+    let mut seen_setups: Vec<&str> = Vec::new();
+    let mut seen_profiles: Vec<&str> = Vec::new();
+    let mut facts = Vec::new();
+    for sc in scenarios {
+        if !seen_setups.contains(&sc.setup_text.as_str()) {
+            seen_setups.push(&sc.setup_text);
+            facts.push(("setup file".to_string(), sc.setup_source.name.clone()));
+        }
+        if !seen_profiles.contains(&sc.profile_text.as_str()) {
+            seen_profiles.push(&sc.profile_text);
+            facts.push(("profile file".to_string(), sc.profile_source.name.clone()));
+        }
+    }
+    if let Some(sc) = scenarios.first() {
+        facts.push(provenance(sc).remove(2));
+    }
+    b.push(Block::Facts(facts));
     for n in notes {
         b.push(Block::Paragraph(n));
     }
@@ -209,7 +226,31 @@ pub fn study_page(
     for (svg, caption) in charts {
         b.push(Block::Chart { svg, caption });
     }
-    as_run_and_cautions(sc, &mut b);
+    let mut shown_setups: Vec<&str> = Vec::new();
+    let mut shown_profiles: Vec<&str> = Vec::new();
+    let mut all_cautions: Vec<String> = Vec::new();
+    for sc in scenarios {
+        if !shown_setups.contains(&sc.setup_text.as_str()) {
+            shown_setups.push(&sc.setup_text);
+            b.push(Block::Heading(format!("Setup as run: {}", sc.setup.name)));
+            b.push(Block::Code(sc.setup_text.clone()));
+        }
+        if !shown_profiles.contains(&sc.profile_text.as_str()) {
+            shown_profiles.push(&sc.profile_text);
+            b.push(Block::Heading(format!(
+                "Crank profile as run: {}",
+                sc.profile.name
+            )));
+            b.push(Block::Code(sc.profile_text.clone()));
+        }
+        for c in cautions(sc) {
+            if !all_cautions.contains(&c) {
+                all_cautions.push(c);
+            }
+        }
+    }
+    b.push(Block::Heading("Cautions".into()));
+    b.push(Block::List(all_cautions));
     Page {
         title: title.to_string(),
         subtitle: made_by(what),

@@ -22,11 +22,13 @@ use rayon::prelude::*;
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
 use crate::cli::{say, Failure, EXIT_OK, EXIT_SIM};
 use crate::output::plot::{self, SweepSeries};
+use crate::output::report;
 use crate::scenario::load::Override;
 use crate::scenario::Scenario;
 
 use super::check::build_plant;
 use super::compare::aligned_table;
+use super::pages;
 use super::run::{scenario_from, session_or_failure, settings_from, SessionArgs};
 use super::session::Session;
 
@@ -236,23 +238,35 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
             Err(e) => failed.push(format!("{key} = {}: {e}", values[k])),
         }
     }
+    let mut charts = Vec::new();
     if !a.no_plot && !done.is_empty() {
-        write_chart(&out, &key, &values, &done).map_err(Failure::Other)?;
+        let svg = write_chart(&out, &key, &values, &done).map_err(Failure::Other)?;
+        charts.push((
+            svg,
+            format!("Charge, time in regulation and mean operator power against {key}."),
+        ));
     }
     let rows: Vec<Vec<String>> = done
         .iter()
         .map(|(k, s)| table_row(&values[*k], &s.summary))
         .collect();
-    let header = [
-        key.as_str(),
-        "charge [Ah]",
-        "SOC end",
-        "in-regulation [%]",
-        "mean [W]",
-        "peak [W]",
-        "max battery [V]",
-        "verdict",
-    ];
+    if let Some((k0, _)) = done.first() {
+        let page = pages::study_page(
+            &scenarios.iter().collect::<Vec<_>>()[*k0..=*k0],
+            "crankcharge sweep",
+            &format!("Sweep of {key}"),
+            (table_header(&key), rows.clone()),
+            charts,
+            failed
+                .iter()
+                .map(|f| format!("Failed and left out: {f}"))
+                .collect(),
+        );
+        write_renamed(&out, "report.html", report::render(&page).as_bytes())
+            .map_err(Failure::Other)?;
+    }
+    let header = table_header(&key);
+    let header: Vec<&str> = header.iter().map(String::as_str).collect();
     let right = [true, true, true, true, true, true, true, false];
     for line in aligned_table(&header, &rows, &right) {
         say(&line);
@@ -279,6 +293,22 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
         return Err(Failure::Sim(anyhow!("every value of the sweep failed")));
     }
     Ok(EXIT_SIM)
+}
+
+/// The columns of the sweep's table (terminal and report).
+fn table_header(key: &str) -> Vec<String> {
+    [
+        key,
+        "charge [Ah]",
+        "SOC end",
+        "in-regulation [%]",
+        "mean [W]",
+        "peak [W]",
+        "max battery [V]",
+        "verdict",
+    ]
+    .map(String::from)
+    .to_vec()
 }
 
 fn table_row(value: &str, m: &Summary) -> Vec<String> {
@@ -328,13 +358,22 @@ fn open_sweep_csv(out: &Path, key: &str) -> anyhow::Result<OrderedWriter> {
     })
 }
 
-/// Writes `sweep.png`/`.svg` (each to a temporary name, then renamed).
+/// Writes one file of the sweep folder under a temporary name, then renames it into place.
+fn write_renamed(out: &Path, name: &str, bytes: &[u8]) -> anyhow::Result<()> {
+    let tmp = out.join(format!(".{name}.partial"));
+    let dst = out.join(name);
+    fs::write(&tmp, bytes).with_context(|| format!("could not write '{}'", tmp.display()))?;
+    fs::rename(&tmp, &dst).with_context(|| format!("could not write '{}'", dst.display()))?;
+    Ok(())
+}
+
+/// Writes `sweep.png`/`.svg` and returns the SVG text.
 fn write_chart(
     out: &Path,
     key: &str,
     values: &[String],
     done: &[(usize, Session)],
-) -> anyhow::Result<()> {
+) -> anyhow::Result<String> {
     let numeric: Option<Vec<f64>> = done
         .iter()
         .map(|(k, _)| values[*k].parse::<f64>().ok().filter(|v| v.is_finite()))
@@ -362,16 +401,9 @@ fn write_chart(
         },
         &format!("Sweep of {key}: {} / {}", first.setup, first.profile),
     )?;
-    for (name, bytes) in [
-        ("sweep.png", chart.png.as_slice()),
-        ("sweep.svg", chart.svg.as_bytes()),
-    ] {
-        let tmp = out.join(format!(".{name}.partial"));
-        let dst = out.join(name);
-        fs::write(&tmp, bytes).with_context(|| format!("could not write '{}'", tmp.display()))?;
-        fs::rename(&tmp, &dst).with_context(|| format!("could not write '{}'", dst.display()))?;
-    }
-    Ok(())
+    write_renamed(out, "sweep.png", &chart.png)?;
+    write_renamed(out, "sweep.svg", chart.svg.as_bytes())?;
+    Ok(chart.svg)
 }
 
 #[cfg(test)]
