@@ -66,6 +66,7 @@ impl Failure {
 
 /// Runs a parsed command line and returns the exit code.
 pub fn run(cli: Cli) -> i32 {
+    crate::output::rundir::install_interrupt_cleanup();
     let outcome = match cli.command {
         Command::Run(a) => crate::studies::run::run(&a),
         Command::Check(a) => crate::studies::check::run(&a),

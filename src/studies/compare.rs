@@ -49,6 +49,12 @@ pub struct CompareArgs {
     /// Skip the chart.
     #[arg(long)]
     pub no_plot: bool,
+    /// Replace the output folder even if crankcharge did not write it (its files are lost).
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar (it is drawn only on a terminal, for work longer than about 2 s).
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
 }
 
 impl CompareArgs {
@@ -59,6 +65,8 @@ impl CompareArgs {
             duration: self.duration,
             set: self.set.clone(),
             fidelity: self.fidelity,
+            force: self.force,
+            quiet: self.quiet,
         }
     }
 }
@@ -101,7 +109,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("compare"));
-    let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
+    let staging = Staging::prepare(&out, "compare", a.force).map_err(|e| Failure::Input(e.into()))?;
 
     let results: Vec<Result<Session, Failure>> = jobs
         .par_iter()

@@ -199,7 +199,7 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("montecarlo"));
-    let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
+    let staging = Staging::prepare(&out, "montecarlo", a.session.force).map_err(|e| Failure::Input(e.into()))?;
     let base_settings = settings_from(&a.session);
 
     let bar = if std::io::stderr().is_terminal() {

@@ -31,6 +31,12 @@ pub struct SessionArgs {
     /// Model fidelity: fast (default) or detailed.
     #[arg(long, value_enum, default_value = "fast")]
     pub fidelity: FidelityArg,
+    /// Replace the output folder even if crankcharge did not write it (its files are lost).
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar (it is drawn only on a terminal, for work longer than about 2 s).
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
 }
 
 /// Fidelity as a command-line word.
@@ -104,7 +110,7 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
             .map_or_else(|| "demo".to_string(), |_| sc.setup_source.stem());
         PathBuf::from("outputs").join(stem)
     });
-    let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
+    let staging = Staging::prepare(&out, "run", a.session.force).map_err(|e| Failure::Input(e.into()))?;
     let session = session_or_failure(&sc, &settings_from(&a.session))?;
     write_run(&staging, &session, !a.no_plot).map_err(Failure::Other)?;
     let dir = staging.commit().map_err(|e| Failure::Other(e.into()))?;

@@ -22,6 +22,7 @@ use rayon::prelude::*;
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
 use crate::cli::{say, Failure, EXIT_OK, EXIT_SIM};
 use crate::output::plot::{self, SweepSeries};
+use crate::output::rundir;
 use crate::scenario::load::Override;
 use crate::scenario::Scenario;
 
@@ -195,6 +196,7 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("sweep"));
+    rundir::claim(&out, a.session.force).map_err(|e| Failure::Input(e.into()))?;
     let csv_path = out.join("sweep.csv");
     let writer = open_sweep_csv(&out, &key).map_err(Failure::Input)?;
     let writer = Mutex::new(writer);
@@ -303,6 +305,9 @@ fn open_sweep_csv(out: &Path, key: &str) -> anyhow::Result<OrderedWriter> {
         ));
     }
     fs::create_dir_all(out).with_context(|| format!("could not create '{}'", out.display()))?;
+    let marker = out.join(rundir::MARKER);
+    fs::write(&marker, rundir::marker_text("sweep"))
+        .with_context(|| format!("could not write '{}'", marker.display()))?;
     for stale in ["sweep.png", "sweep.svg"] {
         let p = out.join(stale);
         if p.exists() {
@@ -368,8 +373,18 @@ fn write_chart(
     ] {
         let tmp = out.join(format!(".{name}.partial"));
         let dst = out.join(name);
-        fs::write(&tmp, bytes).with_context(|| format!("could not write '{}'", tmp.display()))?;
-        fs::rename(&tmp, &dst).with_context(|| format!("could not write '{}'", dst.display()))?;
+        rundir::register(&tmp);
+        let written = fs::write(&tmp, bytes)
+            .with_context(|| format!("could not write '{}'", tmp.display()))
+            .and_then(|()| {
+                fs::rename(&tmp, &dst)
+                    .with_context(|| format!("could not write '{}'", dst.display()))
+            });
+        if written.is_err() {
+            let _ = fs::remove_file(&tmp);
+        }
+        rundir::unregister(&tmp);
+        written?;
     }
     Ok(())
 }
