@@ -2,6 +2,7 @@
 
 pub mod events;
 pub mod fit;
+pub mod invariants;
 pub mod stats;
 pub mod summary;
 pub mod trace;

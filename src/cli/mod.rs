@@ -101,7 +101,7 @@ pub fn parse_duration(s: &str) -> Result<f64, String> {
         other => return Err(format!("unknown duration unit '{other}' (use s, min or h)")),
     };
     let secs = v * k;
-    if !(secs.is_finite() && secs > 0.0 && secs <= 7.0 * 86_400.0) {
+    if !(secs.is_finite() && secs > 0.0 && secs <= crate::scenario::limits::MAX_SESSION_S) {
         return Err(format!(
             "duration '{s}' out of range: allowed > 0 s and <= 7 days"
         ));

@@ -2,6 +2,7 @@
 
 pub mod demo;
 pub mod error;
+pub mod limits;
 pub mod load;
 pub mod profile;
 pub mod ronpath;

@@ -111,10 +111,16 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         .unwrap_or_else(|| PathBuf::from("outputs").join("compare"));
     let staging = Staging::prepare(&out, "compare", a.force).map_err(|e| Failure::Input(e.into()))?;
 
+    let bar = super::progress::CountBar::new(jobs.len() as u64, "compare", "runs", a.quiet);
     let results: Vec<Result<Session, Failure>> = jobs
         .par_iter()
-        .map(|j| session_or_failure(&j.scenario, &settings_from(&j.settings)))
+        .map(|j| {
+            let r = session_or_failure(&j.scenario, &settings_from(&j.settings));
+            bar.inc();
+            r
+        })
         .collect();
+    bar.finish();
 
     let mut done: Vec<(&Job, Session)> = Vec::new();
     let mut failed: Vec<String> = Vec::new();

@@ -6,6 +6,7 @@ pub mod check_usb;
 pub mod compare;
 pub mod fit;
 pub mod montecarlo;
+pub mod progress;
 pub mod run;
 pub mod session;
 pub mod sweep;

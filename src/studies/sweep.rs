@@ -202,6 +202,12 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
     let writer = Mutex::new(writer);
 
     let settings = settings_from(&a.session);
+    let bar = super::progress::CountBar::new(
+        scenarios.len() as u64,
+        "sweep",
+        "values",
+        a.session.quiet,
+    );
     let results: Vec<Outcome> = scenarios
         .par_iter()
         .enumerate()
@@ -216,9 +222,11 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
                 .lock()
                 .unwrap_or_else(std::sync::PoisonError::into_inner)
                 .add(k, row);
+            bar.inc();
             r
         })
         .collect();
+    bar.finish();
     let writer = writer
         .into_inner()
         .unwrap_or_else(std::sync::PoisonError::into_inner);
