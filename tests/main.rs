@@ -5,5 +5,6 @@ mod common;
 mod fidelity;
 mod hardening;
 mod run_cli;
+mod safety;
 mod studies_cli;
 mod validation;
