@@ -216,7 +216,15 @@ fn finding_2_ordered_settings_are_refused_at_load_with_the_relation() {
         let stderr = run_code(
             &wd,
             &[
-                "run", setup, "--set", set, "--duration", "10", "--no-plot", "--out", "o",
+                "run",
+                setup,
+                "--set",
+                set,
+                "--duration",
+                "10",
+                "--no-plot",
+                "--out",
+                "o",
             ],
             2,
         );
@@ -342,7 +350,10 @@ fn finding_3_soc_stays_within_zero_and_one_on_lfp_linear_near_full_and_small() {
         let s = summary(&wd, "o");
         let soc_end = s["soc_end"].as_f64().expect("soc_end");
         // SOC is a fraction of the capacity: 0 empty, 1 full (definition).
-        assert!((0.0..=1.0).contains(&soc_end), "{sets:?}: soc_end {soc_end}");
+        assert!(
+            (0.0..=1.0).contains(&soc_end),
+            "{sets:?}: soc_end {soc_end}"
+        );
         let top = max_trace_soc(&wd, "o");
         assert!(top <= 1.0, "{sets:?}: trace SOC reached {top}");
     }
@@ -406,7 +417,14 @@ fn finding_3_a_tolerance_too_loose_for_the_ledger_is_refused_with_its_range() {
     let wd = WorkDir::new();
     let stderr = run_code(
         &wd,
-        &["run", "--set", "solver.rtol=4e-3", "--no-plot", "--out", "o"],
+        &[
+            "run",
+            "--set",
+            "solver.rtol=4e-3",
+            "--no-plot",
+            "--out",
+            "o",
+        ],
         2,
     );
     assert!(
@@ -417,7 +435,14 @@ fn finding_3_a_tolerance_too_loose_for_the_ledger_is_refused_with_its_range() {
     // At the loosest accepted tolerance the ledger holds on the demo.
     run_ok(
         &wd,
-        &["run", "--set", "solver.rtol=2e-4", "--no-plot", "--out", "o"],
+        &[
+            "run",
+            "--set",
+            "solver.rtol=2e-4",
+            "--no-plot",
+            "--out",
+            "o",
+        ],
     );
     let err = summary(&wd, "o")["energy_balance_error"].as_f64().unwrap();
     // Source: DESIGN.md §3, the ledger's closure bound (0.1 %).
@@ -531,8 +556,7 @@ fn finding_5_the_current_folder_and_its_parents_are_refused_before_simulating() 
         );
         assert!(leftovers(wd.dir.path()).is_empty(), "--out {out}");
         assert!(
-            leftovers(wd.dir.path().parent().expect("parent")).is_empty()
-                || out != "..",
+            leftovers(wd.dir.path().parent().expect("parent")).is_empty() || out != "..",
             "--out .. left a staging folder"
         );
     }
@@ -662,10 +686,8 @@ fn finding_7_memory_does_not_grow_with_the_step_count() {
         ],
     );
     assert_eq!(code, Some(0));
-    let (code, plain_kb) = peak_rss_kb(
-        &wd,
-        &["run", "--duration", "20", "--no-plot", "--out", "p"],
-    );
+    let (code, plain_kb) =
+        peak_rss_kb(&wd, &["run", "--duration", "20", "--no-plot", "--out", "p"]);
     assert_eq!(code, Some(0));
     assert!(plain_kb > 0, "VmHWM was read");
     assert!(
@@ -688,7 +710,10 @@ fn finding_8_a_profile_longer_than_seven_days_is_refused_with_the_limit() {
         &one.repeat(10_000),
         1,
     );
-    assert_ne!(long, steady, "the steady profile has the segment this test replaces");
+    assert_ne!(
+        long, steady,
+        "the steady profile has the segment this test replaces"
+    );
     std::fs::write(wd.path("long.ron"), long).expect("write");
     let started = Instant::now();
     let stderr = run_code(

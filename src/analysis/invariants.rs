@@ -39,7 +39,7 @@ pub fn check<S: Serialize>(
     ledger_error: f64,
     figures: &S,
 ) -> Result<(), Broken> {
-    let outside = |soc: f64| !(soc >= -SOC_SLACK && soc <= 1.0 + SOC_SLACK);
+    let outside = |soc: f64| !(-SOC_SLACK..=1.0 + SOC_SLACK).contains(&soc);
     if let Some(row) = trace.rows.iter().find(|r| outside(r.soc)) {
         return Err(Broken::Soc {
             soc: row.soc,
@@ -52,7 +52,7 @@ pub fn check<S: Serialize>(
             t_s: duration_s,
         });
     }
-    if !(ledger_error <= LEDGER_BOUND) {
+    if ledger_error.is_nan() || ledger_error > LEDGER_BOUND {
         return Err(Broken::Ledger {
             error: ledger_error,
             bound: LEDGER_BOUND,

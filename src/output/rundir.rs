@@ -62,7 +62,8 @@ pub enum OutputError {
 static LIVE: Mutex<Vec<PathBuf>> = Mutex::new(Vec::new());
 
 fn live() -> MutexGuard<'static, Vec<PathBuf>> {
-    LIVE.lock().unwrap_or_else(std::sync::PoisonError::into_inner)
+    LIVE.lock()
+        .unwrap_or_else(std::sync::PoisonError::into_inner)
 }
 
 /// Registers a path to remove on interrupt.

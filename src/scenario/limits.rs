@@ -21,7 +21,7 @@ pub const WARN_IMPLIED_STEPS: f64 = 1e6;
 pub fn check(sc: &Scenario, duration_s: Option<f64>) -> Result<Option<String>, InputError> {
     let total = sc.profile.total_duration_s();
     let length = duration_s.unwrap_or(total);
-    if duration_s.is_none() && !(total <= MAX_SESSION_S) {
+    if duration_s.is_none() && (total.is_nan() || total > MAX_SESSION_S) {
         return Err(InputError::Range {
             place: place_of(
                 &sc.profile_source,

@@ -109,7 +109,8 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("compare"));
-    let staging = Staging::prepare(&out, "compare", a.force).map_err(|e| Failure::Input(e.into()))?;
+    let staging =
+        Staging::prepare(&out, "compare", a.force).map_err(|e| Failure::Input(e.into()))?;
 
     let bar = super::progress::CountBar::new(jobs.len() as u64, "compare", "runs", a.quiet);
     let results: Vec<Result<Session, Failure>> = jobs

@@ -14,9 +14,9 @@ use clap::Args;
 use serde::Serialize;
 
 use crate::analysis::fit::{fit_generator, GeneratorFit, Measurement};
-use crate::text::{excerpt, EXCERPT_CHARS};
 use crate::cli::{say, Failure, EXIT_OK};
 use crate::model::generator::COPPER_ALPHA_PER_K;
+use crate::text::{excerpt, EXCERPT_CHARS};
 
 /// Column names the file must have.
 pub const COLUMNS: [&str; 3] = ["rpm", "voltage_v", "current_a"];
@@ -109,11 +109,7 @@ fn report(name: &str, f: &GeneratorFit, winding_c: f64) -> FitReport {
 
 /// The header's column names for a message: each cut to a short excerpt, at most eight of them.
 fn found_columns(headers: &csv::StringRecord) -> String {
-    let mut names: Vec<String> = headers
-        .iter()
-        .take(8)
-        .map(|h| excerpt(h, 24))
-        .collect();
+    let mut names: Vec<String> = headers.iter().take(8).map(|h| excerpt(h, 24)).collect();
     if headers.len() > 8 {
         names.push(format!("… {} columns in all", headers.len()));
     }

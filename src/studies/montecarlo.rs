@@ -198,7 +198,8 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("montecarlo"));
-    let staging = Staging::prepare(&out, "montecarlo", a.session.force).map_err(|e| Failure::Input(e.into()))?;
+    let staging = Staging::prepare(&out, "montecarlo", a.session.force)
+        .map_err(|e| Failure::Input(e.into()))?;
     let base_settings = settings_from(&a.session);
 
     let bar = super::progress::CountBar::new(a.runs as u64, "montecarlo", "runs", a.session.quiet);

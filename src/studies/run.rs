@@ -132,7 +132,8 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
             .map_or_else(|| "demo".to_string(), |_| sc.setup_source.stem());
         PathBuf::from("outputs").join(stem)
     });
-    let staging = Staging::prepare(&out, "run", a.session.force).map_err(|e| Failure::Input(e.into()))?;
+    let staging =
+        Staging::prepare(&out, "run", a.session.force).map_err(|e| Failure::Input(e.into()))?;
     let session = session_with_bar(&sc, &settings_from(&a.session), a.session.quiet)?;
     write_run(&staging, &session, !a.no_plot).map_err(Failure::Other)?;
     let dir = staging.commit().map_err(|e| Failure::Other(e.into()))?;

@@ -4,13 +4,15 @@
 use std::time::Instant;
 
 use crate::analysis::events::{EventKind, OUT_OF_BAND_DETAIL};
+use crate::analysis::invariants;
 use crate::analysis::summary::{self, Summary, UsbSummary, Verdict};
 use crate::model::jitter::JitterTrack;
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
 use crate::simulate::plant::Plant;
-use crate::analysis::invariants;
-use crate::simulate::{simulate_watched, Fidelity, Method, Progress, SimError, SimOptions, SimResult};
+use crate::simulate::{
+    simulate_watched, Fidelity, Method, Progress, SimError, SimOptions, SimResult,
+};
 
 /// How to run a session beyond what the files say.
 #[derive(Debug, Clone, Copy, PartialEq)]

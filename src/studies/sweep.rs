@@ -202,12 +202,8 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
     let writer = Mutex::new(writer);
 
     let settings = settings_from(&a.session);
-    let bar = super::progress::CountBar::new(
-        scenarios.len() as u64,
-        "sweep",
-        "values",
-        a.session.quiet,
-    );
+    let bar =
+        super::progress::CountBar::new(scenarios.len() as u64, "sweep", "values", a.session.quiet);
     let results: Vec<Outcome> = scenarios
         .par_iter()
         .enumerate()
