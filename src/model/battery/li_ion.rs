@@ -239,3 +239,41 @@ pub fn band_of(w: &ChargeWindow, temp_c: f64) -> TempBand {
         TempBand::TooHot
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The acceptance ends exactly at full, is near 1 below 0.98, never rises with SOC, and
+    /// turns negative past full (the pull back that keeps SOC at or below 1).
+    #[test]
+    fn charge_acceptance_ends_at_full_and_pulls_back_past_it() {
+        assert_eq!(charge_acceptance(1.0), 0.0);
+        assert!(charge_acceptance(0.98) > 0.9999);
+        assert!((charge_acceptance(0.99) - (1.0 - (-5.0_f64).exp())).abs() < 1e-12);
+        assert!(charge_acceptance(1.0 + 1e-6) < 0.0);
+        let mut last = f64::INFINITY;
+        for k in 0..=1000 {
+            let a = charge_acceptance(f64::from(k) / 1000.0);
+            assert!(a <= last && (0.0..=1.0).contains(&a), "soc {k}/1000: {a}");
+            last = a;
+        }
+    }
+
+    /// Every built-in curve rises and ends at its chemistry's default CV voltage, so SOC 1 is
+    /// full at CV (the convention the charge acceptance and the CV rule rest on).
+    #[test]
+    fn built_in_curves_end_at_the_cv_voltage() {
+        for chem in [
+            Chemistry::Nmc,
+            Chemistry::Lco,
+            Chemistry::Nca,
+            Chemistry::Lfp,
+        ] {
+            let (soc, v) = builtin_ocv(chem);
+            assert_eq!(soc.len(), v.len());
+            assert!(v.windows(2).all(|w| w[1] > w[0]), "{chem:?} rises");
+            assert_eq!(v[v.len() - 1], default_cv_v_per_cell(chem), "{chem:?}");
+        }
+    }
+}
