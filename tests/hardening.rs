@@ -563,12 +563,12 @@ fn value_at(fl: &Field, u: f64) -> String {
 }
 
 /// Cases the property test draws: `CRANKCHARGE_PROPTEST_CASES` (read only by this test, for a
-/// longer local run), default 200, a few seconds.
+/// longer local run), default 100, a few seconds.
 fn property_cases() -> u32 {
     std::env::var("CRANKCHARGE_PROPTEST_CASES")
         .ok()
         .and_then(|v| v.parse().ok())
-        .unwrap_or(200)
+        .unwrap_or(100)
 }
 
 /// Random settings, each inside its field's documented range, on random shipped setups: the run

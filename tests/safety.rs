@@ -487,7 +487,7 @@ fn finding_4_interrupted_runs_and_studies_leave_no_staging_and_keep_the_previous
         "outputs/demo",
     ];
     let mut interrupted = 0;
-    for (k, ms) in [30u64, 120, 300, 700, 1200].iter().enumerate() {
+    for (k, ms) in [30u64, 150, 400, 900].iter().enumerate() {
         for signal in ["-INT", "-TERM"] {
             let args: &[&str] = if k % 2 == 0 { &long_run } else { &study };
             let code = interrupt(&wd, args, signal, Duration::from_millis(*ms));
@@ -509,8 +509,8 @@ fn finding_4_interrupted_runs_and_studies_leave_no_staging_and_keep_the_previous
         }
     }
     assert!(
-        interrupted >= 6,
-        "the handler ran in only {interrupted} of 10"
+        interrupted >= 5,
+        "the handler ran in only {interrupted} of 8"
     );
 }
 
