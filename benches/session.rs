@@ -1,11 +1,14 @@
 //! Session benchmark: wall time (and its equivalent per 10-minute session), steps, right-hand-side
 //! evaluations and ns per evaluation, Jacobians, LU decompositions and real-time factor per
-//! shipped setup, fidelity and integration method. Prints three tables; run with
-//! `cargo bench --bench session` (`-- --quick` for short spans).
+//! shipped setup, fidelity and integration method, and peak memory of long runs. Prints four
+//! tables; run with `cargo bench --bench session` (`-- --quick` for short spans, `-- --memory`
+//! for the memory table alone).
 //!
 //! 1. Whole sessions through the engine (events located, trace sampled, ledger), steady profile.
 //! 2. The golden 3-s detailed scenario against the committed scipy Radau reference: worst trace
 //!    error in units of the golden test's tolerance, and the error of the located UVLO release.
+//! 4. Peak resident memory (VmHWM) and wall time of whole `run` processes (the real binary, fast
+//!    fidelity, no charts) of 8 hours and 7 days, with the machine they ran on.
 //! 3. One 10-s stretch of the detailed demo (16 feedback states, the converter charging, no mode
 //!    changes) from the same state with every candidate crate, so the crates meet identical
 //!    equations; the last column is the end state's deviation from a tight-tolerance Radau5 run
@@ -82,9 +85,92 @@ fn scenario(setup: &str) -> Scenario {
 
 fn main() {
     let quick = std::env::args().any(|a| a == "--quick");
+    if std::env::args().any(|a| a == "--memory") {
+        memory(quick);
+        return;
+    }
     sessions(quick);
     accuracy();
     stretch(quick);
+    memory(quick);
+}
+
+/// Table 4: peak resident memory of whole `run` processes, read from /proc/PID/status (VmHWM)
+/// while they run (Linux; elsewhere the column says so). Long sessions keep a trace of at most
+/// 72 000 rows and Dopri5 segments of at most 4 096 steps, so memory should not grow with length.
+fn memory(quick: bool) {
+    let spans: &[(&str, &str)] = if quick {
+        &[("8 h", "8h")]
+    } else {
+        &[("8 h", "8h"), ("7 days", "168h")]
+    };
+    println!();
+    println!("Peak memory of whole `run` processes (fast fidelity, demo, --no-plot)");
+    println!("machine: {}", machine());
+    println!(
+        "{:<8} {:>10} {:>14}",
+        "session", "wall [s]", "peak RSS [MB]"
+    );
+    let out = tempfile::tempdir().expect("temp dir");
+    for (name, arg) in spans {
+        let started = Instant::now();
+        let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
+            .args(["run", "--duration", arg, "--no-plot", "--quiet", "--out"])
+            .arg(out.path().join("run"))
+            .stdout(std::process::Stdio::null())
+            .stderr(std::process::Stdio::null())
+            .spawn()
+            .expect("spawn crankcharge");
+        let status = format!("/proc/{}/status", child.id());
+        let mut peak_kb: Option<u64> = None;
+        let code = loop {
+            if let Some(kb) = std::fs::read_to_string(&status).ok().and_then(|t| {
+                t.lines()
+                    .find(|l| l.starts_with("VmHWM:"))
+                    .and_then(|l| l.split_whitespace().nth(1))
+                    .and_then(|v| v.parse::<u64>().ok())
+            }) {
+                peak_kb = Some(peak_kb.map_or(kb, |p| p.max(kb)));
+            }
+            if let Some(st) = child.try_wait().expect("wait") {
+                break st.code();
+            }
+            std::thread::sleep(std::time::Duration::from_millis(5));
+        };
+        let wall = started.elapsed().as_secs_f64();
+        let peak = peak_kb.map_or_else(
+            || "n/a".to_string(),
+            |kb| format!("{:.1}", kb as f64 / 1024.0),
+        );
+        let note = if code == Some(0) { "" } else { "  (failed)" };
+        println!("{name:<8} {wall:>10.2} {peak:>14}{note}");
+    }
+}
+
+/// The CPU model and core count, for the memory table.
+fn machine() -> String {
+    let model = std::fs::read_to_string("/proc/cpuinfo")
+        .ok()
+        .and_then(|t| {
+            t.lines()
+                .find(|l| l.starts_with("model name"))
+                .and_then(|l| l.split(':').nth(1))
+                .map(|m| m.trim().to_string())
+        })
+        .unwrap_or_else(|| "unknown CPU".into());
+    let cores = std::thread::available_parallelism().map_or(0, |n| n.get());
+    let mem = std::fs::read_to_string("/proc/meminfo")
+        .ok()
+        .and_then(|t| {
+            t.lines()
+                .find(|l| l.starts_with("MemTotal:"))
+                .and_then(|l| l.split_whitespace().nth(1))
+                .and_then(|v| v.parse::<f64>().ok())
+        })
+        .map_or_else(String::new, |kb| {
+            format!(", {:.0} GiB", kb / 1024.0 / 1024.0)
+        });
+    format!("{model}, {cores} cores{mem}, {}", std::env::consts::OS)
 }
 
 /// Columns compared with the scipy reference and the tolerance the golden test states for each

@@ -11,4 +11,5 @@ pub mod output;
 pub mod scenario;
 pub mod simulate;
 pub mod studies;
+pub mod text;
 pub mod units;

@@ -422,3 +422,241 @@ fn an_eight_hour_session_keeps_a_bounded_trace_on_a_regular_grid() {
     }
     assert!(s["energy_balance_error"].as_f64().unwrap() < 1e-3);
 }
+
+/// A setting the property test may draw: its `--set` key and the range its field accepts
+/// (from the field's `///` documentation in src/scenario/setup.rs and profile.rs), drawn
+/// log-uniformly when `log`.
+struct Field {
+    key: &'static str,
+    lo: f64,
+    hi: f64,
+    log: bool,
+}
+
+const fn f(key: &'static str, lo: f64, hi: f64, log: bool) -> Field {
+    Field { key, lo, hi, log }
+}
+
+/// The numeric fields of setups and profiles with their documented ranges.
+const FIELDS: &[Field] = &[
+    f("ambient_c", -30.0, 60.0, false),
+    f("drive.stages.0.ratio", 0.05, 100.0, true),
+    f("drive.stages.0.efficiency", 0.5, 1.0, false),
+    f("drive.crank_inertia_kg_m2", 1e-4, 1.0, true),
+    f("drive.flywheel_inertia_kg_m2", 0.0, 0.1, false),
+    f("drive.coulomb_friction_n_m", 0.0, 1.0, false),
+    f("drive.viscous_friction_n_m_s", 0.0, 0.01, false),
+    f("generator.back_emf_v_per_krpm", 0.1, 500.0, true),
+    f("generator.resistance_ohm", 0.001, 100.0, true),
+    f("generator.inductance_h", 0.0, 1.0, false),
+    f("generator.inertia_kg_m2", 1e-7, 0.1, true),
+    f("generator.brush_drop_v", 0.0, 3.0, false),
+    f(
+        "generator.winding_heat_capacity_j_per_k",
+        0.1,
+        10_000.0,
+        true,
+    ),
+    f("generator.winding_to_ambient_w_per_k", 0.001, 100.0, true),
+    f("diode.series_resistance_ohm", 0.0, 10.0, false),
+    f("converter.charge_current_a", 0.001, 50.0, true),
+    f("converter.max_duty", 0.1, 0.95, false),
+    f("converter.switch_drop_v", 0.0, 3.0, false),
+    f("converter.switch_resistance_ohm", 0.0, 5.0, false),
+    f("converter.catch_diode_drop_v", 0.0, 2.0, false),
+    f("converter.inductor_resistance_ohm", 0.0, 5.0, false),
+    f("converter.inductance_h", 1e-7, 0.1, true),
+    f("converter.switching_frequency_hz", 1e3, 5e6, true),
+    f("converter.switch_transition_s", 0.0, 1e-5, false),
+    f("converter.quiescent_current_a", 0.0, 0.5, false),
+    f("converter.uvlo_on_v", 0.0, 200.0, false),
+    f("converter.uvlo_off_v", 0.0, 200.0, false),
+    f("converter.soft_start_s", 0.0, 10.0, false),
+    f("converter.restart_delay_s", 0.0, 10.0, false),
+    f("converter.input_overvoltage_v", 1.0, 1000.0, true),
+    f("converter.input_capacitance_f", 1e-7, 1.0, true),
+    f("converter.output_capacitance_f", 1e-7, 1.0, true),
+    f("converter.cv_setpoint_v", 0.5, 1000.0, true),
+    f("converter.float_setpoint_v", 0.5, 1000.0, true),
+    f("converter.termination_current_a", 0.0, 50.0, false),
+    f("converter.absorption_exit_current_a", 0.0, 50.0, false),
+    f("converter.absorption_max_s", 1.0, 1e6, true),
+    f("battery.cells_series", 1.0, 200.0, true),
+    f("battery.cells_parallel", 1.0, 100.0, true),
+    f("battery.capacity_ah", 0.01, 2000.0, true),
+    f("battery.soc_start", 0.0, 1.0, false),
+    f("battery.cell_r0_ohm", 0.0, 1.0, false),
+    f("battery.cell_r1_ohm", 1e-6, 1.0, true),
+    f("battery.cell_c1_f", 1.0, 1e6, true),
+    f("battery.resistance_activation_k", 0.0, 10_000.0, false),
+    f("battery.coulombic_efficiency", 0.5, 1.0, false),
+    f("battery.charge_v_per_cell", 2.0, 4.5, false),
+    f("battery.float_v_per_cell", 2.0, 2.5, false),
+    f("battery.temp_comp_mv_per_c_per_cell", -10.0, 0.0, false),
+    f("battery.max_compensated_v_per_cell", 2.0, 2.8, false),
+    f("battery.min_compensated_v_per_cell", 1.9, 2.6, false),
+    f("battery.mass_kg", 0.001, 1000.0, true),
+    f("battery.specific_heat_j_per_kg_k", 100.0, 5000.0, true),
+    f("battery.surface_area_m2", 1e-4, 10.0, true),
+    f("battery.heat_transfer_w_per_m2_k", 0.1, 100.0, true),
+    f("battery.temp_start_c", -40.0, 80.0, false),
+    f("alerts.battery_overtemp_c", -40.0, 150.0, false),
+    f("alerts.min_in_regulation_fraction", 0.0, 1.0, false),
+    f("solver.rtol", 1e-10, 2e-4, true),
+    f("solver.atol", 1e-12, 1e-2, true),
+    f("solver.max_step_s", 1e-3, 1.0, true),
+    f("solver.trace_interval_s", 1e-3, 60.0, true),
+    f("profile.cadence_scale", 0.0, 10.0, false),
+    f("profile.segments.0.cadence_rpm", 0.0, 400.0, false),
+    f("profile.operator.peak_torque_n_m", 1.0, 200.0, true),
+    f("profile.operator.max_cadence_rpm", 30.0, 600.0, true),
+    f("profile.operator.critical_power_w", 5.0, 500.0, true),
+    f("profile.operator.w_prime_j", 0.0, 100_000.0, false),
+    f("profile.operator.peak_power_w", 5.0, 2000.0, true),
+    f(
+        "profile.operator.tracking_gain_n_m_per_rpm",
+        0.001,
+        10.0,
+        true,
+    ),
+    f("profile.operator.tracking_time_s", 0.05, 100.0, true),
+    f("profile.operator.spin_up_s", 0.0, 30.0, false),
+    f("profile.jitter.wander_rpm", 0.0, 100.0, false),
+    f("profile.jitter.wander_time_s", 0.5, 600.0, true),
+    f("profile.jitter.ripple_fraction", 0.0, 1.0, false),
+    f("profile.jitter.rest_length_s", 0.0, 600.0, false),
+];
+
+/// Integer fields: drawn values are rounded.
+const INTEGER_KEYS: [&str; 2] = ["battery.cells_series", "battery.cells_parallel"];
+
+/// Shipped setups the property test starts from.
+const BASES: [&str; 6] = [
+    "demo",
+    "demo-buck-boost",
+    "lead-acid-buck",
+    "lead-acid-direct",
+    "lfp-linear",
+    "usb-phone",
+];
+
+/// One drawn case: a base setup, up to four settings inside their ranges, and whether it runs at
+/// the detailed fidelity (one case in eight, over a shorter span).
+fn settings() -> impl Strategy<Value = (usize, Vec<(usize, f64)>, bool)> {
+    (
+        0..BASES.len(),
+        prop::collection::vec((0..FIELDS.len(), 0.0f64..=1.0), 1..=4),
+        prop::bool::weighted(0.125),
+    )
+}
+
+/// The value of a field at fraction `u` of its range (log-uniform where the range spans decades).
+fn value_at(fl: &Field, u: f64) -> String {
+    let v = if fl.log && fl.lo > 0.0 {
+        (fl.lo.ln() + u * (fl.hi.ln() - fl.lo.ln())).exp()
+    } else {
+        fl.lo + u * (fl.hi - fl.lo)
+    };
+    let v = v.clamp(fl.lo, fl.hi);
+    if INTEGER_KEYS.contains(&fl.key) {
+        format!("{}", v.round())
+    } else {
+        format!("{v:e}")
+    }
+}
+
+/// Cases the property test draws: `CRANKCHARGE_PROPTEST_CASES` (read only by this test, for a
+/// longer local run), default 100, a few seconds.
+fn property_cases() -> u32 {
+    std::env::var("CRANKCHARGE_PROPTEST_CASES")
+        .ok()
+        .and_then(|v| v.parse().ok())
+        .unwrap_or(100)
+}
+
+/// Random settings, each inside its field's documented range, on random shipped setups: the run
+/// never panics and exits 0, 1, 2 or 3 only; a refusal (2) names a field; a written result keeps
+/// SOC in [0, 1], its ledger within 0.1 % and every figure finite; a failure (3) writes nothing.
+/// Longer local run: `CRANKCHARGE_PROPTEST_CASES=2000 cargo test --release --test integration
+/// random_settings_inside_their_ranges`.
+#[test]
+fn random_settings_inside_their_ranges_never_panic_and_never_publish_a_broken_result() {
+    let cases = property_cases();
+    let config = Config {
+        cases,
+        failure_persistence: None,
+        ..Config::default()
+    };
+    let mut runner =
+        TestRunner::new_with_rng(config, TestRng::from_seed(RngAlgorithm::ChaCha, &[7u8; 32]));
+    let wd = WorkDir::new();
+    let counts = std::cell::RefCell::new([0usize; 4]);
+    let result = runner.run(&settings(), |(base, picks, detailed)| {
+        let sets: Vec<String> = picks
+            .iter()
+            .map(|&(k, u)| format!("{}={}", FIELDS[k].key, value_at(&FIELDS[k], u)))
+            .collect();
+        let _ = std::fs::remove_dir_all(wd.path("out"));
+        let mut args = vec![
+            "run",
+            BASES[base],
+            "--duration",
+            if detailed { "5" } else { "20" },
+            "--fidelity",
+            if detailed { "detailed" } else { "fast" },
+            "--no-plot",
+            "--out",
+            "out",
+        ];
+        for s in &sets {
+            args.extend(["--set", s.as_str()]);
+        }
+        let out = wd
+            .cmd()
+            .args(&args)
+            .timeout(Duration::from_secs(120))
+            .output()
+            .expect("binary runs");
+        let code = out.status.code().unwrap_or(-1);
+        let stderr = String::from_utf8_lossy(&out.stderr);
+        prop_assert!(
+            (0..=3).contains(&code),
+            "exit {code} for {args:?}; stderr: {stderr}"
+        );
+        prop_assert!(
+            !stderr.contains("panicked") && !stderr.contains("internal error"),
+            "panic for {args:?}: {stderr}"
+        );
+        counts.borrow_mut()[code as usize] += 1;
+        match code {
+            2 => prop_assert!(
+                stderr.contains("error") && stderr.contains('`'),
+                "a refusal must name the field: {args:?}: {stderr}"
+            ),
+            3 => prop_assert!(
+                !wd.path("out").exists(),
+                "a failed run wrote output: {args:?}"
+            ),
+            _ => {
+                let text = std::fs::read_to_string(wd.path("out/summary.json")).expect("summary");
+                let s: serde_json::Value = serde_json::from_str(&text).expect("JSON");
+                let soc = s["soc_end"].as_f64().unwrap_or(f64::NAN);
+                // SOC is a fraction of the capacity (definition); the ledger bound is DESIGN.md §3.
+                prop_assert!((0.0..=1.0).contains(&soc), "soc_end {soc} for {args:?}");
+                let err = s["energy_balance_error"].as_f64().unwrap_or(1.0);
+                prop_assert!(err < 1e-3, "ledger {err} for {args:?}");
+                assert_finite_csv(&wd.path("out/trace.csv"));
+            }
+        }
+        Ok(())
+    });
+    result.unwrap_or_else(|e| panic!("{e}"));
+    let counts = counts.into_inner();
+    println!("exit codes 0/1/2/3 over {cases} cases: {counts:?}");
+    // Both outcomes must occur, or the test proves little.
+    assert!(
+        counts[0] + counts[1] >= (cases / 5) as usize,
+        "too few runs accepted: {counts:?}"
+    );
+    assert!(counts[2] >= 1, "no refusal at all: {counts:?}");
+}

@@ -7,5 +7,6 @@ mod fidelity;
 mod hardening;
 mod report_browser;
 mod run_cli;
+mod safety;
 mod studies_cli;
 mod validation;

@@ -66,6 +66,7 @@ impl Failure {
 
 /// Runs a parsed command line and returns the exit code.
 pub fn run(cli: Cli) -> i32 {
+    crate::output::rundir::install_interrupt_cleanup();
     let outcome = match cli.command {
         Command::Run(a) => crate::studies::run::run(&a),
         Command::Check(a) => crate::studies::check::run(&a),
@@ -100,7 +101,7 @@ pub fn parse_duration(s: &str) -> Result<f64, String> {
         other => return Err(format!("unknown duration unit '{other}' (use s, min or h)")),
     };
     let secs = v * k;
-    if !(secs.is_finite() && secs > 0.0 && secs <= 7.0 * 86_400.0) {
+    if !(secs.is_finite() && secs > 0.0 && secs <= crate::scenario::limits::MAX_SESSION_S) {
         return Err(format!(
             "duration '{s}' out of range: allowed > 0 s and <= 7 days"
         ));

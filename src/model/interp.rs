@@ -39,6 +39,15 @@ impl Pchip {
         })
     }
 
+    /// A flat curve of value `v` over [0, 1].
+    pub fn constant(v: f64) -> Self {
+        Self {
+            x: vec![0.0, 1.0],
+            y: vec![v, v],
+            slope: vec![0.0, 0.0],
+        }
+    }
+
     /// Value and derivative at `t` (clamped to the knot range; derivative 0 outside).
     pub fn eval(&self, t: f64) -> (f64, f64) {
         let n = self.x.len();

@@ -2,6 +2,8 @@
 
 use std::fmt;
 
+use crate::text::{excerpt, EXCERPT_CHARS};
+
 /// Where in an input a problem sits.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum Place {
@@ -21,7 +23,12 @@ impl fmt::Display for Place {
     fn fmt(&self, f: &mut fmt::Formatter<'_>) -> fmt::Result {
         match self {
             Place::File { file, line, col } => write!(f, "{file}:{line}:{col}"),
-            Place::Override { key, value } => write!(f, "--set {key}={value}"),
+            Place::Override { key, value } => write!(
+                f,
+                "--set {}={}",
+                excerpt(key, EXCERPT_CHARS),
+                excerpt(value, EXCERPT_CHARS)
+            ),
             Place::FileOnly { file } => write!(f, "{file}"),
         }
     }
@@ -30,24 +37,24 @@ impl fmt::Display for Place {
 /// A bad input (exit code 2 at the edge).
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum InputError {
-    #[error("could not read '{path}': {reason}")]
+    #[error("could not read '{}': {reason}", excerpt(.path, 4 * EXCERPT_CHARS))]
     Read { path: String, reason: String },
-    #[error("{place}: RON syntax error: {message}")]
+    #[error("{place}: RON syntax error: {}", excerpt(.message, 4 * EXCERPT_CHARS))]
     Syntax { place: Place, message: String },
-    #[error("{place}: field `{path}`: {message}")]
+    #[error("{place}: field `{}`: {}", excerpt(.path, EXCERPT_CHARS), excerpt(.message, 4 * EXCERPT_CHARS))]
     Field {
         place: Place,
         path: String,
         message: String,
     },
-    #[error("{place}: `{path}` = {value} is out of range; allowed {allowed}")]
+    #[error("{place}: `{}` = {} is out of range; allowed {allowed}", excerpt(.path, EXCERPT_CHARS), excerpt(.value, EXCERPT_CHARS))]
     Range {
         place: Place,
         path: String,
         value: String,
         allowed: String,
     },
-    #[error("--set {key}: {message}")]
+    #[error("--set {}: {}", excerpt(.key, EXCERPT_CHARS), excerpt(.message, 4 * EXCERPT_CHARS))]
     Override { key: String, message: String },
     #[error("{0}")]
     Usage(String),

@@ -3,12 +3,17 @@
 
 use serde::de::DeserializeOwned;
 
+use crate::text::excerpt;
+
 use super::demo;
 use super::error::{InputError, Place};
 use super::profile::Profile;
 use super::ronpath::{self, Segment};
 use super::setup::Setup;
 use super::validate::{self, Violation};
+
+/// Longest parser message quoted (it may echo the input, e.g. an unknown field's name).
+const MESSAGE_CHARS: usize = 4 * crate::text::EXCERPT_CHARS;
 
 /// Prefix that routes an override to the profile file.
 pub const PROFILE_PREFIX: &str = "profile.";
@@ -176,7 +181,7 @@ fn parse_with<T: DeserializeOwned>(
     let mut de =
         ron::Deserializer::from_str_with_options(&text, opts).map_err(|e| InputError::Syntax {
             place: place_at(src, &text, &paths, e.position.line, e.position.col),
-            message: e.code.to_string(),
+            message: excerpt(&e.code.to_string(), MESSAGE_CHARS),
         })?;
     let parsed: Result<T, _> = serde_path_to_error::deserialize(&mut de);
     match parsed {
@@ -185,7 +190,10 @@ fn parse_with<T: DeserializeOwned>(
                 let se = de.span_error(e);
                 return Err(InputError::Syntax {
                     place: place_at(src, &text, &paths, se.position.line, se.position.col),
-                    message: format!("{} (text after the end of the value)", se.code),
+                    message: format!(
+                        "{} (text after the end of the value)",
+                        excerpt(&se.code.to_string(), MESSAGE_CHARS)
+                    ),
                 });
             }
             Ok((v, text))
@@ -195,7 +203,7 @@ fn parse_with<T: DeserializeOwned>(
             let inner = e.into_inner();
             let se = de.span_error(inner.clone());
             let place = place_at(src, &text, &paths, se.position.line, se.position.col);
-            let message = inner.to_string();
+            let message = excerpt(&inner.to_string(), MESSAGE_CHARS);
             if matches!(inner, ron::Error::ExpectedDifferentStructName { .. })
                 || path.is_empty()
                 || path == "?"

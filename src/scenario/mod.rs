@@ -3,6 +3,7 @@
 pub mod alerts;
 pub mod demo;
 pub mod error;
+pub mod limits;
 pub mod load;
 pub mod profile;
 pub mod ronpath;

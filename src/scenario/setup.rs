@@ -436,7 +436,28 @@ pub struct Battery {
     /// Li-ion charge temperature window.
     #[serde(default)]
     pub charge_window: ChargeWindow,
+    /// Li-ion: the cell's open-circuit voltage against SOC (2 … 50 points, SOC from 0 to 1 and
+    /// OCV both strictly increasing, each 1.5 … 4.6 V). SOC 1 is full at the top point, which must
+    /// be at least the CV voltage. Default: the chemistry's built-in curve.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ocv_curve: Option<Vec<OcvPoint>>,
 }
+
+/// One point of a Li-ion cell's open-circuit voltage curve.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields)]
+pub struct OcvPoint {
+    /// State of charge (0 … 1).
+    pub soc: f64,
+    /// Cell open-circuit voltage at that SOC, V (1.5 … 4.6).
+    pub ocv_v: f64,
+}
+
+/// Lead-acid: default upper clamp of the temperature-compensated limit, V/cell (the model's
+/// default for `max_compensated_v_per_cell`).
+pub const DEFAULT_MAX_COMPENSATED_V: f64 = 2.50;
+/// Lead-acid: default lower clamp of the temperature-compensated limit, V/cell.
+pub const DEFAULT_MIN_COMPENSATED_V: f64 = 2.20;
 
 fn one_u32() -> u32 {
     1

@@ -24,6 +24,11 @@ use super::transitions::{apply, due, Transition};
 /// on the detailed network steps in microseconds (benchmark only), hence the shorter bound.
 const MAX_SEGMENT_FAST_S: f64 = 10.0;
 const MAX_SEGMENT_EXPLICIT_DETAILED_S: f64 = 0.05;
+/// Most Dopri5 steps in one segment: the segment's steps and continuous output are held until it
+/// is walked (about 2 kB a step), so a tiny step limit or tolerance must not grow memory with
+/// the step count; a segment that reaches this many steps ends there and the next one goes on
+/// (a restart costs two evaluations). Shipped sessions take about 100 steps per 10-s segment.
+const MAX_SEGMENT_STEPS: usize = 4096;
 /// Located switching times are within this of the true crossing, s.
 const EVENT_TOL_S: f64 = 1e-7;
 /// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
@@ -283,6 +288,8 @@ struct StepEnd {
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Stop {
     Due,
+    /// The segment holds [`MAX_SEGMENT_STEPS`] steps: it ends at the last one.
+    Full,
     /// The state left the physical range at this time.
     Bad(f64, &'static str),
 }
@@ -338,6 +345,10 @@ impl System<f64, State> for Rhs<'_> {
             self.rec.stop = Some(Stop::Due);
             return true;
         }
+        if self.rec.steps.len() >= MAX_SEGMENT_STEPS {
+            self.rec.stop = Some(Stop::Full);
+            return true;
+        }
         false
     }
 }
@@ -362,6 +373,16 @@ pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> Stat
 
 /// Runs one session.
 pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult, SimError> {
+    simulate_watched(plant, y0, opts, None)
+}
+
+/// Runs one session, storing the simulated time reached in `progress` after every segment.
+pub fn simulate_watched(
+    plant: &Plant,
+    y0: State,
+    opts: &SimOptions,
+    progress: Option<&super::Progress>,
+) -> Result<SimResult, SimError> {
     let t_end = opts.duration_s;
     let mut time_events: Vec<f64> = plant
         .segment_boundaries()
@@ -477,6 +498,9 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         }
         t = end.t;
         y = end.y;
+        if let Some(p) = progress {
+            p.set(t);
+        }
 
         // Time events at t: rests start or end.
         let resting = plant.jitter.resting(t);
@@ -694,7 +718,11 @@ fn explicit_segment(
         y_a = step.y;
     }
     Ok(SegmentEnd {
-        t: t_stop,
+        t: if rec.stop == Some(Stop::Full) {
+            rec.steps[n - 1].t
+        } else {
+            t_stop
+        },
         y: last_y,
         h_last: h_last.max(1e-6),
         located: None,

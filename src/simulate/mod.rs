@@ -3,9 +3,11 @@
 pub mod engine;
 pub mod observe;
 pub mod plant;
+pub mod progress;
 pub mod state;
 pub mod stiff;
 pub mod transitions;
 pub mod usb_port;
 
-pub use engine::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};
+pub use engine::{simulate, simulate_watched, Fidelity, Method, SimError, SimOptions, SimResult};
+pub use progress::Progress;

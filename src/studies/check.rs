@@ -197,6 +197,8 @@ pub fn run(a: &CheckArgs) -> Result<i32, Failure> {
         duration: None,
         set: a.set.clone(),
         fidelity: FidelityArg::Fast,
+        force: false,
+        quiet: true,
     };
     let sc = scenario_from(a.setup.as_deref(), &sa)?;
     let plant = build_plant(&sc)?;

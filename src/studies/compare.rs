@@ -50,6 +50,12 @@ pub struct CompareArgs {
     /// Skip the chart.
     #[arg(long)]
     pub no_plot: bool,
+    /// Replace the output folder even if crankcharge did not write it (its files are lost).
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar (it is drawn only on a terminal, for work longer than about 2 s).
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
 }
 
 impl CompareArgs {
@@ -60,6 +66,8 @@ impl CompareArgs {
             duration: self.duration,
             set: self.set.clone(),
             fidelity: self.fidelity,
+            force: self.force,
+            quiet: self.quiet,
         }
     }
 }
@@ -102,12 +110,19 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("compare"));
-    let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
+    let staging =
+        Staging::prepare(&out, "compare", a.force).map_err(|e| Failure::Input(e.into()))?;
 
+    let bar = super::progress::CountBar::new(jobs.len() as u64, "compare", "runs", a.quiet);
     let results: Vec<Result<Session, Failure>> = jobs
         .par_iter()
-        .map(|j| session_or_failure(&j.scenario, &settings_from(&j.settings)))
+        .map(|j| {
+            let r = session_or_failure(&j.scenario, &settings_from(&j.settings));
+            bar.inc();
+            r
+        })
         .collect();
+    bar.finish();
 
     let mut done: Vec<(&Job, Session)> = Vec::new();
     let mut failed: Vec<String> = Vec::new();

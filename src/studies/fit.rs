@@ -16,6 +16,7 @@ use serde::Serialize;
 use crate::analysis::fit::{fit_generator, GeneratorFit, Measurement};
 use crate::cli::{say, Failure, EXIT_OK};
 use crate::model::generator::COPPER_ALPHA_PER_K;
+use crate::text::{excerpt, EXCERPT_CHARS};
 
 /// Column names the file must have.
 pub const COLUMNS: [&str; 3] = ["rpm", "voltage_v", "current_a"];
@@ -106,6 +107,15 @@ fn report(name: &str, f: &GeneratorFit, winding_c: f64) -> FitReport {
     }
 }
 
+/// The header's column names for a message: each cut to a short excerpt, at most eight of them.
+fn found_columns(headers: &csv::StringRecord) -> String {
+    let mut names: Vec<String> = headers.iter().take(8).map(|h| excerpt(h, 24)).collect();
+    if headers.len() > 8 {
+        names.push(format!("… {} columns in all", headers.len()));
+    }
+    excerpt(&names.join(", "), 2 * EXCERPT_CHARS)
+}
+
 /// Reads the measurement CSV; errors name the file, line and column.
 pub fn parse_measurements(name: &str, text: &str) -> anyhow::Result<Vec<Measurement>> {
     let mut rdr = csv::ReaderBuilder::new()
@@ -123,7 +133,7 @@ pub fn parse_measurements(name: &str, text: &str) -> anyhow::Result<Vec<Measurem
             find(c).ok_or_else(|| {
                 anyhow!(
                     "{name}: no column `{c}` in the header (found: {}); the file needs columns {}",
-                    headers.iter().collect::<Vec<_>>().join(", "),
+                    found_columns(&headers),
                     COLUMNS.join(", ")
                 )
             })
@@ -141,16 +151,18 @@ pub fn parse_measurements(name: &str, text: &str) -> anyhow::Result<Vec<Measurem
             let cell = rec.get(i).unwrap_or("");
             let v: f64 = cell.parse().map_err(|_| {
                 anyhow!(
-                    "{name}:{line}: column {} (`{}`): '{cell}' is not a number",
+                    "{name}:{line}: column {} (`{}`): '{}' is not a number",
                     i + 1,
-                    COLUMNS[k]
+                    COLUMNS[k],
+                    excerpt(cell, EXCERPT_CHARS)
                 )
             })?;
             if !v.is_finite() {
                 return Err(anyhow!(
-                    "{name}:{line}: column {} (`{}`): '{cell}' is not a finite number",
+                    "{name}:{line}: column {} (`{}`): '{}' is not a finite number",
                     i + 1,
-                    COLUMNS[k]
+                    COLUMNS[k],
+                    excerpt(cell, EXCERPT_CHARS)
                 ));
             }
             vals[k] = v;

@@ -7,6 +7,7 @@ pub mod compare;
 pub mod fit;
 pub mod montecarlo;
 pub mod pages;
+pub mod progress;
 pub mod run;
 pub mod session;
 pub mod sweep;

@@ -9,12 +9,11 @@
 //! so `runs.csv` and `montecarlo.json` are the same for the same seed whatever the thread count.
 //! A run that fails is counted and listed; the study fails (exit 3) only if every run fails.
 
-use std::io::{IsTerminal, Write};
+use std::io::Write;
 use std::path::PathBuf;
 
 use anyhow::anyhow;
 use clap::Args;
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rand::rngs::StdRng;
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
@@ -206,21 +205,11 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("montecarlo"));
-    let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
+    let staging = Staging::prepare(&out, "montecarlo", a.session.force)
+        .map_err(|e| Failure::Input(e.into()))?;
     let base_settings = settings_from(&a.session);
 
-    let bar = if std::io::stderr().is_terminal() {
-        let b = ProgressBar::with_draw_target(Some(a.runs as u64), ProgressDrawTarget::stderr());
-        if let Ok(style) = ProgressStyle::with_template(
-            "{prefix} [{bar:32}] {pos}/{len} runs, {elapsed} (eta {eta})",
-        ) {
-            b.set_style(style.progress_chars("=> "));
-        }
-        b.set_prefix("montecarlo");
-        b
-    } else {
-        ProgressBar::hidden()
-    };
+    let bar = super::progress::CountBar::new(a.runs as u64, "montecarlo", "runs", a.session.quiet);
     let results: Vec<(u64, Draw, Result<Summary, Failure>)> = (0..a.runs)
         .into_par_iter()
         .map(|i| {
@@ -231,11 +220,11 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
             rs.seed = Some(seed);
             rs.cadence_offset_rpm = draw.cadence_offset_rpm;
             let r = session_or_failure(&run_sc, &rs).map(|s| s.summary);
-            bar.inc(1);
+            bar.inc();
             (seed, draw, r)
         })
         .collect();
-    bar.finish_and_clear();
+    bar.finish();
 
     let mut header = vec!["seed".to_string()];
     header.extend(SCALAR_KEYS.iter().map(|k| k.to_string()));

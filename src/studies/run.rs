@@ -10,10 +10,10 @@ use crate::analysis::summary::{Summary, MARGINAL};
 use crate::cli::{parse_duration, say, Failure, EXIT_FLAGGED, EXIT_OK};
 use crate::output::{csv, json, report, rundir::Staging};
 use crate::scenario::load::{InputKind, Override};
-use crate::scenario::{load_scenario, Scenario, SourceText};
-use crate::simulate::Fidelity;
+use crate::scenario::{limits, load_scenario, Scenario, SourceText};
+use crate::simulate::{Fidelity, Method};
 
-use super::session::{run_session, RunSettings, Session, SessionError};
+use super::session::{run_session, run_session_watched, RunSettings, Session, SessionError};
 
 /// Options shared by every command that runs sessions.
 #[derive(Debug, Clone, Args)]
@@ -33,6 +33,12 @@ pub struct SessionArgs {
     /// Model fidelity: fast (default) or detailed.
     #[arg(long, value_enum, default_value = "fast")]
     pub fidelity: FidelityArg,
+    /// Replace the output folder even if crankcharge did not write it (its files are lost).
+    #[arg(long)]
+    pub force: bool,
+    /// No progress bar (it is drawn only on a terminal, for work longer than about 2 s).
+    #[arg(long, short = 'q')]
+    pub quiet: bool,
 }
 
 /// Fidelity as a command-line word.
@@ -75,7 +81,10 @@ pub fn scenario_from(setup: Option<&str>, s: &SessionArgs) -> Result<Scenario, F
         SourceText::resolve(setup, InputKind::Setup).map_err(|e| Failure::Input(e.into()))?;
     let profile_src = SourceText::resolve(s.profile.as_deref(), InputKind::Profile)
         .map_err(|e| Failure::Input(e.into()))?;
-    load_scenario(&setup_src, &profile_src, &s.set).map_err(|e| Failure::Input(e.into()))
+    let sc =
+        load_scenario(&setup_src, &profile_src, &s.set).map_err(|e| Failure::Input(e.into()))?;
+    super::progress::warn(limits::check(&sc, s.duration).map_err(|e| Failure::Input(e.into()))?);
+    Ok(sc)
 }
 
 /// Run settings from the shared options.
@@ -90,9 +99,28 @@ pub fn settings_from(s: &SessionArgs) -> RunSettings {
 
 /// Runs a session, classifying failures by exit code.
 pub fn session_or_failure(sc: &Scenario, rs: &RunSettings) -> Result<Session, Failure> {
-    run_session(sc, rs).map_err(|e| match e {
+    classify(sc, run_session(sc, rs))
+}
+
+/// Runs a session with a progress bar (see `progress::with_session_bar`), classifying failures.
+pub fn session_with_bar(sc: &Scenario, rs: &RunSettings, quiet: bool) -> Result<Session, Failure> {
+    let length = rs
+        .duration_s
+        .unwrap_or_else(|| sc.profile.total_duration_s());
+    super::progress::with_session_bar(quiet, length, |p| {
+        classify(
+            sc,
+            run_session_watched(sc, rs, Method::for_fidelity(rs.fidelity), Some(p)),
+        )
+    })
+}
+
+/// Failures by exit code: bad input 2, a failed or law-breaking simulation 3.
+fn classify(sc: &Scenario, r: Result<Session, SessionError>) -> Result<Session, Failure> {
+    r.map_err(|e| match e {
         SessionError::Setup(m) => Failure::Input(anyhow!("{}: {m}", sc.setup_source.name)),
         SessionError::Sim(s) => Failure::Sim(anyhow!("simulation failed: {s}")),
+        SessionError::Broken(b) => Failure::Sim(anyhow!("simulation failed: {b}")),
     })
 }
 
@@ -106,8 +134,9 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
             .map_or_else(|| "demo".to_string(), |_| sc.setup_source.stem());
         PathBuf::from("outputs").join(stem)
     });
-    let staging = Staging::prepare(&out).map_err(|e| Failure::Input(e.into()))?;
-    let session = session_or_failure(&sc, &settings_from(&a.session))?;
+    let staging =
+        Staging::prepare(&out, "run", a.session.force).map_err(|e| Failure::Input(e.into()))?;
+    let session = session_with_bar(&sc, &settings_from(&a.session), a.session.quiet)?;
     write_run(&staging, &sc, &session, !a.no_plot).map_err(Failure::Other)?;
     let dir = staging.commit().map_err(|e| Failure::Other(e.into()))?;
     report(&session, &dir);

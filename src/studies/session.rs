@@ -5,6 +5,7 @@ use std::time::Instant;
 
 use crate::analysis::episodes::{self, Timing};
 use crate::analysis::events::{Event, EventKind};
+use crate::analysis::invariants;
 use crate::analysis::summary::{self, Summary, UsbSummary, Verdict, MARGINAL};
 use crate::analysis::trace::Trace;
 use crate::model::jitter::JitterTrack;
@@ -13,7 +14,9 @@ use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
 use crate::simulate::observe::{REGULATION_CAUSES_COUNTED_ONLY, USB_OUT_OF_BAND};
 use crate::simulate::plant::Plant;
-use crate::simulate::{simulate, Fidelity, Method, SimError, SimOptions, SimResult};
+use crate::simulate::{
+    simulate_watched, Fidelity, Method, Progress, SimError, SimOptions, SimResult,
+};
 
 use super::check;
 
@@ -64,6 +67,9 @@ pub enum SessionError {
     Setup(String),
     #[error(transparent)]
     Sim(#[from] SimError),
+    /// The result breaks one of its own laws (analysis::invariants); nothing is written.
+    #[error(transparent)]
+    Broken(#[from] crate::analysis::invariants::Broken),
 }
 
 /// Runs one session and summarises it.
@@ -77,6 +83,16 @@ pub fn run_session_with(
     sc: &Scenario,
     rs: &RunSettings,
     method: Method,
+) -> Result<Session, SessionError> {
+    run_session_watched(sc, rs, method, None)
+}
+
+/// Runs one session, storing the simulated time reached in `progress` (for a progress bar).
+pub fn run_session_watched(
+    sc: &Scenario,
+    rs: &RunSettings,
+    method: Method,
+    progress: Option<&Progress>,
 ) -> Result<Session, SessionError> {
     let started = Instant::now();
     let seed = rs.seed.unwrap_or(sc.profile.seed);
@@ -108,7 +124,7 @@ pub fn run_session_with(
         b.soc_start,
         b.temp_start_c.unwrap_or(sc.setup.ambient_c),
     );
-    let result = simulate(&plant, y0, &opts)?;
+    let result = simulate_watched(&plant, y0, &opts, progress)?;
     if let Some(bad) = first_non_finite(&result) {
         return Err(SessionError::Sim(SimError::NonFinite {
             t_s: bad,
@@ -117,6 +133,13 @@ pub fn run_session_with(
     }
     let wall = started.elapsed().as_secs_f64();
     let summary = summarise(sc, &plant, &result, seed, rs.fidelity, wall);
+    invariants::check(
+        &result.trace,
+        summary.soc_end,
+        result.duration_s,
+        summary.energy_balance_error,
+        &summary,
+    )?;
     Ok(Session { result, summary })
 }
 

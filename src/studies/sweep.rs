@@ -22,7 +22,7 @@ use rayon::prelude::*;
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
 use crate::cli::{say, Failure, EXIT_OK, EXIT_SIM};
 use crate::output::plot::{self, SweepSeries};
-use crate::output::report;
+use crate::output::{report, rundir};
 use crate::scenario::load::Override;
 use crate::scenario::Scenario;
 
@@ -197,11 +197,14 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("sweep"));
+    rundir::claim(&out, a.session.force).map_err(|e| Failure::Input(e.into()))?;
     let csv_path = out.join("sweep.csv");
     let writer = open_sweep_csv(&out, &key).map_err(Failure::Input)?;
     let writer = Mutex::new(writer);
 
     let settings = settings_from(&a.session);
+    let bar =
+        super::progress::CountBar::new(scenarios.len() as u64, "sweep", "values", a.session.quiet);
     let results: Vec<Outcome> = scenarios
         .par_iter()
         .enumerate()
@@ -216,9 +219,11 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
                 .lock()
                 .unwrap_or_else(std::sync::PoisonError::into_inner)
                 .add(k, row);
+            bar.inc();
             r
         })
         .collect();
+    bar.finish();
     let writer = writer
         .into_inner()
         .unwrap_or_else(std::sync::PoisonError::into_inner);
@@ -333,6 +338,9 @@ fn open_sweep_csv(out: &Path, key: &str) -> anyhow::Result<OrderedWriter> {
         ));
     }
     fs::create_dir_all(out).with_context(|| format!("could not create '{}'", out.display()))?;
+    let marker = out.join(rundir::MARKER);
+    fs::write(&marker, rundir::marker_text("sweep"))
+        .with_context(|| format!("could not write '{}'", marker.display()))?;
     for stale in ["sweep.png", "sweep.svg"] {
         let p = out.join(stale);
         if p.exists() {
@@ -358,13 +366,22 @@ fn open_sweep_csv(out: &Path, key: &str) -> anyhow::Result<OrderedWriter> {
     })
 }
 
-/// Writes one file of the sweep folder under a temporary name, then renames it into place.
+/// Writes one file of the sweep folder under a temporary name, then renames it into place; the
+/// temporary file is registered so an interrupt removes it.
 fn write_renamed(out: &Path, name: &str, bytes: &[u8]) -> anyhow::Result<()> {
     let tmp = out.join(format!(".{name}.partial"));
     let dst = out.join(name);
-    fs::write(&tmp, bytes).with_context(|| format!("could not write '{}'", tmp.display()))?;
-    fs::rename(&tmp, &dst).with_context(|| format!("could not write '{}'", dst.display()))?;
-    Ok(())
+    rundir::register(&tmp);
+    let written = fs::write(&tmp, bytes)
+        .with_context(|| format!("could not write '{}'", tmp.display()))
+        .and_then(|()| {
+            fs::rename(&tmp, &dst).with_context(|| format!("could not write '{}'", dst.display()))
+        });
+    if written.is_err() {
+        let _ = fs::remove_file(&tmp);
+    }
+    rundir::unregister(&tmp);
+    written
 }
 
 /// Writes `sweep.png`/`.svg` and returns the SVG text.

@@ -10,8 +10,8 @@ use crate::units::c_to_k;
 /// SOC knots of the built-in OCV curves.
 const SOC_KNOTS: [f64; 12] = [0.0, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0];
 /// Typical NMC cell OCV, V (a generic curve of the usual shape, not a particular cell). SOC 1 is
-/// defined as full at the CV voltage, so the top knot equals the chemistry's CV voltage. SOC 1 is
-/// defined as full at the CV voltage, so the top knot equals the chemistry's CV voltage.
+/// defined as full at the CV voltage, so every built-in curve's top knot equals its chemistry's
+/// default CV voltage ([`default_cv_v_per_cell`]).
 const OCV_NMC: [f64; 12] = [
     3.00, 3.40, 3.50, 3.59, 3.64, 3.69, 3.74, 3.81, 3.90, 3.99, 4.09, 4.20,
 ];
@@ -21,14 +21,47 @@ const OCV_LCO: [f64; 12] = [
 ];
 /// Typical NCA cell OCV, V.
 const OCV_NCA: [f64; 12] = [
-    3.00, 3.35, 3.46, 3.56, 3.62, 3.67, 3.72, 3.79, 3.88, 3.97, 4.07, 4.19,
+    3.00, 3.35, 3.46, 3.56, 3.62, 3.67, 3.72, 3.79, 3.88, 3.97, 4.07, 4.20,
 ];
-/// Typical LiFePO4 cell OCV, V: long flat plateau, steep ends.
+/// Typical LiFePO4 cell OCV, V: long flat plateau, steep ends; full at the 3.65-V CV voltage.
 const OCV_LFP: [f64; 12] = [
-    2.50, 3.05, 3.15, 3.22, 3.26, 3.28, 3.29, 3.30, 3.31, 3.32, 3.35, 3.60,
+    2.50, 3.05, 3.15, 3.22, 3.26, 3.28, 3.29, 3.30, 3.31, 3.32, 3.35, 3.65,
 ];
-/// OCV slope beyond full (overcharge region), V per unit SOC per cell.
+/// OCV slope beyond full (overcharge region), V per unit SOC per cell. SOC stays at or below 1
+/// by construction ([`charge_acceptance`]); the slope only keeps the curve continuous there.
 const OVERFULL_SLOPE_V: f64 = 3.0;
+/// SOC width over which a cell's charge acceptance falls to zero at full (see
+/// [`charge_acceptance`]): 99.3 % of the charge is still stored at SOC 0.99, 99.99 % at 0.98.
+const ACCEPTANCE_WIDTH: f64 = 0.002;
+
+/// Fraction of the charging current a cell stores at `soc`: 1 − exp(−(1 − SOC)/w), w = 0.002. A full
+/// cell stores nothing more: the rest of an overcharge current goes into side reactions (heat,
+/// booked as coulombic loss, so the energy ledger stays closed). SOC 1 is then a fixed point the
+/// charge cannot pass: SOC stays in [0, 1] whatever the charger or the operator does. Past full
+/// (by a rounding error of the integrator) the fraction turns negative and pulls SOC back.
+/// A modelling construction, not a published law: Li-ion coulombic efficiency is near 1 until full.
+pub fn charge_acceptance(soc: f64) -> f64 {
+    -(-(1.0 - soc) / ACCEPTANCE_WIDTH).exp_m1()
+}
+
+/// The built-in OCV curve of a chemistry: (SOC knots, cell OCV in V).
+pub fn builtin_ocv(chem: Chemistry) -> (&'static [f64], &'static [f64]) {
+    let table: &'static [f64; 12] = match chem {
+        Chemistry::Lco => &OCV_LCO,
+        Chemistry::Nca => &OCV_NCA,
+        Chemistry::Lfp => &OCV_LFP,
+        _ => &OCV_NMC,
+    };
+    (&SOC_KNOTS, table)
+}
+
+/// The cell OCV at SOC 1 a battery's configuration gives (its `ocv_curve`, else the built-in), V.
+pub fn full_ocv_v_per_cell(b: &Battery) -> f64 {
+    match &b.ocv_curve {
+        Some(points) if !points.is_empty() => points[points.len() - 1].ocv_v,
+        _ => *builtin_ocv(b.chemistry).1.last().unwrap_or(&0.0),
+    }
+}
 
 /// Default CV voltage per cell, V (BU-409: 4.20 for LCO/NMC/NCA; 3.65 for LiFePO4).
 pub fn default_cv_v_per_cell(chem: Chemistry) -> f64 {
@@ -63,12 +96,20 @@ pub struct LiIonModel {
 impl LiIonModel {
     /// Builds the pack from the configuration with chemistry defaults.
     pub fn from_config(b: &Battery) -> Self {
-        let table = match b.chemistry {
-            Chemistry::Lco => &OCV_LCO,
-            Chemistry::Nca => &OCV_NCA,
-            Chemistry::Lfp => &OCV_LFP,
-            _ => &OCV_NMC,
-        };
+        let (knots, table) = builtin_ocv(b.chemistry);
+        let builtin = || Pchip::new(knots, table);
+        // The setup's curve is validated (monotone, SOC 0 … 1); the built-in one stands in for a
+        // curve that is not, so building never fails.
+        let ocv = b
+            .ocv_curve
+            .as_ref()
+            .and_then(|pts| {
+                let soc: Vec<f64> = pts.iter().map(|p| p.soc).collect();
+                let v: Vec<f64> = pts.iter().map(|p| p.ocv_v).collect();
+                Pchip::new(&soc, &v)
+            })
+            .or_else(builtin)
+            .unwrap_or_else(|| Pchip::constant(table[table.len() - 1]));
         Self {
             chemistry: b.chemistry,
             cells_series: f64::from(b.cells_series),
@@ -84,7 +125,7 @@ impl LiIonModel {
                 .unwrap_or_else(|| default_cv_v_per_cell(b.chemistry)),
             window: b.charge_window.clone(),
             thermal: thermal_of(b),
-            ocv: Pchip::new(&SOC_KNOTS, table).expect("built-in OCV table is increasing"),
+            ocv,
         }
     }
 
@@ -95,6 +136,12 @@ impl LiIonModel {
         } else {
             self.ocv.eval(soc).0
         }
+    }
+
+    /// Fraction of a charging current stored at `soc`: the coulombic efficiency times the
+    /// [`charge_acceptance`] that ends at full.
+    pub fn charge_efficiency(&self, soc: f64) -> f64 {
+        self.coulombic_efficiency * charge_acceptance(soc)
     }
 
     /// Pack OCV, V.
@@ -190,5 +237,43 @@ pub fn band_of(w: &ChargeWindow, temp_c: f64) -> TempBand {
         TempBand::Warm
     } else {
         TempBand::TooHot
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The acceptance ends exactly at full, is near 1 below 0.98, never rises with SOC, and
+    /// turns negative past full (the pull back that keeps SOC at or below 1).
+    #[test]
+    fn charge_acceptance_ends_at_full_and_pulls_back_past_it() {
+        assert_eq!(charge_acceptance(1.0), 0.0);
+        assert!(charge_acceptance(0.98) > 0.9999);
+        assert!((charge_acceptance(0.99) - (1.0 - (-5.0_f64).exp())).abs() < 1e-12);
+        assert!(charge_acceptance(1.0 + 1e-6) < 0.0);
+        let mut last = f64::INFINITY;
+        for k in 0..=1000 {
+            let a = charge_acceptance(f64::from(k) / 1000.0);
+            assert!(a <= last && (0.0..=1.0).contains(&a), "soc {k}/1000: {a}");
+            last = a;
+        }
+    }
+
+    /// Every built-in curve rises and ends at its chemistry's default CV voltage, so SOC 1 is
+    /// full at CV (the convention the charge acceptance and the CV rule rest on).
+    #[test]
+    fn built_in_curves_end_at_the_cv_voltage() {
+        for chem in [
+            Chemistry::Nmc,
+            Chemistry::Lco,
+            Chemistry::Nca,
+            Chemistry::Lfp,
+        ] {
+            let (soc, v) = builtin_ocv(chem);
+            assert_eq!(soc.len(), v.len());
+            assert!(v.windows(2).all(|w| w[1] > w[0]), "{chem:?} rises");
+            assert_eq!(v[v.len() - 1], default_cv_v_per_cell(chem), "{chem:?}");
+        }
     }
 }

@@ -147,7 +147,7 @@ impl BatteryModel {
             return 1.0;
         }
         match self {
-            BatteryModel::LiIon(m) => m.coulombic_efficiency,
+            BatteryModel::LiIon(m) => m.charge_efficiency(s.soc),
             BatteryModel::LeadAcid(m) => m.charge_efficiency(i, s.soc),
         }
     }
