@@ -5,6 +5,7 @@ mod breadth;
 mod common;
 mod fidelity;
 mod hardening;
+mod messages;
 mod report_browser;
 mod run_cli;
 mod safety;

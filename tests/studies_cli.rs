@@ -165,7 +165,7 @@ fn total_ratio(s: &SetupFile) -> f64 {
 // ---------------------------------------------------------------------------------------------
 
 #[test]
-fn compare_one_setup_two_profiles_gives_two_rows_on_one_seed() {
+fn compare_one_setup_two_profiles_gives_two_rows_each_on_its_profiles_seed() {
     let wd = WorkDir::new();
     let stdout = run_ok(
         &wd,
@@ -189,9 +189,31 @@ fn compare_one_setup_two_profiles_gives_two_rows_on_one_seed() {
     }
     assert_eq!(rows.len(), 2, "one row a run");
     assert_eq!(text_col(&header, &rows, "profile"), ["steady", "tiring"]);
+    // Each profile brings its own operator (steady.ron seed 7, tiring.ron seed 11); --seed puts
+    // every run on one.
     let seeds = text_col(&header, &rows, "seed");
-    assert_eq!(seeds[0], seeds[1], "every run on the same seed");
+    assert_eq!(seeds, ["7", "11"], "each profile on its own seed");
     assert_chart(&wd.path("cmp"), "compare");
+    run_ok(
+        &wd,
+        &[
+            "compare",
+            "demo",
+            "-p",
+            "steady",
+            "-p",
+            "tiring",
+            "--duration",
+            SHORT,
+            "--seed",
+            "5",
+            "--no-plot",
+            "--out",
+            "cmp5",
+        ],
+    );
+    let (header5, rows5) = read_csv(&wd.path("cmp5/compare.csv"));
+    assert_eq!(text_col(&header5, &rows5, "seed"), ["5", "5"]);
     // The aligned table: units in the headers, one line a run.
     for h in ["charge [Ah]", "in-regulation [%]", "mean [W]", "verdict"] {
         assert!(stdout.contains(h), "table header lacks {h}:\n{stdout}");

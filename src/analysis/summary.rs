@@ -82,6 +82,12 @@ pub struct Summary {
     /// `null` when no converter regulates or either figure is undefined.
     pub cadence_margin_rpm: Option<f64>,
     // Extras after the contract keys.
+    /// The setup and profile files the run read (a path, or a shipped file's path marked
+    /// `(built-in)`), each with the first 12 hex digits of its SHA-256.
+    pub setup_file: String,
+    pub setup_sha256: String,
+    pub profile_file: String,
+    pub profile_sha256: String,
     /// Why the verdict is what it is, one sentence per flag (empty when `ok`).
     pub verdict_reasons: Vec<String>,
     /// Informational rows (everything in events.csv that does not affect the verdict).
@@ -171,7 +177,7 @@ pub fn battery_peak(trace: &Trace) -> (f64, f64) {
 
 /// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
 /// so that study files are identical for identical inputs.
-pub const SCALAR_KEYS: [&str; 34] = [
+pub const SCALAR_KEYS: [&str; 35] = [
     "duration_s",
     "fidelity",
     "soc_start",
@@ -206,6 +212,7 @@ pub const SCALAR_KEYS: [&str; 34] = [
     "cadence_margin_rpm",
     "episode_count",
     "marginal_figures",
+    "overrides",
 ];
 
 impl Summary {
@@ -253,6 +260,7 @@ impl Summary {
             opt(self.cadence_margin_rpm),
             self.episodes.len().to_string(),
             self.marginal_figures().join("+"),
+            self.overrides.join(";"),
         ]
     }
 

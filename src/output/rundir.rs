@@ -295,9 +295,16 @@ impl Staging {
     pub fn prepare(target: &Path, command: &str, force: bool) -> Result<Self, OutputError> {
         claim(target, force)?;
         let parent = parent_of(target);
+        // The reason without the staging folder's own name (tempfile appends "at path …"): the
+        // user asked for the target and never sees the staging folder.
         let not_writable = |e: std::io::Error| OutputError::NotWritable {
             path: target.display().to_string(),
-            reason: e.to_string(),
+            reason: e
+                .to_string()
+                .split(" at path ")
+                .next()
+                .unwrap_or_default()
+                .to_string(),
         };
         fs::create_dir_all(parent).map_err(not_writable)?;
         clean_stale(target);
@@ -327,7 +334,7 @@ impl Staging {
     pub fn write(&self, name: &str, bytes: &[u8]) -> Result<(), OutputError> {
         let p = self.dir().join(name);
         fs::write(&p, bytes).map_err(|e| OutputError::Write {
-            path: p.display().to_string(),
+            path: self.target.join(name).display().to_string(),
             reason: e.to_string(),
         })
     }

@@ -41,7 +41,9 @@ pub enum InputError {
     Read { path: String, reason: String },
     #[error("{place}: RON syntax error: {}", excerpt(.message, 4 * EXCERPT_CHARS))]
     Syntax { place: Place, message: String },
-    #[error("{place}: field `{}`: {}", excerpt(.path, EXCERPT_CHARS), excerpt(.message, 4 * EXCERPT_CHARS))]
+    /// `message` is bounded where it is made: the parser's own text is cut there, ours names
+    /// the valid fields in full.
+    #[error("{place}: field `{}`: {message}", excerpt(.path, EXCERPT_CHARS))]
     Field {
         place: Place,
         path: String,

@@ -8,8 +8,10 @@ use crate::text::excerpt;
 use super::demo;
 use super::error::{InputError, Place};
 use super::profile::Profile;
+use super::quantity;
 use super::ronpath::{self, Segment};
 use super::setup::Setup;
+use super::suggest;
 use super::validate::{self, Violation};
 
 /// Longest parser message quoted (it may echo the input, e.g. an unknown field's name).
@@ -21,9 +23,11 @@ pub const PROFILE_PREFIX: &str = "profile.";
 /// The text of one input and the name used in messages.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SourceText {
-    /// File path as given, or the repository path of an embedded file.
+    /// File path as given, or the repository path of a built-in file with ` (built-in)`.
     pub name: String,
     pub text: String,
+    /// Whether the text is the copy built into the binary (no such file on disk).
+    pub built_in: bool,
 }
 
 /// Which kind of input a source is.
@@ -34,46 +38,76 @@ pub enum InputKind {
 }
 
 impl SourceText {
-    /// Reads a path, or a shipped name (`demo`, `steady`…); None gives the embedded default.
+    /// Reads a path, or a shipped name (`demo`, `steady`…); None gives the shipped default. A
+    /// shipped name is the file in `profiles/` under the working directory when one is there (so a
+    /// user's edit of it counts), else the copy built into the binary. Only a file is read: a
+    /// folder that happens to bear a shipped name does not shadow it.
     pub fn resolve(arg: Option<&str>, kind: InputKind) -> Result<Self, InputError> {
         let list: &[demo::Embedded] = match kind {
             InputKind::Setup => demo::SETUPS,
             InputKind::Profile => demo::PROFILES,
         };
-        let Some(arg) = arg else {
-            let e = &list[0];
-            return Ok(Self::embedded(e));
+        let shipped = |e: &demo::Embedded| {
+            if std::path::Path::new(e.path).is_file() {
+                Self::read(e.path)
+            } else {
+                Ok(Self::embedded(e))
+            }
         };
-        let path = std::path::Path::new(arg);
-        if path.exists() {
-            return std::fs::read_to_string(path)
-                .map(|text| Self {
-                    name: arg.to_string(),
-                    text,
-                })
-                .map_err(|e| InputError::Read {
-                    path: arg.to_string(),
-                    reason: e.to_string(),
-                });
+        let Some(arg) = arg else {
+            return shipped(&list[0]);
+        };
+        if std::path::Path::new(arg).is_file() {
+            return Self::read(arg);
         }
         if let Some(e) = list.iter().find(|e| e.name == arg) {
-            return Ok(Self::embedded(e));
+            return shipped(e);
         }
         let names: Vec<&str> = list.iter().map(|e| e.name).collect();
+        let reason = if std::path::Path::new(arg).is_dir() {
+            "a folder, not a file"
+        } else {
+            "no such file"
+        };
+        let hint = suggest::nearest(arg, &names)
+            .map(|n| format!("; did you mean `{n}`?"))
+            .unwrap_or_default();
         Err(InputError::Read {
             path: arg.to_string(),
             reason: format!(
-                "no such file, and not a shipped name (shipped: {})",
+                "{reason}, and not a shipped name (shipped: {}){hint}",
                 names.join(", ")
             ),
         })
     }
 
+    /// Reads a file.
+    fn read(path: &str) -> Result<Self, InputError> {
+        std::fs::read_to_string(path)
+            .map(|text| Self {
+                name: path.to_string(),
+                text,
+                built_in: false,
+            })
+            .map_err(|e| InputError::Read {
+                path: path.to_string(),
+                reason: e.to_string(),
+            })
+    }
+
     fn embedded(e: &demo::Embedded) -> Self {
         Self {
-            name: format!("{} (embedded)", e.path),
+            name: format!("{} (built-in)", e.path),
             text: e.text.to_string(),
+            built_in: true,
         }
+    }
+
+    /// First 12 hex digits of the SHA-256 of the text: which version of a file a run used.
+    pub fn hash(&self) -> String {
+        use sha2::{Digest, Sha256};
+        let d = Sha256::digest(self.text.as_bytes());
+        d.iter().take(6).map(|b| format!("{b:02x}")).collect()
     }
 
     /// Short name for summaries: the file stem.
@@ -164,12 +198,25 @@ fn parse_with<T: DeserializeOwned>(
 ) -> Result<(T, String), InputError> {
     let mut text = src.text.clone();
     let mut paths = Vec::with_capacity(ovs.len());
+    let mut unit_error = None;
     for (o, key) in ovs {
         let path = ronpath::parse_path(key).map_err(|e| InputError::Override {
             key: o.key.clone(),
             message: e.to_string(),
         })?;
-        let edited = ronpath::set(&text, &path, &o.value).map_err(|e| InputError::Override {
+        // A unit the field does not take is reported once the field itself is known to exist
+        // (an unknown field is the first thing to fix): meanwhile its number stands in.
+        let value = match quantity::normalise(key, &o.value) {
+            Ok(v) => v,
+            Err(message) => {
+                unit_error.get_or_insert(InputError::Override {
+                    key: o.key.clone(),
+                    message,
+                });
+                quantity::number_part(&o.value).unwrap_or_else(|| o.value.clone())
+            }
+        };
+        let edited = ronpath::set(&text, &path, &value).map_err(|e| InputError::Override {
             key: o.key.clone(),
             message: e.to_string(),
         })?;
@@ -196,14 +243,31 @@ fn parse_with<T: DeserializeOwned>(
                     ),
                 });
             }
-            Ok((v, text))
+            match unit_error {
+                Some(e) => Err(e),
+                None => Ok((v, text)),
+            }
         }
         Err(e) => {
             let path = dotted(&e.path().to_string());
             let inner = e.into_inner();
             let se = de.span_error(inner.clone());
-            let place = place_at(src, &text, &paths, se.position.line, se.position.col);
-            let message = excerpt(&inner.to_string(), MESSAGE_CHARS);
+            // The parser stops after an unknown name: point at its first character instead.
+            let back = match &inner {
+                ron::Error::NoSuchStructField { found, .. }
+                | ron::Error::NoSuchEnumVariant { found, .. } => found.chars().count(),
+                _ => 0,
+            };
+            let col = if se.position.col > back {
+                se.position.col - back
+            } else {
+                se.position.col
+            };
+            let place = place_at(src, &text, &paths, se.position.line, col);
+            // Our wording names our own fields in full; the parser's own text may echo the input
+            // at any length, so it is cut.
+            let message = suggest::describe(&inner)
+                .unwrap_or_else(|| excerpt(&inner.to_string(), MESSAGE_CHARS));
             if matches!(inner, ron::Error::ExpectedDifferentStructName { .. })
                 || path.is_empty()
                 || path == "?"

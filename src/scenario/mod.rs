@@ -6,8 +6,10 @@ pub mod error;
 pub mod limits;
 pub mod load;
 pub mod profile;
+pub mod quantity;
 pub mod ronpath;
 pub mod setup;
+pub mod suggest;
 pub mod validate;
 
 pub use error::InputError;

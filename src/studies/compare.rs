@@ -1,4 +1,5 @@
-//! `compare`: every setup with every crank profile, all on one jitter seed, side by side.
+//! `compare`: every setup with every crank profile side by side; for each profile every setup
+//! meets the same operator (the profile's own jitter seed, or `--seed` for all).
 //! Cost: one session per setup × profile pair (run in parallel), then one overlay chart.
 //!
 //! Writes `compare.csv` (one row a run: `setup, profile, seed`, then the summary scalars),
@@ -32,7 +33,7 @@ pub struct CompareArgs {
     /// Crank profile, repeatable: a .ron path or a shipped name (default: steady).
     #[arg(long = "profile", short = 'p', value_name = "PROFILE")]
     pub profiles: Vec<String>,
-    /// Jitter seed shared by every run (default: the first profile's seed).
+    /// Jitter seed for every run (default: each profile's own seed).
     #[arg(long)]
     pub seed: Option<u64>,
     /// Session length, e.g. 600, 10min (default: each profile's segments).
@@ -102,10 +103,23 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
             });
         }
     }
-    let seed = a.seed.unwrap_or(jobs[0].scenario.profile.seed);
+    // One operator per profile: every setup meets the same jitter for a profile (its own seed,
+    // or --seed for all), so differences between setups are the designs'.
     for j in &mut jobs {
-        j.settings.seed = Some(seed);
+        j.settings.seed = Some(a.seed.unwrap_or(j.scenario.profile.seed));
     }
+    let mut seeds: Vec<String> = Vec::new();
+    for j in &jobs {
+        let s = format!(
+            "{} {}",
+            j.scenario.profile.name,
+            j.settings.seed.unwrap_or_default()
+        );
+        if !seeds.contains(&s) {
+            seeds.push(s);
+        }
+    }
+    let seed = seeds.join(", ");
     let out = a
         .out
         .clone()
@@ -169,7 +183,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
                 )
             })
             .collect();
-        let chart = plot::compare_chart(&runs, &format!("Comparison, seed {seed}"))
+        let chart = plot::compare_chart(&runs, &format!("Comparison, seeds: {seed}"))
             .map_err(|e| Failure::Other(e.into()))?;
         staging
             .write("compare.png", &chart.png)
@@ -188,7 +202,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
     let page = pages::study_page(
         &scenarios,
         "crankcharge compare",
-        &format!("Comparison of {} run(s), seed {seed}", done.len()),
+        &format!("Comparison of {} run(s), seeds: {seed}", done.len()),
         (th.iter().map(|h| h.to_string()).collect(), tr),
         charts,
         failed
@@ -205,7 +219,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         say(&line);
     }
     say(&format!(
-        "{} run(s), seed {seed}; wrote {}",
+        "{} run(s), seeds: {seed}; wrote {}",
         done.len(),
         dir.display()
     ));

@@ -228,7 +228,17 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
 
     let mut header = vec!["seed".to_string()];
     header.extend(SCALAR_KEYS.iter().map(|k| k.to_string()));
-    header.extend(["run", "critical_power_w", "w_prime_j", "cadence_offset_rpm"].map(String::from));
+    header.extend(
+        [
+            "run",
+            "critical_power_w",
+            "w_prime_j",
+            "cadence_offset_rpm",
+            "setup",
+            "profile",
+        ]
+        .map(String::from),
+    );
     let mut rows = Vec::new();
     let mut done: Vec<&Summary> = Vec::new();
     let mut failures = Vec::new();
@@ -242,6 +252,8 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
                     fmt(d.critical_power_w),
                     fmt(d.w_prime_j),
                     fmt(d.cadence_offset_rpm),
+                    m.setup.clone(),
+                    m.profile.clone(),
                 ]);
                 rows.push(row);
                 done.push(m);

@@ -28,8 +28,22 @@ fn provenance(sc: &Scenario) -> Vec<(String, String)> {
             .join(", ")
     };
     vec![
-        ("setup file".into(), sc.setup_source.name.clone()),
-        ("profile file".into(), sc.profile_source.name.clone()),
+        (
+            "setup file".into(),
+            format!(
+                "{} (sha256 {})",
+                sc.setup_source.name,
+                sc.setup_source.hash()
+            ),
+        ),
+        (
+            "profile file".into(),
+            format!(
+                "{} (sha256 {})",
+                sc.profile_source.name,
+                sc.profile_source.hash()
+            ),
+        ),
         ("overrides".into(), overrides),
     ]
 }

@@ -166,9 +166,21 @@ pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> 
     Ok(())
 }
 
-/// Prints the headline figures of a run.
+/// Prints the headline figures of a run: first which files it read and what was overridden.
 fn report(s: &Session, dir: &std::path::Path) {
     let m = &s.summary;
+    say(&format!(
+        "setup file {} (sha256 {}); profile file {} (sha256 {})",
+        m.setup_file, m.setup_sha256, m.profile_file, m.profile_sha256
+    ));
+    say(&format!(
+        "overrides: {}",
+        if m.overrides.is_empty() {
+            "none".to_string()
+        } else {
+            m.overrides.join(", ")
+        }
+    ));
     say(&format!(
         "setup {}  profile {}  seed {}  {} fidelity",
         m.setup, m.profile, m.seed, m.fidelity

@@ -213,6 +213,11 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
             let row = r.as_ref().ok().map(|s| {
                 let mut row = vec![values[k].clone()];
                 row.extend(s.summary.scalar_values());
+                row.extend([
+                    s.summary.setup.clone(),
+                    s.summary.profile.clone(),
+                    s.summary.seed.to_string(),
+                ]);
                 row
             });
             writer
@@ -300,6 +305,9 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
     Ok(EXIT_SIM)
 }
 
+/// Columns after the scalars of `sweep.csv`: which setup, profile and seed each row ran.
+const TRACE_KEYS: [&str; 3] = ["setup", "profile", "seed"];
+
 /// The columns of the sweep's table (terminal and report).
 fn table_header(key: &str) -> Vec<String> {
     [
@@ -355,6 +363,7 @@ fn open_sweep_csv(out: &Path, key: &str) -> anyhow::Result<OrderedWriter> {
         .from_writer(file);
     let mut header = vec![key.to_string()];
     header.extend(SCALAR_KEYS.iter().map(|k| k.to_string()));
+    header.extend(TRACE_KEYS.map(String::from));
     csv.write_record(&header)
         .and_then(|_| Ok(csv.flush()?))
         .with_context(|| format!("could not write '{}'", path.display()))?;
@@ -451,6 +460,7 @@ mod tests {
         let row = |first: &str| {
             let mut r = vec![first.to_string()];
             r.extend(SCALAR_KEYS.iter().map(|_| "0".to_string()));
+            r.extend(TRACE_KEYS.map(|_| "x".to_string()));
             Some(r)
         };
         assert_eq!(lines(), 1, "header written and flushed at once");
