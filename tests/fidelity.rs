@@ -534,6 +534,158 @@ fn fast_and_detailed_agree_on_every_shipped_setup() {
     }
 }
 
+/// Whole default sessions of `setup` under every shipped crank profile at both fidelities, run one
+/// worker per core: (profile name, fast, detailed).
+fn both_fidelities_every_profile(setup: &Path) -> Vec<(String, Session, Session)> {
+    let profiles: Vec<PathBuf> = ["steady", "tiring", "sprint-and-rest", "uneven"]
+        .iter()
+        .map(|p| repo().join(format!("profiles/cranking/{p}.ron")))
+        .collect();
+    let jobs: Vec<(usize, Fidelity)> = [Fidelity::Detailed, Fidelity::Fast]
+        .iter()
+        .flat_map(|f| (0..profiles.len()).map(move |k| (k, *f)))
+        .collect();
+    let results: Mutex<Vec<Option<Result<Session, String>>>> =
+        Mutex::new((0..jobs.len()).map(|_| None).collect());
+    let next = AtomicUsize::new(0);
+    let workers = std::thread::available_parallelism()
+        .map_or(2, |n| n.get())
+        .clamp(1, jobs.len());
+    std::thread::scope(|s| {
+        for _ in 0..workers {
+            s.spawn(|| loop {
+                let k = next.fetch_add(1, Ordering::SeqCst);
+                let Some((profile, fidelity)) = jobs.get(k) else {
+                    break;
+                };
+                let sc = load(setup, &profiles[*profile], &[]);
+                let rs = RunSettings {
+                    duration_s: None,
+                    seed: Some(sc.profile.seed),
+                    fidelity: *fidelity,
+                    cadence_offset_rpm: 0.0,
+                };
+                let out = run_session(&sc, &rs).map_err(|e| e.to_string());
+                results.lock().expect("results")[k] = Some(out);
+            });
+        }
+    });
+    let mut results: Vec<Option<Session>> = results
+        .into_inner()
+        .expect("results")
+        .into_iter()
+        .enumerate()
+        .map(|(k, r)| match r.expect("job ran") {
+            Ok(s) => Some(s),
+            Err(e) => panic!("{} {:?}: {e}", profiles[jobs[k].0].display(), jobs[k].1),
+        })
+        .collect();
+    let n = profiles.len();
+    (0..n)
+        .map(|k| {
+            let name = profiles[k]
+                .file_stem()
+                .unwrap()
+                .to_string_lossy()
+                .to_string();
+            let det = results[k].take().expect("detailed");
+            let fast = results[n + k].take().expect("fast");
+            (name, fast, det)
+        })
+        .collect()
+}
+
+/// Run with `cargo test --release --test integration -- --ignored lead_acid_fidelities` (about a
+/// minute on two cores): sixteen whole ten-minute sessions.
+#[test]
+#[ignore = "sixteen whole sessions; run on demand (DEVELOPERS.md)"]
+fn lead_acid_fidelities_agree_on_whole_sessions_with_every_profile() {
+    for setup in ["lead-acid-buck", "lead-acid-direct"] {
+        let path = repo().join(format!("profiles/setups/{setup}.ron"));
+        for (profile, fast, det) in both_fidelities_every_profile(&path) {
+            let (f, d) = (&fast.summary, &det.summary);
+            let name = format!("{setup} × {profile}");
+            eprintln!(
+                "{name}: charge {:.5} / {:.5} Ah, peak {:.4} / {:.4} V, regulation {:.4} / {:.4}, \
+                 verdict {:?} / {:?}, detailed {:.1} s wall",
+                f.charge_delivered_ah,
+                d.charge_delivered_ah,
+                f.max_battery_v,
+                d.max_battery_v,
+                f.in_regulation_fraction,
+                d.in_regulation_fraction,
+                f.verdict,
+                d.verdict,
+                d.wall_time_s
+            );
+            assert_eq!((f.duration_s, d.duration_s), (600.0, 600.0), "{name}");
+            assert!(d.charge_delivered_ah > 1e-3, "{name}: {d:?}");
+            // Requirement (the fidelity issue): charge within 0.5 %, peak battery voltage within
+            // 50 mV, regulation fraction within 0.02, on whole default sessions.
+            let rel = (f.charge_delivered_ah / d.charge_delivered_ah - 1.0).abs();
+            assert!(
+                rel <= 0.005,
+                "{name}: charge differs by {:.3} %",
+                100.0 * rel
+            );
+            let dv = (f.max_battery_v - d.max_battery_v).abs();
+            assert!(dv <= 0.05, "{name}: peak battery voltage differs by {dv} V");
+            let dr = (f.in_regulation_fraction - d.in_regulation_fraction).abs();
+            assert!(dr <= 0.02, "{name}: regulation fraction differs by {dr}");
+            // The same verdict. On this branch an overcharge is any excess over the limit (1 µV);
+            // the detailed charger's type-1 voltage loop sits a few microvolts above its set point
+            // while the battery's polarisation still rises at a CC→CV handover (the ideal fast
+            // controller does not), so an overcharge only the detailed run reports must stay
+            // under 0.1 mV. (With the alert framework's 50 mV/cell tolerance the verdicts must
+            // simply be equal.)
+            let flags = |s: &crankcharge::analysis::summary::Summary| {
+                let text = format!("{:?}", s.verdict);
+                (
+                    text.contains("overcharge"),
+                    text.contains("fails_regulation"),
+                )
+            };
+            let ((fo, fr), (d_o, dreg)) = (flags(f), flags(d));
+            assert_eq!(fr, dreg, "{name}: fails_regulation {fr} vs {dreg}");
+            if fo != d_o {
+                assert!(!fo && d_o, "{name}: only the fast run overcharges");
+                let excess = d.max_battery_v - d.charge_limit_v;
+                assert!(excess < 1e-4, "{name}: detailed overcharge by {excess} V");
+            }
+            // No chatter: the detailed run writes no more overcharge rows than there are
+            // handovers into CV (periods of regulation it enters).
+            let over: Vec<&Event> = det
+                .result
+                .events
+                .iter()
+                .filter(|e| e.kind == EventKind::Overcharge)
+                .collect();
+            if !fo {
+                let entries = det
+                    .result
+                    .events
+                    .iter()
+                    .filter(|e| e.kind == EventKind::RegulationLoss)
+                    .count()
+                    + 1;
+                assert!(
+                    over.len() <= entries,
+                    "{name}: {} overcharge rows",
+                    over.len()
+                );
+            }
+            for s in [f, d] {
+                assert!(
+                    s.energy_balance_error < 1e-3,
+                    "{name}: ledger {}",
+                    s.energy_balance_error
+                );
+                assert!(s.soc_end <= 1.0, "{name}: SOC {}", s.soc_end);
+            }
+        }
+    }
+}
+
 // ---------------------------------------------------------------------------------------------
 // Each fast state in isolation against its closed form
 // ---------------------------------------------------------------------------------------------
@@ -901,9 +1053,8 @@ fn thevenin_rc_branch_steps_with_tau_r1_c1() {
         let battery = BatteryModel::from_config(&sc.setup.battery);
         let (ns, np): (f64, f64) = (series.parse().unwrap(), parallel.parse().unwrap());
         let state = |v: f64| BatteryState {
-            soc: 0.5,
             v_rc_v: v,
-            temp_c: 25.0,
+            ..BatteryState::rested(0.5, 25.0)
         };
         // Pack: N_s cells in series add resistance, N_p strings in parallel divide it; the
         // capacitance goes the other way, so τ = R1·C1 is the cell's.
@@ -1008,11 +1159,11 @@ fn a_state_leaving_the_physical_range_stops_the_run_with_its_time_and_state() {
 }
 
 #[test]
-fn the_energy_ledger_stays_closed_where_the_lead_acid_battery_current_bends() {
+fn the_energy_ledger_stays_closed_through_lead_acid_lockouts() {
     // lead-acid-buck with the steady profile for 180 s passes through lock-outs in which the
-    // output node sits at the battery's rest voltage, where the battery current's slope changes
-    // several hundredfold. There an implicit step can land on a spurious root; the engine retakes
-    // any step whose ledger does not balance.
+    // output node sits at the battery's rest voltage. The battery's instantaneous characteristic
+    // is one line through its rest voltage on charge and discharge (its polarisation is a slow
+    // state), so nothing there bends: no implicit step has a spurious root to land on.
     let sc = load(
         &repo().join("profiles/setups/lead-acid-buck.ron"),
         &steady_profile(),
@@ -1030,15 +1181,21 @@ fn the_energy_ledger_stays_closed_where_the_lead_acid_battery_current_bends() {
         "lead-acid-buck 180 s: ledger {:.2e}, energy retries {}, bridges {}",
         s.summary.energy_balance_error, st.energy_retries, st.explicit_bridges
     );
-    // The run meets the kink, or the bound below proves nothing.
-    assert!(st.energy_retries > 0, "{st:?}");
+    // The run passes through lock-outs, or the bound below proves nothing.
+    assert!(
+        s.result.events.iter().any(|e| e.kind == EventKind::Lockout),
+        "no lock-out in 180 s"
+    );
     // Common practice: an integration whose every step balances its energy closes the ledger
-    // to about its tolerance times the energy moved; here ~1e-6. Steps accepted on a spurious
-    // root left 1e-4 to 1e-3 over a few minutes of this setup (measured before the retry), so
-    // 1e-5 tells the two apart, far inside the product's own 1e-3 (DESIGN §3).
+    // to about its tolerance times the energy moved; here ~1e-6. With the old kinked battery,
+    // steps accepted on a spurious root left 1e-4 to 1e-3 over a few minutes of this setup
+    // (measured), so 1e-5 tells the two apart, far inside the product's own 1e-3 (DESIGN §3).
     assert!(
         s.summary.energy_balance_error < 1e-5,
         "energy_balance_error {}",
         s.summary.energy_balance_error
     );
+    // No stall needed the explicit bridge, and (almost) no step had to be retaken for energy.
+    assert_eq!(st.explicit_bridges, 0, "{st:?}");
+    assert!(st.energy_retries <= 5, "{st:?}");
 }

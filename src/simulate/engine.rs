@@ -191,6 +191,8 @@ pub struct Ledger {
     pub charge_as: f64,
     /// Heat in a USB device's charger between bus and cell, J (0 for a battery output).
     pub device_loss_j: f64,
+    /// Lead-acid: chemical energy that left as gas, J (0 for Li-ion).
+    pub gas_j: f64,
 }
 
 impl Ledger {
@@ -213,7 +215,8 @@ impl Ledger {
             + self.stored_chemical_j
             + self.rc_change_j
             + self.field_change_j
-            + self.device_loss_j;
+            + self.device_loss_j
+            + self.gas_j;
         self.operator_work_j - out
     }
 }
@@ -1190,6 +1193,7 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         field_change_j: plant.field_energy_j(y) - plant.field_energy_j(y0),
         charge_as: y[Q_BATTERY],
         device_loss_j: y[E_DEVICE],
+        gas_j: y[E_GAS],
     }
 }
 
