@@ -1730,6 +1730,29 @@ fn lead_acid_rests_and_pulses_differ_from_steady_charging() {
 }
 
 #[test]
+fn lead_acid_soc_cannot_pass_full() {
+    let m = lead_acid(&[]);
+    for i in [0.01, 0.7, 7.0, 70.0] {
+        for progress in [0.0, 1.0] {
+            for v_rc in [0.0, 1.0, 5.0] {
+                let s = BatteryState {
+                    v_rc_v: v_rc,
+                    gassing_progress: progress,
+                    ..rest(1.0)
+                };
+                // From memory: Copetti et al. 1993 — η = 1 − exp[(20.73/(I/I10 + 0.55))·(SOC − 1)]
+                // is zero at SOC 1 whatever the current: a full battery stores nothing more.
+                let f = m.flows(i, &s);
+                assert!(f.soc_rate <= 0.0, "I {i}: {f:?}");
+                // All of the current gasses (and, with a high polarisation, the gas branch draws
+                // on the stored charge too).
+                assert!(f.gassing_a >= i * (1.0 - 1e-9), "I {i}: {f:?}");
+            }
+        }
+    }
+}
+
+#[test]
 fn lead_acid_gassing_energy_leaves_as_gas_and_the_powers_add_up() {
     // Source: NIST-JANAF thermochemical tables — enthalpy of formation of liquid water
     // −285.83 kJ/mol; CODATA F = 96 485.33 C/mol: the thermoneutral voltage of water electrolysis
