@@ -94,11 +94,17 @@ fn a_battery_held_at_its_charge_limit_raises_no_overcharge() {
 
 #[test]
 fn runs_shorter_than_the_dwell_are_dropped_and_close_rows_are_joined() {
-    // The diode-only lead-acid design passes its limit with every push of the crank: with no dwell and no
-    // merge gap each run is a row; the default rules keep only those held for the dwell, joined
-    // across the merge gap.
-    let raw = session("lead-acid-direct", "steady", 600.0, &RAW_OVERCHARGE);
-    let ruled = session("lead-acid-direct", "steady", 600.0, &[]);
+    // The diode-only lead-acid design, its threshold set just under the peaks the uneven operator
+    // reaches and no hysteresis: the terminal voltage crosses it back and forth with every push
+    // of the crank. With no dwell and no merge gap each crossing is a row; the default timing
+    // keeps only those held for the dwell, joined across the merge gap.
+    let base = [
+        ("alerts.overcharge.tolerance_v_per_cell", "0.04"),
+        ("alerts.overcharge.hysteresis_v_per_cell", "0"),
+    ];
+    let raw_sets: Vec<(&str, &str)> = base.iter().chain(&RAW_OVERCHARGE).copied().collect();
+    let raw = session("lead-acid-direct", "uneven", 600.0, &raw_sets);
+    let ruled = session("lead-acid-direct", "uneven", 600.0, &base);
     let raw_rows = raw.summary.events();
     let ruled_rows = ruled.summary.events();
     let raw_over = of_kind(&raw_rows, EventKind::Overcharge);

@@ -489,16 +489,27 @@ fn lead_acid_buck_goes_through_absorption_to_float() {
         panic!("absorption {first_cv:?} and float {first_float:?} both happen");
     };
     assert!(a < f, "absorption comes before float");
-    // In float the set point is the float voltage, below the absorption limit.
-    let float_v = rows[f..]
-        .iter()
-        .filter(|r| r.mode == Mode::Float)
-        .map(|r| r.battery_v)
-        .fold(0.0, f64::max);
+    // In float the set point is the float voltage, below the absorption limit. Absorption leaves
+    // the battery's polarisation (surface charge) above it: the charger passes nothing until that
+    // has relaxed, then holds the float voltage.
+    let float_rows: Vec<_> = rows[f..].iter().filter(|r| r.mode == Mode::Float).collect();
+    let (first, last) = (float_rows[0], *float_rows.last().unwrap());
     assert!(
-        float_v < rows[f].charge_limit_v - 0.5,
-        "float holds {float_v} V, well below the absorption limit {} V",
-        rows[f].charge_limit_v
+        last.time_s - first.time_s > 60.0,
+        "float lasts {} s",
+        last.time_s - first.time_s
+    );
+    assert!(
+        last.battery_v < last.charge_limit_v - 0.5,
+        "float holds {} V, well below the absorption limit {} V",
+        last.battery_v,
+        last.charge_limit_v
+    );
+    assert!(
+        float_rows
+            .iter()
+            .all(|r| r.battery_v <= first.battery_v + 1e-3),
+        "nothing in float pushes the battery up"
     );
 }
 

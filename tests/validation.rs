@@ -12,8 +12,8 @@ use std::sync::OnceLock;
 use crankcharge::analysis::events::EventKind;
 use crankcharge::analysis::trace::Mode;
 use crankcharge::model::battery::lead_acid::{
-    copetti_charge_efficiency, copetti_gassing_v, default_absorption_v, default_float_v,
-    end_of_charge_v, LeadAcidModel,
+    copetti_charge_efficiency, copetti_charge_v, copetti_gassing_v, copetti_time_constant_h,
+    default_absorption_v, default_float_v, end_of_charge_v, LeadAcidModel,
 };
 use crankcharge::model::battery::li_ion::{band_of, default_cv_v_per_cell, LiIonModel, TempBand};
 use crankcharge::model::battery::{BatteryModel, BatteryState};
@@ -279,11 +279,7 @@ fn power_capped_operator(power_w: f64) -> OperatorModel {
 
 /// Rest state of a battery at `soc` and 25 °C.
 fn rest(soc: f64) -> BatteryState {
-    BatteryState {
-        soc,
-        v_rc_v: 0.0,
-        temp_c: 25.0,
-    }
+    BatteryState::rested(soc, 25.0)
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -1164,9 +1160,8 @@ fn li_ion_thevenin_rc_step_reaches_63_percent_at_tau() {
         m.v_rc_rate(
             amps,
             &BatteryState {
-                soc: 0.5,
                 v_rc_v: v,
-                temp_c: 25.0,
+                ..BatteryState::rested(0.5, 25.0)
             },
         )
     };
@@ -1444,26 +1439,475 @@ fn lead_acid_float_defaults() {
 fn lead_acid_internal_resistance_of_a_7_ah_block() {
     let m = lead_acid(&[]);
     assert_eq!((m.cells, m.capacity_ah), (6.0, 7.0));
-    let full = rest(1.0);
-    let r = m.terminal_v(0.0, &full).0 - m.terminal_v(-1.0, &full).0;
+    let b = BatteryModel::LeadAcid(m);
+    let term = b.terminal(&rest(1.0));
+    let r = term.v(0.0).0 - term.v(-1.0).0;
     // From memory: a 12 V 7 Ah VRLA block when full has ≈ 20–25 mΩ internal resistance (REFERENCES
     // §1).
     assert!((0.020..=0.025).contains(&r), "{r} Ω");
+    // At an instant the charger sees the same resistance on charge: no kink at the rest voltage.
+    let r_charge = term.v(1.0).0 - term.v(0.0).0;
+    assert!((r_charge - r).abs() < 1e-12, "{r_charge} vs {r}");
+}
+
+/// Copetti's charge law written out as recalled, V per cell, with the 100-Ah reading of its
+/// current term (I_n = 100 Ah·I/C10).
+fn copetti_written_out(i_over_c10: f64, soc: f64, dt: f64) -> f64 {
+    (2.0 + 0.16 * soc)
+        + i_over_c10
+            * (6.0 / (1.0 + (100.0 * i_over_c10).powf(0.86)) + 0.48 / (1.0 - soc).powf(1.2) + 0.036)
+            * (1.0 - 0.025 * dt)
 }
 
 #[test]
-fn lead_acid_charge_voltage_rises_steeply_near_full() {
+fn lead_acid_charge_law_is_copettis_below_the_gassing_voltage() {
     let m = lead_acid(&[]);
-    let c10 = 0.1 * m.capacity_ah;
-    let v_at = |soc: f64| m.terminal_v(c10, &rest(soc)).0 / m.cells;
+    for (x, soc, dt) in [
+        (0.1, 0.5, 0.0),
+        (0.05, 0.3, -10.0),
+        (0.1, 0.65, 10.0),
+        (0.02, 0.8, 0.0),
+    ] {
+        // From memory: Copetti, Lorenzo & Chenlo 1993 — V = [2 + 0.16·SOC] + (I/C10)·[6/(1 + I^0.86)
+        // + 0.48/(1 − SOC)^1.2 + 0.036]·(1 − 0.025·ΔT) (REFERENCES §1), I in the term 6/(1 + I^0.86)
+        // read for a 100-Ah battery at the same C-rate.
+        let expected = copetti_written_out(x, soc, dt);
+        assert!((copetti_charge_v(x, soc, dt) - expected).abs() < 1e-12);
+        // Below the gassing voltage the battery, settled at that current, follows the law (the gas
+        // branch carries nothing there; the law's intercept builds up over the first C/10 000,
+        // which leaves under 1 mV at these currents).
+        assert!(expected < copetti_gassing_v(x, dt), "{x} {soc} {dt}");
+        let s = BatteryState::rested(soc, 25.0 + dt);
+        let v = m.settled_v(x * m.capacity_ah, &s).0 / m.cells;
+        assert!(
+            (v - expected).abs() < 1e-3,
+            "I/C10 {x} SOC {soc} ΔT {dt}: {v} vs {expected}"
+        );
+    }
+    // From memory: lead-acid charge curves at C/10 — about 2.2–2.3 V/cell through mid-charge; the
+    // 100-Ah reading of the current term gives that, the amperes of this 7-Ah block would not.
+    let mid = m.settled_v(0.1 * m.capacity_ah, &rest(0.5)).0 / m.cells;
+    assert!((2.20..=2.30).contains(&mid), "{mid}");
+    let literal_amperes = 2.0
+        + 0.16 * 0.5
+        + 0.1 * (6.0 / (1.0 + (0.7f64).powf(0.86)) + 0.48 / 0.5f64.powf(1.2) + 0.036);
+    assert!(literal_amperes > 2.40, "{literal_amperes}");
+}
+
+#[test]
+fn lead_acid_charge_voltage_rises_steeply_near_full_then_follows_the_time_law() {
+    let m = lead_acid(&[]);
+    let i10 = 0.1 * m.capacity_ah;
+    let at = |soc: f64, progress: f64| {
+        let s = BatteryState {
+            gassing_progress: progress,
+            ..rest(soc)
+        };
+        m.settled_v(i10, &s).0 / m.cells
+    };
     // From memory: Copetti et al. 1993 — at constant current the charge voltage climbs slowly
-    // through
-    // mid-charge and steeply near full, towards (and bounded by) the end-of-charge voltage.
-    assert!(v_at(0.9) - v_at(0.8) > v_at(0.5) - v_at(0.4));
-    assert!(v_at(0.999) <= end_of_charge_v(0.1, 0.0) + 1e-9);
-    assert!(v_at(0.999) > copetti_gassing_v(0.1, 0.0));
-    // Charging voltage exceeds the rest voltage.
-    assert!(v_at(0.5) > LeadAcidModel::cell_ocv_v(0.5));
+    // through mid-charge and steeply towards the gassing point.
+    assert!(at(0.7, 0.0) - at(0.6, 0.0) > 2.0 * (at(0.4, 0.0) - at(0.3, 0.0)));
+    assert!(at(0.5, 0.0) > LeadAcidModel::cell_ocv_v(0.5));
+    // From memory: Copetti et al. 1993 — past the gassing voltage the voltage is held between Vg
+    // (as the time law starts) and Vec (once it has run); at C/10 Vg = 2.4278 V, Vec = 2.642 V
+    // (REFERENCES §1 [computed] for Vg). The gas branch takes a little of Vec's current, so the
+    // settled value may sit a few tens of millivolts below it.
+    let (vg, vec) = (copetti_gassing_v(0.1, 0.0), end_of_charge_v(0.1, 0.0));
+    let start = at(0.99, 0.0);
+    let end = at(0.99, 1.0);
+    assert!(
+        start <= vg + 1e-9 && start > vg - 0.01,
+        "{start} vs Vg {vg}"
+    );
+    assert!(end <= vec + 1e-9 && end > vec - 0.05, "{end} vs Vec {vec}");
+}
+
+/// Integrates a lead-acid battery (SOC, RC pair, time law) under `current(t)` for `t_end` seconds
+/// with classical RK4 steps of `dt`, calling `visit(t, state, terminal V/cell, flows)` after each
+/// step.
+fn integrate_lead_acid(
+    m: &LeadAcidModel,
+    mut s: BatteryState,
+    current: impl Fn(f64) -> f64,
+    t_end: f64,
+    dt: f64,
+    mut visit: impl FnMut(f64, &BatteryState, f64, f64),
+) -> BatteryState {
+    let rates = |t: f64, s: &BatteryState| {
+        let f = m.flows(current(t), s);
+        [f.soc_rate, f.v_rc_rate, f.progress_rate]
+    };
+    let add = |s: &BatteryState, k: [f64; 3], h: f64| BatteryState {
+        soc: s.soc + h * k[0],
+        v_rc_v: s.v_rc_v + h * k[1],
+        gassing_progress: s.gassing_progress + h * k[2],
+        ..*s
+    };
+    let n = (t_end / dt).round() as usize;
+    for k in 0..n {
+        let t = k as f64 * dt;
+        let k1 = rates(t, &s);
+        let k2 = rates(t + 0.5 * dt, &add(&s, k1, 0.5 * dt));
+        let k3 = rates(t + 0.5 * dt, &add(&s, k2, 0.5 * dt));
+        let k4 = rates(t + dt, &add(&s, k3, dt));
+        let k = [0, 1, 2].map(|j| (k1[j] + 2.0 * k2[j] + 2.0 * k3[j] + k4[j]) / 6.0);
+        s = add(&s, k, dt);
+        let i = current(t + dt);
+        let v = (m.ocv_v(s.soc) + s.v_rc_v + m.ohmic_r_ohm() * i) / m.cells;
+        let f = m.flows(i, &s);
+        let share = if i > 0.0 { f.gassing_a / i } else { 0.0 };
+        visit(t + dt, &s, v, share);
+    }
+    s
+}
+
+#[test]
+fn lead_acid_c10_charge_from_soc_0_8_shows_the_gassing_knee_and_settles() {
+    let m = lead_acid(&["battery.lead_acid_kind=flooded"]);
+    let i10 = 0.1 * m.capacity_ah;
+    let mut trace: Vec<(f64, f64, f64, f64)> = Vec::new();
+    let end = integrate_lead_acid(
+        &m,
+        rest(0.8),
+        |_| i10,
+        10.0 * 3600.0,
+        1.0,
+        |t, s, v, sh| {
+            trace.push((t, v, sh, s.soc));
+        },
+    );
+    assert_eq!(trace.len(), 36_000);
+    // The knee: after the quick rise of the polarisation (RC pair), the first point where the
+    // voltage climbs slower than 1 V/h.
+    let knee = trace
+        .windows(2)
+        .find(|w| (w[1].1 - w[0].1) / (w[1].0 - w[0].0) * 3600.0 < 1.0)
+        .map(|w| w[1])
+        .expect("the voltage settles into a slow climb");
+    // Common practice: gassing starts near 2.40 V/cell at C/10-ish currents; from memory, Copetti
+    // et al. 1993 — Vg at C/10 and 25 °C = 2.4278 V (REFERENCES §1): a range, the source being
+    // recalled.
+    assert!(
+        (2.35..=2.45).contains(&knee.1),
+        "knee at {} V, t = {} s",
+        knee.1,
+        knee.0
+    );
+    assert!(knee.0 < 600.0, "knee at t = {} s", knee.0);
+    // From memory: Copetti et al. 1993 — the end-of-charge voltage at C/10 is 2.64 V/cell
+    // ([2.45 + 2.011·ln 1.1], REFERENCES §1); a range for the recalled source.
+    let last = trace.last().unwrap();
+    assert!((2.55..=2.70).contains(&last.1), "after 10 h: {} V", last.1);
+    let highest = trace.iter().map(|r| r.1).fold(0.0, f64::max);
+    assert!(highest <= 2.70, "{highest}");
+    // From memory: Copetti et al. 1993 — the charge efficiency falls to zero at full charge, so the
+    // share of the current that gasses rises towards 1, and never falls while charging on.
+    assert!(last.2 > 0.9, "gassing share after 10 h: {}", last.2);
+    assert!(trace.windows(2).all(|w| w[1].2 >= w[0].2 - 1e-9));
+    let at_knee = trace.iter().find(|r| r.0 >= knee.0).unwrap().2;
+    assert!(at_knee < 0.2, "share {at_knee} at the knee");
+    // SOC never passes 1 (the efficiency vanishes there).
+    assert!(
+        trace.iter().all(|r| r.3 <= 1.0) && end.soc > 0.99,
+        "{}",
+        end.soc
+    );
+}
+
+#[test]
+fn lead_acid_time_law_follows_copettis_time_constant() {
+    let m = lead_acid(&[]);
+    let i10 = 0.1 * m.capacity_ah;
+    // Nearly full: the charge law is past the gassing voltage from the first instant.
+    let s = integrate_lead_acid(&m, rest(0.97), |_| i10, 3600.0, 1.0, |_, _, _, _| {});
+    // From memory: Copetti et al. 1993 — past the gassing voltage the voltage rises towards Vec
+    // as 1 − exp(−t/τ), τ = 17.3/(1 + 852·(I/C10)^1.67) h: 0.90 h at C/10 (REFERENCES §1).
+    let tau_h = 17.3 / (1.0 + 852.0 * 0.1f64.powf(1.67));
+    assert!((copetti_time_constant_h(0.1) - tau_h).abs() < 1e-12);
+    let expected = 1.0 - (-1.0 / tau_h).exp();
+    assert!(
+        (s.gassing_progress - expected).abs() < 0.01,
+        "{} vs {expected}",
+        s.gassing_progress
+    );
+}
+
+#[test]
+fn lead_acid_near_full_at_c_2_and_above_stays_under_2_8_v() {
+    let m = lead_acid(&[]);
+    let c = m.capacity_ah;
+    for progress in [0.0, 1.0] {
+        let s = BatteryState {
+            gassing_progress: progress,
+            ..rest(0.97)
+        };
+        for rate in [0.5, 1.0, 2.0] {
+            let v = m.settled_v(rate * c, &s).0 / m.cells;
+            // Common practice (REFERENCES §1): a nearly full cell overcharged at C/2 and above
+            // holds 2.6–2.8 V, the gas reaction taking the current (Ceraolo 2000; Jackey 2007).
+            // Checked up to 2 C, more than a hand crank drives into a 12 V block.
+            assert!(v <= 2.80, "{rate} C, x {progress}: {v} V/cell");
+            assert!(v >= 2.60, "{rate} C, x {progress}: {v} V/cell");
+            // Copetti's logarithmic end-of-charge law, extrapolated, would say far more: at C/2
+            // 2.45 + 2.011·ln 1.5 = 3.27 V/cell ([computed]).
+            assert!(v < end_of_charge_v(rate, 0.0) - 0.4);
+        }
+    }
+    assert!((end_of_charge_v(0.5, 0.0) - 3.2654).abs() < 1e-3);
+    // Charged at C/2 from SOC 0.97 for half an hour, the cell never passes 2.8 V and nearly all
+    // the current gasses by the end.
+    let (mut top, mut share) = (0.0f64, 0.0);
+    integrate_lead_acid(
+        &m,
+        rest(0.97),
+        |_| 0.5 * c,
+        1800.0,
+        0.5,
+        |_, _, v, sh| {
+            top = top.max(v);
+            share = sh;
+        },
+    );
+    assert!(top <= 2.80 && top > 2.6, "{top}");
+    assert!(share > 0.8, "{share}");
+    // The model says when it runs outside the range its laws were fitted to.
+    assert!((m.fit_limit_a() - 1.5 * 0.1 * c).abs() < 1e-12);
+}
+
+#[test]
+fn lead_acid_rests_and_pulses_differ_from_steady_charging() {
+    let m = lead_acid(&[]);
+    let i10 = 0.1 * m.capacity_ah;
+    // Five minutes at C/10 ...
+    let mut steady_at_300 = 0.0;
+    integrate_lead_acid(
+        &m,
+        rest(0.6),
+        |_| i10,
+        300.5,
+        0.5,
+        |t, _, v, _| {
+            steady_at_300 = if (t - 300.5).abs() < 0.25 {
+                v
+            } else {
+                steady_at_300
+            };
+        },
+    );
+    // ... against the same five minutes with a one-minute rest after the first four.
+    let on_off = |t: f64| {
+        if (240.0..300.0).contains(&t) {
+            0.0
+        } else {
+            i10
+        }
+    };
+    let (mut charging, mut rest_end, mut resumed) = (0.0, 0.0, 0.0);
+    let pulsed = integrate_lead_acid(&m, rest(0.6), on_off, 360.5, 0.5, |t, _, v, _| {
+        if (t - 239.5).abs() < 0.25 {
+            charging = v;
+        }
+        if (t - 299.5).abs() < 0.25 {
+            rest_end = v;
+        }
+        if (t - 360.5).abs() < 0.25 {
+            resumed = v;
+        }
+    });
+    assert!(charging > 0.0 && rest_end > 0.0 && resumed > 0.0 && steady_at_300 > 0.0);
+    // Common practice: after a charge a lead-acid battery reads above its rested OCV for a while
+    // (surface charge) and relaxes towards it at rest.
+    let ocv = LeadAcidModel::cell_ocv_v(pulsed.soc);
+    assert!(rest_end > ocv + 0.02, "{rest_end} vs OCV {ocv}");
+    assert!(rest_end < charging - 0.05, "{rest_end} vs {charging}");
+    // Common practice: a charge resumed after a rest starts lower than one that never stopped, at
+    // the same charge delivered, and climbs back over the polarisation's time.
+    assert!(
+        resumed < steady_at_300 - 0.05,
+        "{resumed} vs {steady_at_300}"
+    );
+}
+
+#[test]
+fn lead_acid_soc_cannot_pass_full() {
+    let m = lead_acid(&[]);
+    for i in [0.01, 0.7, 7.0, 70.0] {
+        for progress in [0.0, 1.0] {
+            for v_rc in [0.0, 1.0, 5.0] {
+                let s = BatteryState {
+                    v_rc_v: v_rc,
+                    gassing_progress: progress,
+                    ..rest(1.0)
+                };
+                // From memory: Copetti et al. 1993 — η = 1 − exp[(20.73/(I/I10 + 0.55))·(SOC − 1)]
+                // is zero at SOC 1 whatever the current: a full battery stores nothing more.
+                let f = m.flows(i, &s);
+                assert!(f.soc_rate <= 0.0, "I {i}: {f:?}");
+                // All of the current gasses (and, with a high polarisation, the gas branch draws
+                // on the stored charge too).
+                assert!(f.gassing_a >= i * (1.0 - 1e-9), "I {i}: {f:?}");
+            }
+        }
+    }
+}
+
+#[test]
+fn lead_acid_gassing_energy_leaves_as_gas_and_the_powers_add_up() {
+    // Source: NIST-JANAF thermochemical tables — enthalpy of formation of liquid water
+    // −285.83 kJ/mol; CODATA F = 96 485.33 C/mol: the thermoneutral voltage of water electrolysis
+    // ΔH/(2F) = 1.481 V.
+    let thermoneutral: f64 = 285.83e3 / (2.0 * 96_485.33);
+    assert!((thermoneutral - 1.481).abs() < 1e-3);
+    for (kind, escape) in [("flooded", 1.0), ("agm", 0.05), ("gel", 0.05)] {
+        let set = format!("battery.lead_acid_kind={kind}");
+        let b = BatteryModel::from_config(&scenario("lead-acid-direct", &[&set]).setup.battery);
+        let BatteryModel::LeadAcid(m) = &b else {
+            panic!("lead-acid")
+        };
+        for (soc, i, v_rc) in [
+            (0.5, 0.7, 0.6),
+            (0.97, 3.5, 2.5),
+            (0.99, 0.0, 2.8),
+            (0.9, -1.0, 0.3),
+        ] {
+            let s = BatteryState {
+                v_rc_v: v_rc,
+                ..rest(soc)
+            };
+            let frozen = b.freeze(&s);
+            let v = frozen.terminal().v(i).0;
+            let (p, _) = frozen.flows(i, v);
+            let f = m.flows(i, &s);
+            // Conservation: the electrical power in is what is stored, heats the cell and leaves.
+            let total = p.stored_w + p.ohmic_w + p.coulombic_loss_w + p.gas_w + p.rc_store_w;
+            assert!(
+                (total - v * i).abs() < 1e-9 * (v * i).abs().max(1.0),
+                "{kind} {soc} {i}"
+            );
+            // Common practice: the thermoneutral voltage times the gassing current leaves as the
+            // gas's chemical energy in a flooded battery; a valve-regulated cell recombines most of
+            // the oxygen (≥ 95 %), its energy returning as heat.
+            let gas = escape * thermoneutral * m.cells * f.gassing_a;
+            assert!(
+                (p.gas_w - gas).abs() < 2e-3 * gas.abs().max(1e-6),
+                "{kind}: {} vs {gas}",
+                p.gas_w
+            );
+            assert!(p.heat_w() >= 0.0 || i < 0.0);
+        }
+    }
+}
+
+/// A complex number, for the loop-gain checks below.
+#[derive(Debug, Clone, Copy)]
+struct Cx(f64, f64);
+
+impl Cx {
+    fn add(self, o: Cx) -> Cx {
+        Cx(self.0 + o.0, self.1 + o.1)
+    }
+    fn mul(self, o: Cx) -> Cx {
+        Cx(self.0 * o.0 - self.1 * o.1, self.0 * o.1 + self.1 * o.0)
+    }
+    fn div(self, o: Cx) -> Cx {
+        let d = o.0 * o.0 + o.1 * o.1;
+        Cx(
+            (self.0 * o.0 + self.1 * o.1) / d,
+            (self.1 * o.0 - self.0 * o.1) / d,
+        )
+    }
+    fn abs(self) -> f64 {
+        self.0.hypot(self.1)
+    }
+    fn arg_deg(self) -> f64 {
+        self.1.atan2(self.0).to_degrees()
+    }
+}
+
+/// Phase margin, degrees, and crossover, rad/s, of the charger's voltage loop on `lead-acid-buck`
+/// as designed, with input voltage `v_in` and a battery of ohmic resistance `r0` and polarisation
+/// `r1` with time constant `tau1`, from the small-signal model written out here: the current loop
+/// PI (kp_i + ki_i/s) on the inductor, di/dd = V_in/(sL + R_L) against the stiff output; closed,
+/// T_i = L_i/(1 + L_i); the voltage loop PI (kp_v + ki_v/s) through T_i into the battery
+/// R0 + R1/(1 + sτ1) in parallel with the output capacitor.
+fn voltage_loop_margin(plant: &Plant, v_in: f64, r0: f64, r1: f64, tau1: f64) -> (f64, f64) {
+    let g = &plant.gains;
+    let (l, r_l) = (plant.buck.inductance_h, plant.buck.inductor_resistance_ohm);
+    let c_o = plant.circuit.output_capacitance_f;
+    let loop_gain = |w: f64| {
+        let s = Cx(0.0, w);
+        let c_i = Cx(g.kp_i, 0.0).add(Cx(g.ki_i, 0.0).div(s));
+        let plant_i = Cx(v_in, 0.0).div(s.mul(Cx(l, 0.0)).add(Cx(r_l, 0.0)));
+        let l_i = c_i.mul(plant_i);
+        let t_i = l_i.div(Cx(1.0, 0.0).add(l_i));
+        let z_b = Cx(r0, 0.0).add(Cx(r1, 0.0).div(Cx(1.0, 0.0).add(s.mul(Cx(tau1, 0.0)))));
+        let y = Cx(1.0, 0.0).div(z_b).add(s.mul(Cx(c_o, 0.0)));
+        let z = Cx(1.0, 0.0).div(y);
+        let c_v = Cx(g.kp_v, 0.0).add(Cx(g.ki_v, 0.0).div(s));
+        c_v.mul(t_i).mul(z)
+    };
+    // Log sweep for the first crossing of |L| = 1 from above, refined by bisection.
+    let mut w = 1e-2;
+    while loop_gain(w * 1.01).abs() > 1.0 {
+        w *= 1.01;
+        assert!(w < 1e8, "no crossover");
+    }
+    let (mut lo, mut hi) = (w, w * 1.01);
+    for _ in 0..60 {
+        let mid = (lo * hi).sqrt();
+        if loop_gain(mid).abs() > 1.0 {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+    }
+    (180.0 + loop_gain(hi).arg_deg(), hi)
+}
+
+#[test]
+fn charger_voltage_loop_keeps_its_phase_margin_over_the_lead_acid_charge() {
+    let sc = scenario("lead-acid-buck", &[]);
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let BatteryModel::LeadAcid(m) = &plant.battery else {
+        panic!("lead-acid")
+    };
+    let r0 = m.ohmic_r_ohm();
+    let c = &sc.setup.converter;
+    // The battery's impedance at the crossover is its R0 at every SOC: the polarisation sits
+    // behind a 60-s time constant, a short at hundreds of hertz, whatever the settled charge
+    // curve's slope (R1 below, swept past anything the curve reaches).
+    let at = |soc: f64| {
+        let s = BatteryState::rested(soc, sc.setup.ambient_c);
+        (
+            m.settled_v(0.1, &s).1,
+            plant.battery.crossover_impedance_ohm(&s),
+        )
+    };
+    let (mid, full) = (at(0.5), at(0.99));
+    assert_eq!((mid.1, full.1), (r0, r0));
+    assert!(mid.0 > 10.0 * r0 && full.0 > 10.0 * r0, "{mid:?} {full:?}");
+    let mut margins = Vec::new();
+    for v_in in [c.uvlo_off_v, 20.0, c.input_overvoltage_v] {
+        for r1 in [0.0, mid.0, full.0, 100.0] {
+            let (pm, wc) = voltage_loop_margin(&plant, v_in, r0, r1, 60.0);
+            margins.push((pm, wc, v_in, r1));
+        }
+    }
+    eprintln!("phase margin, crossover (rad/s), input V, R1 Ω: {margins:?}");
+    for &(pm, wc, v_in, r1) in &margins {
+        // From memory: Erickson & Maksimović, Fundamentals of Power Electronics, 2nd ed., ch. 9 —
+        // a loop with 52° of phase margin peaks at Q = 1, one with 76° is critically damped; power
+        // supplies are designed for 45–60° or more. This design gives 91–95° at about 3.2 krad/s
+        // (510 Hz), at every input voltage and battery state.
+        assert!(
+            pm >= 60.0,
+            "phase margin {pm:.1}° at V_in {v_in} V, R1 {r1} Ω"
+        );
+        // The crossover stays a decade and more under the current loop's (f_sw/30).
+        let wc_i = 2.0 * PI * c.switching_frequency_hz / 30.0;
+        assert!(wc < wc_i / 5.0, "crossover {wc} rad/s");
+    }
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -1761,7 +2205,8 @@ fn energy_balance_every_shipped_setup_steady_120_s() {
             + l.battery_coulombic_j
             + l.stored_chemical_j
             + l.rc_change_j
-            + l.device_loss_j;
+            + l.device_loss_j
+            + l.gas_j;
         // Common practice: conservation of energy (the ledger terms, summed here, equal the work).
         assert!(
             (sum - l.operator_work_j).abs() < 1e-3 * l.operator_work_j,
@@ -1796,9 +2241,14 @@ fn energy_balance_every_shipped_setup_every_profile_60_s() {
 fn energy_battery_terminal_energy_splits_into_its_parts() {
     for (name, s) in steady_sessions() {
         let l = &s.result.ledger;
-        let parts = l.battery_ohmic_j + l.battery_coulombic_j + l.stored_chemical_j + l.rc_change_j;
+        let parts = l.battery_ohmic_j
+            + l.battery_coulombic_j
+            + l.stored_chemical_j
+            + l.rc_change_j
+            + l.gas_j;
         // Common practice: conservation of energy at the battery terminals — V·I into the battery =
-        // ohmic heat + charge that does not store + chemical storage + RC-branch energy.
+        // ohmic heat + heat of the charge that does not store + chemical storage + RC-branch
+        // energy + the chemical energy of the gas that leaves (lead-acid).
         assert!(
             (parts - l.battery_terminal_j).abs() < 1e-3 * l.battery_terminal_j.abs().max(1.0),
             "{name}: {parts} J vs {} J",

@@ -24,6 +24,9 @@ pub enum EventKind {
     ChargeComplete,
     /// USB port: the device cut itself off the sagging (or vanished) bus, until it reconnects.
     DeviceCutoff,
+    /// The battery model runs outside the range its laws were fitted to (lead-acid: charge current
+    /// beyond 1.5·I10); its figures there are extrapolations.
+    ModelRange,
 }
 
 impl EventKind {
@@ -39,11 +42,12 @@ impl EventKind {
             EventKind::OperatorOverload => "operator_overload",
             EventKind::ChargeComplete => "charge_complete",
             EventKind::DeviceCutoff => "device_cutoff",
+            EventKind::ModelRange => "model_range",
         }
     }
 
     /// Every kind, in the order of the README's alert table.
-    pub const ALL: [EventKind; 9] = [
+    pub const ALL: [EventKind; 10] = [
         EventKind::Overcharge,
         EventKind::RegulationLoss,
         EventKind::Lockout,
@@ -52,6 +56,7 @@ impl EventKind {
         EventKind::ChargeTempWindow,
         EventKind::OperatorOverload,
         EventKind::DeviceCutoff,
+        EventKind::ModelRange,
         EventKind::ChargeComplete,
     ];
 }

@@ -94,9 +94,18 @@ pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> Contr
         current_ref_a: current_ref,
         cv_active,
         saturated,
-        voltage_rate: voltage_rate(g, x, e_v, i_v),
+        voltage_rate: voltage_rate(g, x, e_v, i_v) + cascade_back_calculation(g, duty, d_cmd),
         current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
     }
+}
+
+/// Cascade anti-windup: while the current loop's duty is clamped, the current it cannot deliver,
+/// (d_cmd − d)/kp_i, is fed back into the voltage integrator (back-calculation through the inner
+/// loop). Without it the voltage loop keeps integrating through a dropout and, when the input
+/// recovers, asks for its wound-up current at once: the battery overshot its set point by up to
+/// 0.44 mV on `lead-acid-buck` (uneven profile, detailed fidelity).
+fn cascade_back_calculation(g: &ControllerGains, duty: f64, d_cmd: f64) -> f64 {
+    (duty - d_cmd) / (g.kp_i * g.anti_windup_s)
 }
 
 /// Voltage loop shared by every topology: (current reference, CV active, error, PI output).
@@ -143,7 +152,9 @@ pub fn control_buck_boost(
         current_ref_a: current_ref,
         cv_active,
         saturated,
-        voltage_rate: voltage_rate(g, x, e_v, i_v),
+        // The inner loop holds I_ref/(1 − d_ff): its unmet current scales back by (1 − d_ff).
+        voltage_rate: voltage_rate(g, x, e_v, i_v)
+            + (1.0 - d_ff) * cascade_back_calculation(g, duty, d_cmd),
         current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
     }
 }

@@ -748,7 +748,8 @@ fn alert_panel(kind: EventKind) -> Option<usize> {
         EventKind::Overcharge
         | EventKind::InputOvervoltage
         | EventKind::Lockout
-        | EventKind::DeviceCutoff => Some(1),
+        | EventKind::DeviceCutoff
+        | EventKind::ModelRange => Some(1),
         EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => Some(2),
         EventKind::OperatorOverload => Some(3),
         EventKind::RegulationLoss | EventKind::ChargeComplete => None,
@@ -766,6 +767,7 @@ fn alert_label(kind: EventKind) -> &'static str {
         EventKind::RegulationLoss => "regulation lost",
         EventKind::ChargeComplete => "charge complete",
         EventKind::DeviceCutoff => "device cut off",
+        EventKind::ModelRange => "model range",
     }
 }
 
@@ -780,6 +782,7 @@ fn alert_color(kind: EventKind) -> RGBColor {
         EventKind::RegulationLoss => BAND,
         EventKind::ChargeComplete => OLIVE,
         EventKind::DeviceCutoff => RGBColor(20, 140, 120),
+        EventKind::ModelRange => RGBColor(120, 120, 120),
     }
 }
 

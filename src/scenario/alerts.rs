@@ -39,6 +39,9 @@ pub struct Alerts {
     /// USB device cut off the bus (each cut-off is a row; its length is the time until the
     /// device reconnects).
     pub device_cutoff: EpisodeTiming,
+    /// The battery model runs outside the range its laws were fitted to (lead-acid: charge
+    /// current above 1.5·I10); informational.
+    pub model_range: EpisodeTiming,
 }
 
 impl Default for Alerts {
@@ -66,6 +69,10 @@ impl Default for Alerts {
             device_cutoff: EpisodeTiming {
                 dwell_s: 0.0,
                 merge_gap_s: 0.0,
+            },
+            model_range: EpisodeTiming {
+                dwell_s: 1.0,
+                merge_gap_s: 10.0,
             },
         }
     }

@@ -676,6 +676,11 @@ fn alerts(c: &mut Checker, a: &Alerts) {
             a.device_cutoff.dwell_s,
             a.device_cutoff.merge_gap_s,
         ),
+        (
+            "model_range",
+            a.model_range.dwell_s,
+            a.model_range.merge_gap_s,
+        ),
     ];
     for (kind, dwell, gap) in timings {
         c.range(&format!("alerts.{kind}.dwell_s"), dwell, 0.0, 3600.0);

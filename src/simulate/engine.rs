@@ -43,8 +43,8 @@ const IMPLICIT_MAX_ATTEMPTS: usize = 5_000_000;
 const IMPLICIT_MAX_NEWTON: usize = 7;
 /// Implicit methods: rejected attempts in a row after which the implicit solver hands over to a
 /// short Dopri5 bridge. Newton needs a right-hand side smooth in the state; the averaged
-/// converter has points where it is not (an empty inductor held at zero, the kink of a lead-acid
-/// battery's current at its rest voltage), and the solution can sit on them. An explicit method
+/// converter has points where it is not (an empty inductor held at zero, its duty at D_max), and
+/// the solution can sit on them. An explicit method
 /// does not iterate, so it passes them at its (stability-bound) step; the implicit solver resumes
 /// after the bridge.
 const IMPLICIT_BRIDGE_AFTER_REJECTIONS: usize = 30;
@@ -62,7 +62,8 @@ const PROGRESS_MIN_S: f64 = 2e-3;
 /// Implicit methods: an accepted step whose energy defect exceeds this many times rtol of the
 /// energy it moved (plus [`ENERGY_DEFECT_FLOOR_J`]) is taken again from its start with an eighth
 /// of the step. Ordinary steps stay below 0.06·rtol on the shipped setups; steps that landed on a
-/// spurious root at the lead-acid battery's rest-voltage kink sat near 0.8 (rtol 1e-4).
+/// spurious root at the kink the lead-acid battery's current once had at its rest voltage sat near
+/// 0.8 (rtol 1e-4).
 const ENERGY_DEFECT_FACTOR: f64 = 10.0;
 const ENERGY_DEFECT_FLOOR_J: f64 = 1e-9;
 
@@ -196,6 +197,8 @@ pub struct Ledger {
     pub charge_as: f64,
     /// Heat in a USB device's charger between bus and cell, J (0 for a battery output).
     pub device_loss_j: f64,
+    /// Lead-acid: chemical energy that left as gas, J (0 for Li-ion).
+    pub gas_j: f64,
 }
 
 impl Ledger {
@@ -218,7 +221,8 @@ impl Ledger {
             + self.stored_chemical_j
             + self.rc_change_j
             + self.field_change_j
-            + self.device_loss_j;
+            + self.device_loss_j
+            + self.gas_j;
         self.operator_work_j - out
     }
 }
@@ -1203,6 +1207,7 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         field_change_j: plant.field_energy_j(y) - plant.field_energy_j(y0),
         charge_as: y[Q_BATTERY],
         device_loss_j: y[E_DEVICE],
+        gas_j: y[E_GAS],
     }
 }
 

@@ -15,7 +15,7 @@ use super::transitions::SLEEP_HYSTERESIS_V;
 use super::usb_port::device_cut_off;
 
 /// The watched conditions, in a fixed order.
-pub const WATCHED: [EventKind; 9] = [
+pub const WATCHED: [EventKind; 10] = [
     EventKind::RegulationLoss,
     EventKind::Lockout,
     EventKind::Overcharge,
@@ -25,6 +25,7 @@ pub const WATCHED: [EventKind; 9] = [
     EventKind::OperatorOverload,
     EventKind::DeviceCutoff,
     EventKind::ChargeComplete,
+    EventKind::ModelRange,
 ];
 
 /// Codes of every watched condition at one point (0 = not present).
@@ -143,6 +144,12 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
         ),
         device_cutoff_code(plant, d),
         u8::from(d.stage == Stage::Done),
+        u8::from(
+            plant
+                .battery
+                .fit_limit_a()
+                .is_some_and(|limit| p.net.battery_current_a > limit),
+        ),
     ]
 }
 
@@ -261,6 +268,12 @@ fn reading(kind: EventKind, code: u8, plant: &Plant, p: &Point, y: &State) -> Re
             plant.charger.termination_current_a,
         )
         .below(),
+        EventKind::ModelRange => Reading::of(
+            "battery_current_a",
+            "A",
+            p.net.battery_current_a,
+            plant.battery.fit_limit_a().unwrap_or(f64::NAN),
+        ),
     }
 }
 
@@ -365,6 +378,10 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             "CV current fell below the termination current: charge terminated".to_string()
         }
         EventKind::DeviceCutoff => "device cut off".to_string(),
+        EventKind::ModelRange => format!(
+            "charge current above {:.2} A (1.5·I10): the lead-acid charge laws are extrapolated, the gas branch holds the voltage",
+            plant.battery.fit_limit_a().unwrap_or(f64::INFINITY)
+        ),
     }
 }
 

@@ -2,7 +2,7 @@
 //! algebraic quantity and the state derivative. Mode (discrete state) is fixed within a segment.
 
 use crate::model::battery::li_ion::TempBand;
-use crate::model::battery::{BatteryModel, BatteryPowers, BatteryState, Terminal};
+use crate::model::battery::{BatteryModel, BatteryPowers, BatteryRates, BatteryState, Terminal};
 use crate::model::circuit::{self, CircuitConstants, FastRates, FastStates};
 use crate::model::controller::{self, ControlInput, ControllerGains};
 use crate::model::converter::{BuckBoostModel, BuckModel, LinearModel};
@@ -185,8 +185,8 @@ pub struct Point {
     pub copper_w: f64,
     pub winding_ohm: f64,
     pub battery_powers: BatteryPowers,
-    /// dV_RC/dt of the Li-ion RC branch, V/s.
-    pub v_rc_rate: f64,
+    /// Rates of SOC, the RC pair and the lead-acid time law.
+    pub battery_rates: BatteryRates,
     pub in_regulation: bool,
     /// The converter is enabled but still in its soft-start ramp.
     pub restarting: bool,
@@ -275,12 +275,13 @@ impl Plant {
         crank_starts.extend(jitter.rests.iter().map(|r| r.end_s));
         crank_starts.sort_by(f64::total_cmp);
         let buck = BuckModel::from_config(c);
-        let start = BatteryState {
-            soc: setup.battery.soc_start,
-            v_rc_v: 0.0,
-            temp_c: setup.battery.temp_start_c.unwrap_or(setup.ambient_c),
-        };
-        let slope = battery.terminal(&start).v(0.1 * cap).1;
+        let start = BatteryState::rested(
+            setup.battery.soc_start,
+            setup.battery.temp_start_c.unwrap_or(setup.ambient_c),
+        );
+        // The loops are designed for the battery's largest impedance at their crossover: real
+        // chargers compensate for the worst case rather than the start state.
+        let slope = battery.crossover_impedance_ohm(&start);
         let v_nominal = c
             .uvlo_on_v
             .max(battery.charge_limit_v(setup.ambient_c) + 2.0);
@@ -413,6 +414,7 @@ impl Plant {
             soc: y[SOC],
             v_rc_v: y[V_RC],
             temp_c: y[BATTERY_TEMP],
+            gassing_progress: y[GAS_PROGRESS],
         }
     }
 
@@ -537,7 +539,7 @@ impl Plant {
             ((tau_op - bearing) / jc, -(tau_em + tau_fric) / js, 0.0, 0.0)
         };
 
-        let powers = frozen.powers(net.battery_current_a, net.battery_v);
+        let (powers, rates) = frozen.flows(net.battery_current_a, net.battery_v);
         // Regulating means holding the set point: locked out, shut down, in dropout, or still
         // ramping up after a (re)start, a charger is not. A converter that keeps restarting
         // (hiccup) spends its time in the soft-start ramp and is counted out of regulation there.
@@ -572,7 +574,7 @@ impl Plant {
             copper_w: net.generator_current_a * net.generator_current_a * r_w,
             winding_ohm: r_w,
             battery_powers: powers,
-            v_rc_rate: frozen.v_rc_rate(net.battery_current_a),
+            battery_rates: rates,
             in_regulation,
             restarting: self.has_converter() && d.enabled && !d.soft_done,
             band,
@@ -735,7 +737,6 @@ impl Plant {
 
     /// State derivative at a point (pure: depends on `p`, `y` and `d` only).
     pub fn derivatives(&self, p: &Point, y: &State, d: &Discrete, dy: &mut State) {
-        let bs = Self::battery_state(y);
         let ib = p.net.battery_current_a;
         let ig = p.net.generator_current_a;
         dy[CRANK_ANGLE] = y[CRANK_SPEED];
@@ -756,11 +757,12 @@ impl Plant {
         dy[W_PRIME] = self
             .operator
             .w_prime_rate(p.operator_power_w.max(0.0), y[W_PRIME]);
-        dy[SOC] = self.battery.soc_rate(ib, &bs);
-        dy[V_RC] = p.v_rc_rate;
+        dy[SOC] = p.battery_rates.soc;
+        dy[V_RC] = p.battery_rates.v_rc;
+        dy[GAS_PROGRESS] = p.battery_rates.progress;
         dy[BATTERY_TEMP] = self.battery.thermal().rate_k_per_s(
             p.battery_powers.heat_w(),
-            bs.temp_c,
+            y[BATTERY_TEMP],
             self.ambient_c,
         );
         dy[WINDING_TEMP] = self
@@ -792,6 +794,7 @@ impl Plant {
         dy[CTRL_V] = p.ctrl_rates.0;
         dy[CTRL_I] = p.ctrl_rates.1;
         dy[E_DEVICE] = p.bus.device_loss_w;
+        dy[E_GAS] = p.battery_powers.gas_w;
     }
 
     /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.

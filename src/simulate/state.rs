@@ -3,7 +3,7 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 29;
+pub const N_STATES: usize = 31;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
@@ -20,7 +20,7 @@ pub const OP_INTEGRATOR: usize = 3;
 pub const W_PRIME: usize = 4;
 /// Battery state of charge, 0 … 1.
 pub const SOC: usize = 5;
-/// Li-ion RC-branch voltage, V.
+/// RC-pair voltage, V: the Li-ion RC branch, or the lead-acid charge polarisation.
 pub const V_RC: usize = 6;
 /// Battery temperature, °C.
 pub const BATTERY_TEMP: usize = 7;
@@ -58,6 +58,12 @@ pub const CTRL_V: usize = 26;
 pub const CTRL_I: usize = 27;
 /// Energy ledger, USB port only: heat in the device's charger (its pass element), J.
 pub const E_DEVICE: usize = 28;
+/// Lead-acid: progress 0 … 1 of Copetti's time law from the gassing to the end-of-charge voltage
+/// (0 for Li-ion).
+pub const GAS_PROGRESS: usize = 29;
+/// Energy ledger, lead-acid: chemical energy leaving as gas (thermoneutral voltage × the gassing
+/// current that escapes), J.
+pub const E_GAS: usize = 30;
 
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
@@ -95,4 +101,6 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "voltage_loop_a",
     "current_loop",
     "e_device_j",
+    "gassing_progress",
+    "e_gas_j",
 ];

@@ -248,7 +248,7 @@ impl Statics<'_> {
     }
 
     fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {
-        let term = self.plant.battery.terminal(bs);
+        let term = self.plant.battery.static_terminal(bs);
         network::solve(&self.source(crank_rpm), load, &term)
     }
 
@@ -317,18 +317,7 @@ pub fn first_cadence(pred: impl Fn(f64) -> bool) -> Option<f64> {
 /// SOC at which the battery's terminal voltage at current `i` equals `v` (bisection; the terminal
 /// voltage rises with SOC). Clamped to [0, 1] when `v` is outside the reachable range.
 fn soc_at_terminal(battery: &BatteryModel, v: f64, i: f64, temp_c: f64) -> f64 {
-    let at = |soc: f64| {
-        battery
-            .terminal_v(
-                i,
-                &BatteryState {
-                    soc,
-                    v_rc_v: 0.0,
-                    temp_c,
-                },
-            )
-            .0
-    };
+    let at = |soc: f64| battery.terminal_v(i, &BatteryState::rested(soc, temp_c)).0;
     if at(0.0) >= v {
         return 0.0;
     }
@@ -366,11 +355,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         plant,
         resistance_ohm: plant.generator.resistance_ohm(ambient),
     };
-    let bs_start = BatteryState {
-        soc: setup.battery.soc_start,
-        v_rc_v: 0.0,
-        temp_c: temp_start,
-    };
+    let bs_start = BatteryState::rested(setup.battery.soc_start, temp_start);
     let battery = &plant.battery;
     let band = plant.band(temp_start);
     let charge_limit = battery.charge_limit_v(ambient);
@@ -424,11 +409,10 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
                 .unwrap_or_else(|| battery.charge_limit_v(temp_start));
             let i_cv = battery.current_at_v(setpoint, &bs_start).max(0.0);
             let start_target = i_cc.min(i_cv);
-            let bs_cv = BatteryState {
-                soc: soc_at_terminal(battery, setpoint, i_cc, temp_start),
-                v_rc_v: 0.0,
-                temp_c: temp_start,
-            };
+            let bs_cv = BatteryState::rested(
+                soc_at_terminal(battery, setpoint, i_cc, temp_start),
+                temp_start,
+            );
             let unlock = (c.uvlo_on_v > 0.0).then(|| st.cadence_for_emf(c.uvlo_on_v));
             let reg_start = first_cadence(|r| st.holds(r, start_target, &bs_start));
             let reg_cv = first_cadence(|r| st.holds(r, i_cc, &bs_cv));

@@ -239,6 +239,7 @@ pub fn timing(a: &Alerts, kind: EventKind) -> Timing {
             (a.operator_overload.dwell_s, a.operator_overload.merge_gap_s)
         }
         EventKind::DeviceCutoff => (a.device_cutoff.dwell_s, a.device_cutoff.merge_gap_s),
+        EventKind::ModelRange => (a.model_range.dwell_s, a.model_range.merge_gap_s),
         // A period from the termination to the session end: every one is a row.
         EventKind::ChargeComplete => (0.0, 0.0),
     };

@@ -14,23 +14,43 @@ pub use li_ion::LiIonModel;
 pub struct BatteryState {
     /// State of charge, 0 … 1.
     pub soc: f64,
-    /// Voltage across the RC branch (Li-ion), V.
+    /// Voltage across the RC pair (Li-ion RC branch, lead-acid charge polarisation), V.
     pub v_rc_v: f64,
     /// Battery temperature, °C.
     pub temp_c: f64,
+    /// Lead-acid: progress 0 … 1 of Copetti's time law from the gassing to the end-of-charge
+    /// voltage (0 for Li-ion).
+    pub gassing_progress: f64,
+}
+
+impl BatteryState {
+    /// A rested battery: no RC voltage, no gassing history.
+    pub fn rested(soc: f64, temp_c: f64) -> Self {
+        Self {
+            soc,
+            v_rc_v: 0.0,
+            temp_c,
+            gassing_progress: 0.0,
+        }
+    }
 }
 
 /// Power flows inside the battery at one instant, W.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct BatteryPowers {
-    /// Ohmic heat in the series resistance and RC resistor (or the lead-acid over-voltage), W.
+    /// Ohmic heat in the series resistance and RC resistor (lead-acid: the whole over-voltage
+    /// (V − OCV)·I), W.
     pub ohmic_w: f64,
-    /// Charge that does not store (coulombic inefficiency, gassing) times OCV, W.
+    /// Heat of the charge that does not store: OCV times the current that does not store, less
+    /// what leaves as gas, W.
     pub coulombic_loss_w: f64,
     /// Rate of chemical storage OCV·η·I, W.
     pub stored_w: f64,
     /// Rate of energy stored in the RC capacitance, W.
     pub rc_store_w: f64,
+    /// Lead-acid: chemical energy leaving as gas, thermoneutral voltage × gassing current that
+    /// escapes, W (0 for Li-ion).
+    pub gas_w: f64,
 }
 
 impl BatteryPowers {
@@ -38,6 +58,17 @@ impl BatteryPowers {
     pub fn heat_w(&self) -> f64 {
         self.ohmic_w + self.coulombic_loss_w
     }
+}
+
+/// Rates of the slow battery states at one instant.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct BatteryRates {
+    /// dSOC/dt, 1/s.
+    pub soc: f64,
+    /// dV_RC/dt, V/s.
+    pub v_rc: f64,
+    /// Lead-acid: d(gassing progress)/dt, 1/s (0 for Li-ion).
+    pub progress: f64,
 }
 
 /// Either battery kind.
@@ -72,17 +103,45 @@ impl BatteryModel {
         }
     }
 
-    /// Terminal voltage at current `i` (charging positive), V, with its slope dV/dI, Ω.
+    /// Terminal voltage at current `i` (charging positive) on the static characteristic
+    /// ([`Self::static_terminal`]), V, with its slope dV/dI, Ω.
     pub fn terminal_v(&self, i: f64, s: &BatteryState) -> (f64, f64) {
+        self.static_terminal(s).v(i)
+    }
+
+    /// The terminal characteristic at an instant (the RC voltage held): what the electrical
+    /// network sees. A line through OCV + V_RC with slope R0, for both chemistries.
+    pub fn terminal<'a>(&'a self, s: &BatteryState) -> Terminal<'a> {
+        self.freeze(s).terminal()
+    }
+
+    /// The characteristic static design figures read (`check`): for lead-acid the charge curve
+    /// with its polarisation settled at each current; for Li-ion the instantaneous line at the
+    /// state's RC voltage, as the figures always were.
+    pub fn static_terminal<'a>(&'a self, s: &BatteryState) -> Terminal<'a> {
         match self {
-            BatteryModel::LiIon(m) => m.terminal_v(i, s),
-            BatteryModel::LeadAcid(m) => m.terminal_v(i, s),
+            BatteryModel::LiIon(_) => self.terminal(s),
+            BatteryModel::LeadAcid(m) => Terminal::Curve {
+                model: m,
+                state: *s,
+            },
         }
     }
 
-    /// A view of the terminal characteristic at fixed state, cheap to evaluate many times.
-    pub fn terminal<'a>(&'a self, s: &BatteryState) -> Terminal<'a> {
-        self.freeze(s).terminal()
+    /// The battery's incremental impedance at a charger's voltage-loop crossover (kHz), Ω: its
+    /// ohmic R0, the RC pair being a short there. For lead-acid it is the same at every SOC, so a
+    /// loop designed for it keeps its crossover while the battery fills; for Li-ion it is largest
+    /// at the coldest, the start.
+    pub fn crossover_impedance_ohm(&self, s: &BatteryState) -> f64 {
+        self.freeze(s).r0_ohm
+    }
+
+    /// Lead-acid: charge current beyond which the model runs outside its fitted range, A.
+    pub fn fit_limit_a(&self) -> Option<f64> {
+        match self {
+            BatteryModel::LiIon(_) => None,
+            BatteryModel::LeadAcid(m) => Some(m.fit_limit_a()),
+        }
     }
 
     /// The state-dependent parameters (OCV, Thevenin R0, R1, C1 at the temperature) at one
@@ -90,7 +149,7 @@ impl BatteryModel {
     pub fn freeze<'a>(&'a self, s: &BatteryState) -> Frozen<'a> {
         let (r0_ohm, r1_ohm, c1_f) = match self {
             BatteryModel::LiIon(m) => m.pack_rc(s.temp_c),
-            BatteryModel::LeadAcid(_) => (0.0, 0.0, 0.0),
+            BatteryModel::LeadAcid(m) => (m.ohmic_r_ohm(), 0.0, 0.0),
         };
         Frozen {
             model: self,
@@ -102,12 +161,10 @@ impl BatteryModel {
         }
     }
 
-    /// Current at which the terminal voltage equals `v`, A (negative if `v` is below the rest voltage).
+    /// Current at which the static terminal voltage equals `v`, A (negative below the rest
+    /// voltage).
     pub fn current_at_v(&self, v: f64, s: &BatteryState) -> f64 {
-        match self {
-            BatteryModel::LiIon(m) => m.current_at_v(v, s),
-            BatteryModel::LeadAcid(m) => m.current_at_v(v, s),
-        }
+        self.static_terminal(s).current_at(v)
     }
 
     /// Charge limit of the battery terminals at battery temperature `temp_c`, V.
@@ -136,9 +193,7 @@ impl BatteryModel {
 
     /// dSOC/dt at current `i`, 1/s.
     pub fn soc_rate(&self, i: f64, s: &BatteryState) -> f64 {
-        let eta = self.charge_efficiency(i, s);
-        let eff_i = if i > 0.0 { eta * i } else { i };
-        eff_i / self.capacity_as()
+        self.freeze(s).rates(i).soc
     }
 
     /// Charge efficiency at current `i` (1 on discharge).
@@ -152,9 +207,9 @@ impl BatteryModel {
         }
     }
 
-    /// dV_RC/dt, V/s (0 for lead-acid).
+    /// dV_RC/dt, V/s.
     pub fn v_rc_rate(&self, i: f64, s: &BatteryState) -> f64 {
-        self.freeze(s).v_rc_rate(i)
+        self.freeze(s).rates(i).v_rc
     }
 
     /// Internal power flows at current `i` with terminal voltage `v`.
@@ -162,7 +217,8 @@ impl BatteryModel {
         self.freeze(s).powers(i, v)
     }
 
-    /// Energy held in the RC capacitance, J.
+    /// Energy held in the RC capacitance, J. The lead-acid pair's power V_RC·I is booked as heat as
+    /// it arrives (its capacitor τ1/R1 changes with the current), so it holds none here.
     pub fn rc_energy_j(&self, s: &BatteryState) -> f64 {
         match self {
             BatteryModel::LiIon(m) => {
@@ -202,59 +258,91 @@ pub struct Frozen<'a> {
     pub state: BatteryState,
     /// Open-circuit voltage of the whole battery, V.
     pub ocv_v: f64,
-    /// Li-ion pack series resistance, RC-branch resistance, Ω, and capacitance, F (0 for lead-acid).
+    /// Series (ohmic) resistance, Ω; Li-ion RC-branch resistance, Ω, and capacitance, F (0 for
+    /// lead-acid, whose pair is nonlinear).
     pub r0_ohm: f64,
     pub r1_ohm: f64,
     pub c1_f: f64,
 }
 
 impl<'a> Frozen<'a> {
-    /// The terminal characteristic V(I) at this state.
+    /// The terminal characteristic V(I) at this instant: OCV + V_RC + R0·I.
     pub fn terminal(&self) -> Terminal<'a> {
-        match self.model {
-            BatteryModel::LiIon(_) => Terminal::Linear {
-                rest_v: self.ocv_v + self.state.v_rc_v,
-                r_ohm: self.r0_ohm,
-            },
-            BatteryModel::LeadAcid(m) => Terminal::Curve {
-                model: m,
-                state: self.state,
-            },
+        Terminal::Linear {
+            rest_v: self.ocv_v + self.state.v_rc_v,
+            r_ohm: self.r0_ohm,
         }
     }
 
-    /// dV_RC/dt = I/C1 − V_RC/(R1·C1), V/s (0 for lead-acid).
-    pub fn v_rc_rate(&self, i: f64) -> f64 {
-        match self.model {
-            BatteryModel::LiIon(_) => {
-                li_ion::rc_branch_rate(i, self.state.v_rc_v, self.r1_ohm, self.c1_f)
-            }
-            BatteryModel::LeadAcid(_) => 0.0,
-        }
+    /// Rates of the slow states at current `i`.
+    pub fn rates(&self, i: f64) -> BatteryRates {
+        self.flows(i, self.ocv_v + self.state.v_rc_v + self.r0_ohm * i)
+            .1
     }
 
-    /// Internal power flows at current `i` with terminal voltage `v`: stored OCV·η·I, the
-    /// coulombic loss OCV·(1 − η)·I, and the ohmic heat (Li-ion I²·R0 + V_RC²/R1; lead-acid the
-    /// over-voltage (V − OCV)·I).
+    /// Internal power flows at current `i` with terminal voltage `v`.
     pub fn powers(&self, i: f64, v: f64) -> BatteryPowers {
+        self.flows(i, v).0
+    }
+
+    /// Power flows and state rates at current `i` with terminal voltage `v`, evaluated once.
+    ///
+    /// Li-ion: stored OCV·η·I (η the coulombic efficiency times the charge acceptance, which
+    /// ends at full), the coulombic loss OCV·(1 − η)·I as heat, the ohmic heat
+    /// I²·R0 + V_RC²/R1 and the RC capacitor's store; dV_RC/dt = I/C1 − V_RC/(R1·C1).
+    ///
+    /// Lead-acid: stored OCV·η·I_m; the gassing current I_gas = I − η·I_m (what does not store)
+    /// carries OCV·I_gas, of which the thermoneutral 1.481 V per cell leaves as gas for the share
+    /// that escapes and the rest heats the cell; the over-voltage (V − OCV)·I heats it too. These
+    /// add up to V·I exactly.
+    pub fn flows(&self, i: f64, v: f64) -> (BatteryPowers, BatteryRates) {
         let s = &self.state;
         let ocv = self.ocv_v;
-        let eta = self.model.charge_efficiency(i, s);
-        let stored = ocv * if i > 0.0 { eta * i } else { i };
-        let coulombic = if i > 0.0 { ocv * (1.0 - eta) * i } else { 0.0 };
         match self.model {
-            BatteryModel::LiIon(_) => BatteryPowers {
-                ohmic_w: i * i * self.r0_ohm + s.v_rc_v * s.v_rc_v / self.r1_ohm,
-                coulombic_loss_w: coulombic,
-                stored_w: stored,
-                rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / self.r1_ohm,
-            },
-            BatteryModel::LeadAcid(_) => BatteryPowers {
-                ohmic_w: (v - ocv) * i,
-                coulombic_loss_w: coulombic,
-                stored_w: stored,
-                rc_store_w: 0.0,
-            },
+            BatteryModel::LiIon(m) => {
+                // Charge acceptance ends at full (li_ion::charge_acceptance): what is not stored
+                // heats the cell, so SOC cannot pass 1.
+                let eta = if i > 0.0 {
+                    m.charge_efficiency(s.soc)
+                } else {
+                    1.0
+                };
+                let stored_a = if i > 0.0 { eta * i } else { i };
+                (
+                    BatteryPowers {
+                        ohmic_w: i * i * self.r0_ohm + s.v_rc_v * s.v_rc_v / self.r1_ohm,
+                        coulombic_loss_w: ocv * (i - stored_a),
+                        stored_w: ocv * stored_a,
+                        rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / self.r1_ohm,
+                        gas_w: 0.0,
+                    },
+                    BatteryRates {
+                        soc: stored_a / (3600.0 * m.capacity_ah),
+                        v_rc: li_ion::rc_branch_rate(i, s.v_rc_v, self.r1_ohm, self.c1_f),
+                        progress: 0.0,
+                    },
+                )
+            }
+            BatteryModel::LeadAcid(m) => {
+                let f = m.flows(i, s);
+                let stored_a = i - f.gassing_a;
+                let gas_w =
+                    m.gas_escape_fraction() * lead_acid::THERMONEUTRAL_V * m.cells * f.gassing_a;
+                (
+                    BatteryPowers {
+                        ohmic_w: (v - ocv) * i,
+                        coulombic_loss_w: ocv * f.gassing_a - gas_w,
+                        stored_w: ocv * stored_a,
+                        rc_store_w: 0.0,
+                        gas_w,
+                    },
+                    BatteryRates {
+                        soc: f.soc_rate,
+                        v_rc: f.v_rc_rate,
+                        progress: f.progress_rate,
+                    },
+                )
+            }
         }
     }
 }
@@ -264,7 +352,7 @@ impl<'a> Frozen<'a> {
 pub enum Terminal<'a> {
     /// V = rest + I·R (Thevenin pack with its RC voltage frozen).
     Linear { rest_v: f64, r_ohm: f64 },
-    /// Lead-acid charge curve.
+    /// Lead-acid charge curve with its polarisation settled (static figures only).
     Curve {
         model: &'a LeadAcidModel,
         state: BatteryState,
@@ -276,7 +364,7 @@ impl Terminal<'_> {
     pub fn v(&self, i: f64) -> (f64, f64) {
         match self {
             Terminal::Linear { rest_v, r_ohm } => (rest_v + i * r_ohm, *r_ohm),
-            Terminal::Curve { model, state } => model.terminal_v(i, state),
+            Terminal::Curve { model, state } => model.settled_v(i, state),
         }
     }
 
@@ -292,7 +380,7 @@ impl Terminal<'_> {
                     f64::NEG_INFINITY
                 }
             }
-            Terminal::Curve { model, state } => model.current_at_v(v, state),
+            Terminal::Curve { model, state } => model.settled_current_at(v, state),
         }
     }
 }
