@@ -948,20 +948,23 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         reconnect_v: 4.6,
         reconnect_delay_s: 2.0,
         ramp_s: 0.0,
+        // Below the cut-off: the input regulation never acts in the first two cases.
+        input_regulation_v: 3.0,
     };
     let cell = Terminal::Linear {
         rest_v: rest,
         r_ohm: r_cell,
     };
-    let solve = |emf: f64| {
+    let solve_with = |emf: f64, port: &UsbModel| {
         let src = Source {
             generator: &g,
             diode: &diode,
             emf_v: emf,
             resistance_ohm: r_g,
         };
-        usb_network::solve(&src, &conv, &port, (5.0, 1.5), demand, &cell)
+        usb_network::solve(&src, &conv, port, (5.0, 1.5), demand, &cell)
     };
+    let solve = |emf: f64| solve_with(emf, &port);
     // From memory: Erickson & Maksimović, Fundamentals of Power Electronics, 2nd ed., ch. 3 —
     // the buck's averaged inductor balance with switch drop and on-resistance, catch-diode drop and
     // inductor resistance, at duty D: V_bus = D·(V_in − V_sw − I·R_on + V_D) − V_D − I·R_L; its input
@@ -1007,6 +1010,33 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
     assert!(
         (p.battery_v - (rest + r_cell * i)).abs() < 1e-9,
         "the cell's terminal"
+    );
+
+    // Common practice: a USB charger IC regulates its input (input-voltage dynamic power
+    // management): below its threshold it cuts the draw so that the bus settles there. Modelled
+    // as a stiff line, nothing at V_dpm = 4.5 V and the whole 1-A demand 50 mV above it; on the
+    // same saturated line V_bus = A − B·I the bus settles where I = (V_bus − V_dpm)/R_dpm:
+    // I = (A − V_dpm)/(B + R_dpm).
+    let regulated = UsbModel {
+        input_regulation_v: 4.5,
+        ..port
+    };
+    let r_dpm = 0.05 / demand;
+    let i = (a - 4.5) / (b + r_dpm);
+    assert!(
+        i > 0.0 && i < demand,
+        "the case is in input regulation ({i} A)"
+    );
+    let (_, bus) = solve_with(emf, &regulated);
+    assert!(
+        (bus.bus_current_a - i).abs() < 1e-9,
+        "{} vs {i} A",
+        bus.bus_current_a
+    );
+    assert!(
+        bus.bus_v > 4.5 && bus.bus_v < 4.55,
+        "the bus held just above the regulation threshold: {} V",
+        bus.bus_v
     );
 }
 

@@ -34,7 +34,19 @@ pub struct UsbModel {
     pub reconnect_delay_s: f64,
     /// Time the device ramps its draw up over after attaching, s (0: at once).
     pub ramp_s: f64,
+    /// Input-voltage regulation: the device draws nothing at this bus voltage and its full
+    /// demand [`DPM_SPAN_V`] above it, V.
+    pub input_regulation_v: f64,
 }
+
+/// Span of bus voltage over which the device's input regulation takes its draw from nothing to
+/// the full demand, V: a stiff loop, as a charger IC's input regulation is.
+pub const DPM_SPAN_V: f64 = 0.05;
+
+/// Least current an attached device that asks for charge draws, A: its input regulation can cut
+/// the charge current to nothing but not the few milliamperes its own circuits take, so a bus
+/// nothing feeds still runs down to the cut-off (our choice; a few mA is the usual size).
+pub const DEVICE_FLOOR_A: f64 = 0.005;
 
 impl UsbModel {
     /// Builds the model from the configuration.
@@ -51,7 +63,14 @@ impl UsbModel {
             reconnect_v: u.device_reconnect_v,
             reconnect_delay_s: u.device_reconnect_delay_s,
             ramp_s: u.device_ramp_s,
+            input_regulation_v: u.device_input_regulation_v,
         }
+    }
+
+    /// Resistance of the input-regulation line, Ω: the draw rises from nothing at
+    /// `input_regulation_v` to `demand_a` [`DPM_SPAN_V`] above it.
+    fn dpm_ohm(&self) -> f64 {
+        DPM_SPAN_V / self.device_current_a.max(1e-6)
     }
 
     /// Fraction of its demand the device allows itself `since_s` after attaching: a linear ramp
@@ -70,13 +89,33 @@ impl UsbModel {
     }
 
     /// Current the device draws from a bus at `bus_v` when its charger asks for `demand_a`, A,
-    /// with its slope dI/dV, S. The pass element passes the demand while the headroom allows,
-    /// else it is fully on: I·R_pass + V_cell(I) = V_bus; it never lets the cell back-feed the bus.
-    /// For a Thevenin cell (V_cell = V_rest + I·R): I = clamp((V_bus − V_rest)/(R_pass + R), 0, demand).
+    /// with its slope dI/dV, S: the least of three. The demand; the pass element fully on,
+    /// I·R_pass + V_cell(I) = V_bus (it never lets the cell back-feed the bus); and the input
+    /// regulation, I = (V_bus − V_dpm)/R_dpm, by which a device on a sagging bus draws less
+    /// rather than pulling the bus down to its cut-off.
+    /// For a Thevenin cell (V_cell = V_rest + I·R) the pass line is I = (V_bus − V_rest)/(R_pass + R).
     pub fn device_current_a(&self, bus_v: f64, demand_a: f64, cell: &Terminal) -> (f64, f64) {
         if demand_a <= 0.0 {
             return (0.0, 0.0);
         }
+        let (i_pass, s_pass) = self.pass_current_a(bus_v, demand_a, cell);
+        let r_dpm = self.dpm_ohm();
+        let i_dpm = (bus_v - self.input_regulation_v) / r_dpm;
+        // Input regulation cuts the draw down to the device's floor, never below it (nor above
+        // what the pass element lets through).
+        let floor = DEVICE_FLOOR_A.min(demand_a).min(i_pass);
+        if i_dpm <= floor {
+            (floor, if floor < i_pass { 0.0 } else { s_pass })
+        } else if i_dpm < i_pass {
+            (i_dpm, 1.0 / r_dpm)
+        } else {
+            (i_pass, s_pass)
+        }
+    }
+
+    /// The demand or, without the headroom for it, the current the fully-on pass element lets
+    /// through, A, with its slope dI/dV, S.
+    fn pass_current_a(&self, bus_v: f64, demand_a: f64, cell: &Terminal) -> (f64, f64) {
         let r_pass = self.device_pass_ohm;
         if let Terminal::Linear { rest_v, r_ohm } = cell {
             let r = (r_pass + r_ohm).max(1e-12);
@@ -102,9 +141,11 @@ impl UsbModel {
         }
     }
 
-    /// Bus voltage at which the device, fully on, draws `current_a`: V_cell(I) + I·R_pass, V.
+    /// Bus voltage at which the device draws `current_a` below its demand: on the fully-on pass
+    /// line V_cell(I) + I·R_pass, or on the input-regulation line, whichever is higher, V.
     pub fn bus_for_current_v(&self, current_a: f64, cell: &Terminal) -> f64 {
-        cell.v(current_a).0 + current_a * self.device_pass_ohm
+        (cell.v(current_a).0 + current_a * self.device_pass_ohm)
+            .max(self.input_regulation_v + current_a * self.dpm_ohm())
     }
 }
 
@@ -184,6 +225,8 @@ pub(crate) fn test_port() -> UsbModel {
         reconnect_v: 4.6,
         reconnect_delay_s: 2.0,
         ramp_s: 0.5,
+        // Below the cut-off: these tests see the pass line alone.
+        input_regulation_v: 3.0,
     }
 }
 
@@ -222,6 +265,31 @@ mod tests {
         // The bus at which the fully-on device draws I is the inverse of that line.
         let v = u.bus_for_current_v(0.5, &cell);
         assert!((v - (rest + 0.5 * (r + 0.3))).abs() < 1e-12);
+    }
+
+    #[test]
+    fn input_regulation_cuts_the_draw_to_hold_the_bus_down_to_the_devices_floor() {
+        let u = UsbModel {
+            input_regulation_v: 4.5,
+            ..port()
+        };
+        let cell = Terminal::Linear {
+            rest_v: 3.7,
+            r_ohm: 0.04,
+        };
+        // Above the line's top (4.55 V at the 1-A demand) the demand flows.
+        assert_eq!(u.device_current_a(4.6, 1.0, &cell).0, 1.0);
+        // On the line: 0 A at 4.5 V rising to the demand at 4.55 V.
+        let (i, s) = u.device_current_a(4.525, 1.0, &cell);
+        assert!(
+            (i - 0.5).abs() < 1e-12 && (s - 20.0).abs() < 1e-9,
+            "{i} {s}"
+        );
+        // Below it the device still takes its floor; without demand, nothing.
+        assert_eq!(u.device_current_a(4.45, 1.0, &cell), (DEVICE_FLOOR_A, 0.0));
+        assert_eq!(u.device_current_a(4.45, 0.0, &cell), (0.0, 0.0));
+        // The inverse: the bus at which the device draws 0.5 A is on the regulation line.
+        assert!((u.bus_for_current_v(0.5, &cell) - 4.525).abs() < 1e-12);
     }
 
     #[test]

@@ -524,6 +524,13 @@ pub struct UsbPort {
     /// of its cell.
     #[serde(default)]
     pub device_termination_current_a: Option<f64>,
+    /// Input-voltage regulation of the device's charger, V (2.5 … 5.5, below `bus_v`; at or below
+    /// `device_cutoff_v` it never acts): when the bus sags towards it the device draws less, so
+    /// that a weak source settles at this voltage instead of collapsing under the full draw and
+    /// cutting the device off. Default 4.5: USB charger ICs hold their input at a programmable
+    /// threshold of about 4.4–4.6 V this way (input-voltage dynamic power management).
+    #[serde(default = "default_device_input_regulation")]
+    pub device_input_regulation_v: f64,
     /// Lower edge of the bus regulation band, V (3 … 5.5); default 4.75 (USB 2.0 §7.2.1; BC 1.2).
     #[serde(default = "default_band_low")]
     pub band_low_v: f64,
@@ -552,6 +559,9 @@ fn default_device_reconnect_delay() -> f64 {
 }
 fn default_device_ramp() -> f64 {
     0.5
+}
+fn default_device_input_regulation() -> f64 {
+    4.5
 }
 fn default_band_low() -> f64 {
     4.75

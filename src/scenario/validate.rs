@@ -716,6 +716,18 @@ fn usb(c: &mut Checker, s: &Setup, u: &UsbPort) {
         60.0,
     );
     c.range("usb.device_ramp_s", u.device_ramp_s, 0.0, 10.0);
+    c.range(
+        "usb.device_input_regulation_v",
+        u.device_input_regulation_v,
+        2.5,
+        5.5,
+    );
+    c.rule(
+        u.device_input_regulation_v < u.bus_v,
+        "usb.device_input_regulation_v",
+        format!("{}", u.device_input_regulation_v),
+        "below usb.bus_v (the device regulates its input below the bus set point)",
+    );
     c.opt_range(
         "usb.device_termination_current_a",
         u.device_termination_current_a,

@@ -469,10 +469,17 @@ impl Plant {
         let frozen = self.battery.freeze(&bs);
         let term = frozen.terminal();
         let request = self.request(d, bs.temp_c, band, y[SOFT_START]);
-        let usb_eval = self
-            .usb
-            .as_ref()
-            .map(|u| self.usb_network(u, &src, (t, request), &term, y, d));
+        let usb_eval = self.usb.as_ref().map(|u| {
+            // The device's charger asks for current whether or not the converter runs (it
+            // cannot tell until the bus runs down): its request as if the converter were on.
+            let device = Discrete {
+                enabled: true,
+                ov_shutdown: false,
+                ..*d
+            };
+            let device_request = self.request(&device, bs.temp_c, band, y[SOFT_START]);
+            self.usb_network(u, &src, (t, request, device_request), &term, y, d)
+        });
         let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
             _ if self.usb.is_some() => usb_eval.map_or_else(Default::default, |u| u.electrical),
             Fidelity::Fast => {

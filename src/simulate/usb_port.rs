@@ -73,19 +73,20 @@ pub fn usb_gains(setup: &Setup, buck: &BuckModel, u: &UsbModel) -> ControllerGai
 }
 
 impl Plant {
-    /// The network with a USB port at the plant's fidelity at time `t`. The device asks for its CC
-    /// limit, or the current that holds its cell at the CV voltage, while it is attached and not
-    /// holding, ramped up over its first `ramp_s` after attaching.
+    /// The network with a USB port at the plant's fidelity at time `t`, the converter serving
+    /// request `r`. The device asks (`device`, its charger's request) for its CC limit, or the
+    /// current that holds its cell at the CV voltage, while it is attached and not holding, ramped
+    /// up over its first `ramp_s` after attaching; it keeps asking while the converter is off.
     pub(super) fn usb_network(
         &self,
         u: &UsbModel,
         src: &Source,
-        (t, r): (f64, Request),
+        (t, r, device): (f64, Request, Request),
         cell: &Terminal,
         y: &State,
         d: &Discrete,
     ) -> UsbEval {
-        let (demand, cv) = match r {
+        let (demand, cv) = match device {
             Request::Charge {
                 cc_limit_a,
                 v_set,
