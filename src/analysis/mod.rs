@@ -3,6 +3,7 @@
 pub mod episodes;
 pub mod events;
 pub mod fit;
+pub mod pareto;
 pub mod stats;
 pub mod summary;
 pub mod trace;

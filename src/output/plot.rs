@@ -11,6 +11,8 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use super::font;
+
+pub mod design;
 use crate::analysis::events::{Event, EventKind};
 use crate::analysis::trace::{Trace, TraceRow};
 
