@@ -6,5 +6,6 @@ mod common;
 mod fidelity;
 mod hardening;
 mod run_cli;
+mod search_cli;
 mod studies_cli;
 mod validation;

@@ -48,16 +48,23 @@ mod tests {
             .iter()
             .map(|p| {
                 ok(p)
-                    && !points.iter().any(|q| {
-                        ok(q) && q.0 <= p.0 && q.1 <= p.1 && (q.0 < p.0 || q.1 < p.1)
-                    })
+                    && !points
+                        .iter()
+                        .any(|q| ok(q) && q.0 <= p.0 && q.1 <= p.1 && (q.0 < p.0 || q.1 < p.1))
             })
             .collect()
     }
 
     #[test]
     fn front_of_a_small_set() {
-        let p = [(1.0, 5.0), (2.0, 3.0), (3.0, 4.0), (4.0, 1.0), (2.0, 3.0), (5.0, 1.0)];
+        let p = [
+            (1.0, 5.0),
+            (2.0, 3.0),
+            (3.0, 4.0),
+            (4.0, 1.0),
+            (2.0, 3.0),
+            (5.0, 1.0),
+        ];
         assert_eq!(
             non_dominated(&p),
             [true, true, false, true, true, false],

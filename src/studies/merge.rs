@@ -44,8 +44,12 @@ fn read_settings(dir: &Path) -> Result<Settings, Failure> {
             path.display()
         ))
     })?;
-    serde_json::from_str(&text)
-        .map_err(|e| input(format!("'{}' is not a search's settings file: {e}", path.display())))
+    serde_json::from_str(&text).map_err(|e| {
+        input(format!(
+            "'{}' is not a search's settings file: {e}",
+            path.display()
+        ))
+    })
 }
 
 /// Executes `merge`.

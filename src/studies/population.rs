@@ -164,8 +164,10 @@ pub fn evaluate(
     }
     let n = done.len();
     let share = |k: usize| -> [Option<f64>; 3] {
+        let p = k as f64 / n as f64;
         let (lo, hi) = stats::wilson_interval(k, n, Z95).unwrap_or((0.0, 1.0));
-        [Some(k as f64 / n as f64), Some(lo), Some(hi)]
+        // The interval holds p̂; rounding can leave an end a few ulp on the wrong side of it.
+        [Some(p), Some(lo.min(p)), Some(hi.max(p))]
     };
     let over = done.iter().filter(|r| r.overcharge).count();
     let overload = done.iter().filter(|r| r.overload).count();

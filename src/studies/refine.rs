@@ -33,7 +33,9 @@ const SD_TOLERANCE: f64 = 1e-10;
 /// The rank of a row for the refinement (and for picking the best point): smaller is better.
 pub fn cost(study: &Study, row: &Row) -> f64 {
     if study.feasible(row) {
-        let v = study.value(row, &study.objective.figure).unwrap_or(f64::NAN);
+        let v = study
+            .value(row, &study.objective.figure)
+            .unwrap_or(f64::NAN);
         study.objective.sense.cost(v)
     } else {
         PENALTY * (1.0 + study.violation(row))
@@ -166,7 +168,11 @@ pub fn refine(
             }
             .max(2.0 * QUANTUM);
             let mut v = x0.clone();
-            v[k] = if x0[k] + step <= 1.0 { x0[k] + step } else { x0[k] - step };
+            v[k] = if x0[k] + step <= 1.0 {
+                x0[k] + step
+            } else {
+                x0[k] - step
+            };
             simplex.push(v);
         }
         let problem = Objective {

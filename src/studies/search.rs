@@ -72,7 +72,12 @@ pub struct SearchArgs {
     #[arg(long = "require", value_name = "FIGURE<=VALUE")]
     pub require: Vec<String>,
     /// The figure (or numeric --vary key) to make as small as possible.
-    #[arg(long, value_name = "FIGURE", visible_alias = "minimize", conflicts_with = "maximise")]
+    #[arg(
+        long,
+        value_name = "FIGURE",
+        visible_alias = "minimize",
+        conflicts_with = "maximise"
+    )]
     pub minimise: Option<String>,
     /// The figure (or numeric --vary key) to make as large as possible (default: charge_mean_ah).
     #[arg(long, value_name = "FIGURE", visible_alias = "maximize")]
@@ -212,8 +217,8 @@ impl Study {
     /// Builds the settings of a `search` command line.
     pub fn settings_from_args(a: &SearchArgs) -> Result<Settings, Failure> {
         let setup = SourceText::resolve(a.setup.as_deref(), InputKind::Setup).map_err(input)?;
-        let profile = SourceText::resolve(a.session.profile.as_deref(), InputKind::Profile)
-            .map_err(input)?;
+        let profile =
+            SourceText::resolve(a.session.profile.as_deref(), InputKind::Profile).map_err(input)?;
         let base = load_scenario(&setup, &profile, &a.session.set).map_err(input)?;
         let objective = match (&a.minimise, &a.maximise) {
             (Some(f), _) => Objective {
@@ -244,8 +249,7 @@ impl Study {
                     .collect::<Result<_, _>>()
                     .map_err(input)?;
                 let known = |f: &str| is_known(f, &axes);
-                let natural =
-                    |f: &str| figure_index(f).map(|i| FIGURES[i].better);
+                let natural = |f: &str| figure_index(f).map(|i| FIGURES[i].better);
                 Some(parse_pareto(p, &known, &natural).map_err(input)?)
             }
             None => None,
@@ -312,9 +316,12 @@ impl Study {
         }
         let mut axes: Vec<Axis> = Vec::with_capacity(settings.vary.len());
         for v in &settings.vary {
-            let mut axis = parse_axis(v).map_err(input)?;
+            let axis = parse_axis(v).map_err(input)?;
             if axes.iter().any(|a| a.key == axis.key) {
-                return Err(input(format!("--vary {}: that key is varied twice", axis.key)));
+                return Err(input(format!(
+                    "--vary {}: that key is varied twice",
+                    axis.key
+                )));
             }
             if base_set.iter().any(|o| o.key == axis.key) {
                 return Err(input(format!(
@@ -322,6 +329,17 @@ impl Study {
                     axis.key
                 )));
             }
+            axes.push(axis);
+        }
+        if settings.design == DesignArg::Grid {
+            let n = grid_size(&axes);
+            if n > MAX_GRID_POINTS {
+                return Err(input(format!(
+                    "--vary: the grid has {n} points; allowed at most {MAX_GRID_POINTS} (use fewer values, or --design lhs --samples N)"
+                )));
+            }
+        }
+        for axis in &mut axes {
             // Every level alone on the base, so a bad key or value is named as such.
             for level in &axis.levels {
                 let sc = scenario_with(&setup_src, &profile_src, &base_set, &[(&axis.key, level)])
@@ -329,10 +347,11 @@ impl Study {
                 build_plant(&sc)
                     .map_err(|e| input(format!("--vary {}={}: {e}", axis.key, level)))?;
             }
-            if axis.kind == AxisKind::Continuous && is_whole_number_field(&axis, &setup_src, &profile_src, &base_set) {
+            if axis.kind == AxisKind::Continuous
+                && is_whole_number_field(axis, &setup_src, &profile_src, &base_set)
+            {
                 axis.kind = AxisKind::Integer;
             }
-            axes.push(axis);
         }
         let known = |f: &str| is_known(f, &axes);
         let constraints: Vec<Constraint> = settings
@@ -347,25 +366,19 @@ impl Study {
                 "--{} {}: neither a figure of points.csv ({}) nor a numeric --vary key",
                 objective.sense.word(),
                 objective.figure,
-                FIGURES.iter().map(|f| f.name).collect::<Vec<_>>().join(", ")
+                FIGURES
+                    .iter()
+                    .map(|f| f.name)
+                    .collect::<Vec<_>>()
+                    .join(", ")
             )));
         }
         let design = match settings.design {
-            DesignArg::Grid => {
-                let n = grid_size(&axes);
-                if n > MAX_GRID_POINTS {
-                    return Err(input(format!(
-                        "--vary: the grid has {n} points; allowed at most {MAX_GRID_POINTS} (use fewer values, or --design lhs --samples N)"
-                    )));
-                }
-                Design::Grid
-            }
+            DesignArg::Grid => Design::Grid,
             DesignArg::Lhs => {
                 let n = settings.samples.unwrap_or(0);
                 if !(2..=MAX_SAMPLES).contains(&n) {
-                    return Err(input(format!(
-                        "--samples {n}: allowed 2 ..= {MAX_SAMPLES}"
-                    )));
+                    return Err(input(format!("--samples {n}: allowed 2 ..= {MAX_SAMPLES}")));
                 }
                 Design::Lhs { samples: n }
             }
@@ -680,9 +693,8 @@ pub fn open_folder(study: &Study, out: &Path, resume: bool) -> Result<Vec<Row>, 
             }
         }
     } else {
-        fs::create_dir_all(out).map_err(|e| {
-            input(format!("could not create '{}': {e}", out.display()))
-        })?;
+        fs::create_dir_all(out)
+            .map_err(|e| input(format!("could not create '{}': {e}", out.display())))?;
         for stale in search_finish::OUTPUT_FILES {
             let p = out.join(stale);
             if p.exists() {

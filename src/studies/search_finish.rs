@@ -151,9 +151,7 @@ pub fn finish(
                 let a = study.value(r, &study.objective.figure);
                 let b = study.value(r, &p.figure);
                 match (f, a, b) {
-                    (true, Some(a), Some(b)) => {
-                        (study.objective.sense.cost(a), p.sense.cost(b))
-                    }
+                    (true, Some(a), Some(b)) => (study.objective.sense.cost(a), p.sense.cost(b)),
                     _ => (f64::NAN, f64::NAN),
                 }
             })
@@ -489,8 +487,7 @@ fn best_texts(study: &Study, row: &Row) -> Result<(String, Option<String>), Fail
                 .map(|(a, v)| (a.key.clone(), v.clone())),
         );
     let edit = |text: &str, key: &str, value: &str| -> Result<String, Failure> {
-        let path = ronpath::parse_path(key)
-            .map_err(|e| Failure::Other(anyhow!("{key}: {e}")))?;
+        let path = ronpath::parse_path(key).map_err(|e| Failure::Other(anyhow!("{key}: {e}")))?;
         ronpath::set(text, &path, value)
             .map(|e| e.text)
             .map_err(|e| Failure::Other(anyhow!("writing best.ron: {e}")))
@@ -532,7 +529,9 @@ fn best_texts(study: &Study, row: &Row) -> Result<(String, Option<String>), Fail
         },
         &SourceText {
             name: "best-profile.ron".into(),
-            text: profile.clone().unwrap_or_else(|| study.profile_src.text.clone()),
+            text: profile
+                .clone()
+                .unwrap_or_else(|| study.profile_src.text.clone()),
         },
         &[],
     );
@@ -656,7 +655,8 @@ fn print_report(study: &Study, r: &Report, all: &[Row], pareto: Option<&[bool]>,
                 say(&format!(
                     "  {}: {} ({})",
                     c.require,
-                    c.value.map_or_else(|| "n/a".to_string(), |v| format!("{v:.6}")),
+                    c.value
+                        .map_or_else(|| "n/a".to_string(), |v| format!("{v:.6}")),
                     if c.met { "met" } else { "NOT met" }
                 ));
             }
@@ -680,7 +680,9 @@ fn print_report(study: &Study, r: &Report, all: &[Row], pareto: Option<&[bool]>,
             .map(|(r, _)| r)
             .collect();
         rows.sort_by(|a, b| cost(study, a).total_cmp(&cost(study, b)));
-        for row in rows {
+        const SHOWN: usize = 12;
+        let more = rows.len().saturating_sub(SHOWN);
+        for row in rows.into_iter().take(SHOWN) {
             let v = |name: &str| {
                 study
                     .value(row, name)
@@ -694,6 +696,11 @@ fn print_report(study: &Study, r: &Report, all: &[Row], pareto: Option<&[bool]>,
                 p.figure,
                 v(&p.figure),
                 study.describe(&row.values)
+            ));
+        }
+        if more > 0 {
+            say(&format!(
+                "    … and {more} more (pareto = true in points.csv)"
             ));
         }
     }

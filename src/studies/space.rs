@@ -86,7 +86,9 @@ impl Axis {
 /// `Continuous`.
 pub fn parse_axis(arg: &str) -> Result<Axis, String> {
     let (key, spec) = arg.split_once('=').ok_or_else(|| {
-        format!("--vary '{arg}': expected KEY=SPEC, SPEC a comma list (nmc,lfp) or A..B:N (2..8:13)")
+        format!(
+            "--vary '{arg}': expected KEY=SPEC, SPEC a comma list (nmc,lfp) or A..B:N (2..8:13)"
+        )
     })?;
     let (key, spec) = (key.trim(), spec.trim());
     if key.is_empty() || spec.is_empty() {
@@ -96,8 +98,12 @@ pub fn parse_axis(arg: &str) -> Result<Axis, String> {
         let (to, steps) = rest.split_once(':').ok_or_else(|| {
             format!("--vary {key}={spec}: a range is A..B:N, N values including both ends (e.g. 2..8:13)")
         })?;
-        let grid: Grid = parse_range(&format!("{from}:{to}:{steps}"))
-            .map_err(|e| format!("--vary {key}={spec}: {}", e.replace("FROM:TO:STEPS", "A..B:N")))?;
+        let grid: Grid = parse_range(&format!("{from}:{to}:{steps}")).map_err(|e| {
+            format!(
+                "--vary {key}={spec}: {}",
+                e.replace("FROM:TO:STEPS", "A..B:N")
+            )
+        })?;
         if grid.to <= grid.from {
             return Err(format!(
                 "--vary {key}={spec}: the range must rise (A < B), got {} .. {}",
