@@ -2,6 +2,7 @@
 
 mod alerts;
 mod breadth;
+mod check_map;
 mod common;
 mod fidelity;
 mod hardening;

@@ -8,6 +8,7 @@ pub mod fit;
 pub mod goal;
 pub mod merge;
 pub mod montecarlo;
+pub mod operating_map;
 pub mod population;
 pub mod refine;
 pub mod run;
