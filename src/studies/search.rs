@@ -100,7 +100,8 @@ pub struct SearchArgs {
     /// Run only part K of N (points whose number mod N is K−1); join the parts with `merge`.
     #[arg(long, value_parser = parse_shard, value_name = "K/N")]
     pub shard: Option<Shard>,
-    /// Continue the study in --out: points already in its points.csv are not run again.
+    /// Continue the study in --out: points already in its points.csv are not run again (a folder
+    /// without a study starts one).
     #[arg(long)]
     pub resume: bool,
     #[command(flatten)]
@@ -654,12 +655,12 @@ pub fn open_folder(study: &Study, out: &Path, resume: bool) -> Result<Vec<Row>, 
     }
     let settings_path = out.join(SETTINGS_FILE);
     let mut rows = Vec::new();
-    if resume {
+    // `--resume` on a folder that holds no study yet starts it (so a batch job can always pass it).
+    if resume && settings_path.exists() {
         let text = fs::read_to_string(&settings_path).map_err(|e| {
             input(format!(
-                "--resume: '{}' cannot be read ({e}); there is no search to continue in '{}'",
-                settings_path.display(),
-                out.display()
+                "--resume: '{}' cannot be read ({e})",
+                settings_path.display()
             ))
         })?;
         let old: Settings = serde_json::from_str(&text).map_err(|e| {
