@@ -619,3 +619,54 @@ fn search_bad_input_exits_2_naming_the_problem() {
         assert!(!wd.path("s/points.csv").exists(), "{extra:?}: nothing run");
     }
 }
+
+#[test]
+fn ctrl_c_leaves_the_finished_points_and_resume_completes_the_same_study() {
+    let wd = WorkDir::new();
+    let mut args = small_study("s");
+    args[6] = "8".to_string(); // --operators 8
+    args[8] = "120".to_string(); // --duration 120
+    let mut child = std::process::Command::new(assert_cmd::cargo::cargo_bin("crankcharge"))
+        .args(&args)
+        .current_dir(wd.dir.path())
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .expect("spawn");
+    let points = wd.path("s/points.csv");
+    let started = std::time::Instant::now();
+    let rows_on_disk = || {
+        fs::read_to_string(&points)
+            .map(|t| t.lines().count().saturating_sub(1))
+            .unwrap_or(0)
+    };
+    while rows_on_disk() < 2 && started.elapsed().as_secs() < 60 {
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    }
+    let killed = std::process::Command::new("kill")
+        .args(["-INT", &child.id().to_string()])
+        .status()
+        .expect("kill");
+    assert!(killed.success());
+    let status = child.wait().expect("wait");
+    assert!(!status.success(), "the study was interrupted, not finished");
+    let kept = rows_on_disk();
+    assert!(kept >= 2, "finished points stay on disk ({kept})");
+    assert!(
+        !wd.path("s/search.json").exists(),
+        "an interrupted study is not finished"
+    );
+
+    let mut resume = args.clone();
+    resume.push("--resume".into());
+    run_ok(&wd, &strs(&resume));
+    let mut whole = args.clone();
+    let last = whole.len() - 1;
+    whole[last] = "whole".to_string();
+    run_ok(&wd, &strs(&whole));
+    let (a, b) = (files(&wd.path("s")), files(&wd.path("whole")));
+    assert_eq!(a.keys().collect::<Vec<_>>(), b.keys().collect::<Vec<_>>());
+    for (name, bytes) in &a {
+        assert!(b[name] == *bytes, "{name} differs after the resumed study");
+    }
+}
