@@ -670,3 +670,32 @@ fn ctrl_c_leaves_the_finished_points_and_resume_completes_the_same_study() {
         assert!(b[name] == *bytes, "{name} differs after the resumed study");
     }
 }
+
+#[test]
+fn sweep_of_words_draws_them_as_categories() {
+    let wd = WorkDir::new();
+    run_ok(
+        &wd,
+        &[
+            "sweep",
+            "--param",
+            "battery.chemistry",
+            "--values",
+            "nmc,lfp",
+            "--duration",
+            "10",
+            "--out",
+            "w",
+        ],
+    );
+    let svg = fs::read_to_string(wd.path("w/sweep.svg")).expect("svg");
+    let texts: Vec<&str> = svg.lines().map(str::trim).collect();
+    assert!(
+        texts.contains(&"nmc") && texts.contains(&"lfp"),
+        "category labels"
+    );
+    assert!(
+        !svg.contains("value number"),
+        "words are not drawn as numbers"
+    );
+}

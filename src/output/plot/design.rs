@@ -73,15 +73,15 @@ pub fn operating_map_chart(data: &MapData, title: &str) -> Result<Rendered, Plot
     render(&MapFig { data, title })
 }
 
-type Area<'a, DB> = DrawingArea<DB, plotters::coord::Shift>;
-type Plot<'a, DB> = ChartContext<
+pub(super) type Area<'a, DB> = DrawingArea<DB, plotters::coord::Shift>;
+pub(super) type Plot<'a, DB> = ChartContext<
     'a,
     DB,
     Cartesian2d<plotters::coord::types::RangedCoordf64, plotters::coord::types::RangedCoordf64>,
 >;
 
 /// A plain panel; for categories the x labels are left to [`label_categories`].
-fn panel<'a, DB: DrawingBackend>(
+pub(super) fn panel<'a, DB: DrawingBackend>(
     area: &'a Area<'a, DB>,
     caption: &str,
     x: (f64, f64),
@@ -123,7 +123,7 @@ fn panel<'a, DB: DrawingBackend>(
 }
 
 /// Writes each category under its slot (slot k at x = k) and draws a faint line through it.
-fn label_categories<DB: DrawingBackend>(
+pub(super) fn label_categories<DB: DrawingBackend>(
     root: &Area<DB>,
     chart: &Plot<DB>,
     categories: &[String],
