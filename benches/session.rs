@@ -1,8 +1,8 @@
 //! Session benchmark: wall time (and its equivalent per 10-minute session), steps, right-hand-side
 //! evaluations and ns per evaluation, Jacobians, LU decompositions and real-time factor per
-//! shipped setup, fidelity and integration method, and peak memory of long runs. Prints four
-//! tables; run with `cargo bench --bench session` (`-- --quick` for short spans, `-- --memory`
-//! for the memory table alone).
+//! shipped setup, fidelity and integration method, peak memory of long runs, and a whole design
+//! search. Prints five tables; run with `cargo bench --bench session` (`-- --quick` for short
+//! spans, `-- --memory` or `-- --search` for that table alone).
 //!
 //! 1. Whole sessions through the engine (events located, trace sampled, ledger), steady profile.
 //! 2. The golden 3-s detailed scenario against the committed scipy Radau reference: worst trace
@@ -13,6 +13,8 @@
 //!    changes) from the same state with every candidate crate, so the crates meet identical
 //!    equations; the last column is the end state's deviation from a tight-tolerance Radau5 run
 //!    in units of the tolerance (≤ 1 is as asked).
+//! 4. The README's 3-axis `search` on the demo with 64 operators a point, the whole study (grid,
+//!    refinement, files) as the command runs it; target: under 2 minutes on the 2-core machine.
 //!
 //! Integrator choice for the detailed fidelity: **Radau5 from `differential-equations`**. What
 //! the tables showed on the 2-core development machine (December 2026; README has the figures):
@@ -89,10 +91,14 @@ fn main() {
         memory(quick);
         return;
     }
-    sessions(quick);
-    accuracy();
-    stretch(quick);
-    memory(quick);
+    // `-- --search` runs the search table alone.
+    if !std::env::args().any(|a| a == "--search") {
+        sessions(quick);
+        accuracy();
+        stretch(quick);
+        memory(quick);
+    }
+    search_study(quick);
 }
 
 /// Table 4: peak resident memory of whole `run` processes, read from /proc/PID/status (VmHWM)
@@ -171,6 +177,77 @@ fn machine() -> String {
             format!(", {:.0} GiB", kb / 1024.0 / 1024.0)
         });
     format!("{model}, {cores} cores{mem}, {}", std::env::consts::OS)
+}
+
+/// The README's search, as a command line (operators per point last, so `--quick` can cut it).
+const SEARCH_EXAMPLE: [&str; 18] = [
+    "--vary",
+    "drive.stages.0.ratio=3..7:5",
+    "--vary",
+    "converter.charge_current_a=1..2.5:4",
+    "--vary",
+    "battery.chemistry=nmc,lfp",
+    "--require",
+    "p_overcharge<=0.01",
+    "--require",
+    "p_fail_regulation<=0.1",
+    "--require",
+    "charge_p10_ah>=0.2",
+    "--minimise",
+    "mean_operator_power_w",
+    "--refine-evals",
+    "12",
+    "--operators",
+    "64",
+];
+
+/// Table 4: the README's 3-axis search on the demo (40 grid points and the refinement, 64
+/// operators a point, 10-minute sessions), the whole study as `crankcharge search` runs it:
+/// wall time, sessions and sessions per second on every core.
+fn search_study(quick: bool) {
+    use clap::Parser;
+    use crankcharge::cli::{Cli, Command};
+    let out = tempfile::tempdir().expect("temp dir");
+    let dir = out.path().join("search");
+    let mut args: Vec<String> = vec!["crankcharge".into(), "search".into(), "demo".into()];
+    args.extend(SEARCH_EXAMPLE.iter().map(|s| s.to_string()));
+    if quick {
+        let n = args.len();
+        args[n - 1] = "8".into();
+        args.extend(["--duration".to_string(), "60".to_string()]);
+    }
+    args.extend([
+        "--no-plot".to_string(),
+        "--out".to_string(),
+        dir.display().to_string(),
+    ]);
+    let Command::Search(search) = Cli::parse_from(&args).command else {
+        unreachable!("a search command line")
+    };
+    println!();
+    println!(
+        "README search on the demo (whole study, {} thread(s))",
+        rayon::current_num_threads()
+    );
+    let started = Instant::now();
+    let code = crankcharge::studies::search::run(&search).expect("search runs");
+    let wall = started.elapsed().as_secs_f64();
+    assert_eq!(code, 0);
+    let report: serde_json::Value =
+        serde_json::from_slice(&std::fs::read(dir.join("search.json")).expect("search.json"))
+            .expect("json");
+    let points = report["design_points"].as_u64().unwrap_or(0)
+        + report["refined_points"].as_u64().unwrap_or(0);
+    let operators = report["settings"]["operators"].as_u64().unwrap_or(0);
+    let sessions = points * operators;
+    println!(
+        "{:>7} {:>10} {:>9} {:>10} {:>12}",
+        "points", "operators", "sessions", "wall s", "sessions/s"
+    );
+    println!(
+        "{points:>7} {operators:>10} {sessions:>9} {wall:>10.1} {:>12.0}",
+        sessions as f64 / wall
+    );
 }
 
 /// Columns compared with the scipy reference and the tolerance the golden test states for each

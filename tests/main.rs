@@ -2,6 +2,7 @@
 
 mod alerts;
 mod breadth;
+mod check_map;
 mod common;
 mod fidelity;
 mod hardening;
@@ -9,5 +10,6 @@ mod messages;
 mod report_browser;
 mod run_cli;
 mod safety;
+mod search_cli;
 mod studies_cli;
 mod validation;

@@ -41,6 +41,10 @@ pub enum Command {
     Montecarlo(crate::studies::montecarlo::MontecarloArgs),
     /// Fit a generator's back-EMF constant and resistance to measured points.
     FitGenerator(crate::studies::fit::FitArgs),
+    /// Vary several fields at once over a population of operators; constraints, an objective, the best setup.
+    Search(crate::studies::search::SearchArgs),
+    /// Join the parts of a sharded search into the study the unsharded search would write.
+    Merge(crate::studies::merge::MergeArgs),
 }
 
 /// A failure classified by exit code.
@@ -74,6 +78,8 @@ pub fn run(cli: Cli) -> i32 {
         Command::Sweep(a) => crate::studies::sweep::run(&a),
         Command::Montecarlo(a) => crate::studies::montecarlo::run(&a),
         Command::FitGenerator(a) => crate::studies::fit::run(&a),
+        Command::Search(a) => crate::studies::search::run(&a),
+        Command::Merge(a) => crate::studies::merge::run(&a),
     };
     match outcome {
         Ok(code) => code,

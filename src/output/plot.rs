@@ -11,6 +11,8 @@ use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use super::font;
+
+pub mod design;
 use crate::analysis::events::{Event, EventKind};
 use crate::analysis::trace::{Trace, TraceRow};
 
@@ -114,7 +116,25 @@ pub fn compare_chart(runs: &[(String, &Trace)], title: &str) -> Result<Rendered,
 
 /// Charge delivered, in-regulation fraction and mean operator power against a swept parameter.
 pub fn sweep_chart(series: &SweepSeries, title: &str) -> Result<Rendered, PlotError> {
-    render(&SweepFig { series, title })
+    render(&SweepFig {
+        series,
+        title,
+        categories: None,
+    })
+}
+
+/// As [`sweep_chart`] for a parameter whose values are words (a chemistry, a topology): the
+/// values are drawn as categories, `series.values` holding each point's slot (0, 1, …).
+pub fn sweep_chart_categories(
+    series: &SweepSeries,
+    categories: &[String],
+    title: &str,
+) -> Result<Rendered, PlotError> {
+    render(&SweepFig {
+        series,
+        title,
+        categories: Some(categories),
+    })
 }
 
 /// One histogram per metric given as `(name, unit, samples)`; the bin count follows Sturges' rule.
@@ -1200,6 +1220,8 @@ struct SweepPanel<'a> {
 struct SweepFig<'a> {
     series: &'a SweepSeries<'a>,
     title: &'a str,
+    /// The swept values when they are words: `values` are then their slot numbers 0, 1, …
+    categories: Option<&'a [String]>,
 }
 
 impl Figure for SweepFig<'_> {
@@ -1225,7 +1247,10 @@ impl Figure for SweepFig<'_> {
             .min(s.mean_power_w.len());
         let mut order: Vec<usize> = (0..n).filter(|&i| s.values[i].is_finite()).collect();
         order.sort_by(|&a, &b| s.values[a].total_cmp(&s.values[b]));
-        let x = Span::of(order.iter().map(|&i| s.values[i])).axis(0.03, (0.0, 1.0));
+        let x = match self.categories {
+            Some(c) => (-0.5, c.len().max(1) as f64 - 0.5),
+            None => Span::of(order.iter().map(|&i| s.values[i])).axis(0.03, (0.0, 1.0)),
+        };
         let param = if s.param.trim().is_empty() {
             "parameter"
         } else {
@@ -1278,8 +1303,23 @@ impl Figure for SweepFig<'_> {
                 x_desc: if p == 2 { Some(param) } else { None },
                 y2_desc: None,
             };
-            let chart = build_panel(panel, &text, &ax)?;
-            let area = chart.plotting_area();
+            let area = match self.categories {
+                Some(c) => {
+                    let chart = design::panel(
+                        panel,
+                        col.caption,
+                        x,
+                        y,
+                        text.x_desc.unwrap_or(""),
+                        col.y_desc,
+                        true,
+                    )?;
+                    design::label_categories(root, &chart, c, y)?;
+                    chart.plotting_area().clone()
+                }
+                None => build_panel(panel, &text, &ax)?.plotting_area().clone(),
+            };
+            let area = &area;
             let pts: Vec<(f64, f64)> = order
                 .iter()
                 .map(|&i| (s.values[i], ys[i]))

@@ -9,6 +9,8 @@
 //! a diode-only (`direct`) design: the cadence at which the diode starts to pass current and the
 //! cadence at which the battery would reach its charge limit.
 
+use std::path::PathBuf;
+
 use clap::Args;
 use serde::Serialize;
 
@@ -49,6 +51,15 @@ pub struct CheckArgs {
     /// Print the figures and cautions as JSON.
     #[arg(long)]
     pub json: bool,
+    /// Write the cadence operating map here (operating_map.csv and its chart).
+    #[arg(long)]
+    pub out: Option<PathBuf>,
+    /// Skip the chart of the operating map.
+    #[arg(long)]
+    pub no_plot: bool,
+    /// Replace an output folder that crankcharge did not write (its files are lost).
+    #[arg(long)]
+    pub force: bool,
 }
 
 /// Builds the plant of a scenario without jitter, so that model-building errors (e.g. diode
@@ -84,6 +95,9 @@ pub struct Report {
     pub highest_profile_cadence_rpm: f64,
     /// Remarks on this design computed from the figures.
     pub notes: Vec<String>,
+    /// The cadence range the profile produces (jitter, population and fatigue included), over
+    /// which `check` draws its operating map.
+    pub cadence_range: Option<super::operating_map::CadenceRange>,
     /// Safety cautions.
     pub cautions: Vec<String>,
 }
@@ -202,7 +216,21 @@ pub fn run(a: &CheckArgs) -> Result<i32, Failure> {
     };
     let sc = scenario_from(a.setup.as_deref(), &sa)?;
     let plant = build_plant(&sc)?;
-    let report = analyse(&sc, &plant);
+    let out = a
+        .out
+        .as_ref()
+        .map(|o| crate::output::rundir::Staging::prepare(o, "check", a.force))
+        .transpose()
+        .map_err(|e| Failure::Input(e.into()))?;
+    let mut report = analyse(&sc, &plant);
+    let map = super::operating_map::attach(&sc, &plant, &mut report);
+    if let Some(staging) = out {
+        let dir = super::operating_map::write(staging, &report, &map, !a.no_plot)
+            .map_err(Failure::Other)?;
+        report
+            .notes
+            .push(format!("Operating map written to {}.", dir.display()));
+    }
     if a.json {
         let text = serde_json::to_string_pretty(&report)
             .map_err(|e| Failure::Other(anyhow::anyhow!("could not format JSON: {e}")))?;
@@ -247,13 +275,13 @@ impl Statics<'_> {
         self.plant.converters()
     }
 
-    fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {
+    pub(super) fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {
         let term = self.plant.battery.static_terminal(bs);
         network::solve(&self.source(crank_rpm), load, &term)
     }
 
     /// The charger asking for `target_a`, trimming it to hold its input floor when it has one.
-    fn buck(&self, target_a: f64) -> Load<'_> {
+    pub(super) fn buck(&self, target_a: f64) -> Load<'_> {
         let conv = self.converters();
         match self.plant.charger.input_floor_v {
             Some(floor_v) => Load::Floored {
@@ -279,7 +307,7 @@ impl Statics<'_> {
     }
 
     /// Steady torque the crank must give at a cadence for a generator current, N·m.
-    fn crank_torque_n_m(&self, crank_rpm: f64, generator_current_a: f64) -> f64 {
+    pub(super) fn crank_torque_n_m(&self, crank_rpm: f64, generator_current_a: f64) -> f64 {
         let d = &self.plant.drive;
         let omega_g = rpm_to_rad_s(crank_rpm) * d.ratio;
         (self.plant.generator.torque_n_m(generator_current_a) + d.friction_n_m(omega_g)) * d.ratio
@@ -545,6 +573,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         at_profile_cadence: at_profile,
         highest_profile_cadence_rpm: highest,
         notes,
+        cadence_range: None,
         cautions: cautions(sc),
     }
 }

@@ -1,13 +1,22 @@
-//! Studies built on the one session engine: run, compare, sweep, Monte Carlo; and the two that
+//! Studies built on the one session engine: run, compare, sweep, Monte Carlo, search (and merge); and the two that
 //! run no session: check (static design figures) and fit (generator constants from measurements).
 
 pub mod check;
 pub mod check_usb;
 pub mod compare;
 pub mod fit;
+pub mod goal;
+pub mod merge;
 pub mod montecarlo;
+pub mod operating_map;
 pub mod pages;
+pub mod population;
 pub mod progress;
+pub mod refine;
 pub mod run;
+pub mod search;
+pub mod search_finish;
+pub mod search_table;
 pub mod session;
+pub mod space;
 pub mod sweep;

@@ -115,7 +115,7 @@ pub fn draw_operator(sc: &Scenario, seed: u64) -> Draw {
 }
 
 /// The scenario of one run: the profile's operator with the drawn capacities.
-fn with_draw(sc: &Scenario, d: &Draw) -> Scenario {
+pub fn with_draw(sc: &Scenario, d: &Draw) -> Scenario {
     let mut s = sc.clone();
     let o = &mut s.profile.operator;
     o.critical_power_w = d.critical_power_w;

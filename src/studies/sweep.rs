@@ -404,29 +404,29 @@ fn write_chart(
         .iter()
         .map(|(k, _)| values[*k].parse::<f64>().ok().filter(|v| v.is_finite()))
         .collect();
-    let (xs, label) = match numeric {
-        Some(xs) => (xs, key.to_string()),
-        None => (
-            done.iter().map(|(k, _)| *k as f64 + 1.0).collect(),
-            format!("{key} (value number)"),
-        ),
-    };
+    // Words (a chemistry, a topology) are drawn as categories, each in its own slot.
+    let categorical = numeric.is_none();
+    let xs = numeric.unwrap_or_else(|| done.iter().map(|(k, _)| *k as f64).collect());
+    let label = key.to_string();
     let pick =
         |f: fn(&Summary) -> f64| -> Vec<f64> { done.iter().map(|(_, s)| f(&s.summary)).collect() };
     let charge = pick(|m| m.charge_delivered_ah);
     let reg = pick(|m| m.in_regulation_fraction.unwrap_or(f64::NAN));
     let power = pick(|m| m.mean_operator_power_w);
     let first = &done[0].1.summary;
-    let chart = plot::sweep_chart(
-        &SweepSeries {
-            param: &label,
-            values: &xs,
-            charge_ah: &charge,
-            in_regulation: &reg,
-            mean_power_w: &power,
-        },
-        &format!("Sweep of {key}: {} / {}", first.setup, first.profile),
-    )?;
+    let series = SweepSeries {
+        param: &label,
+        values: &xs,
+        charge_ah: &charge,
+        in_regulation: &reg,
+        mean_power_w: &power,
+    };
+    let title = format!("Sweep of {key}: {} / {}", first.setup, first.profile);
+    let chart = if categorical {
+        plot::sweep_chart_categories(&series, values, &title)?
+    } else {
+        plot::sweep_chart(&series, &title)?
+    };
     write_renamed(out, "sweep.png", &chart.png)?;
     write_renamed(out, "sweep.svg", chart.svg.as_bytes())?;
     Ok(chart.svg)
