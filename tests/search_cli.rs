@@ -78,6 +78,8 @@ const SMOOTH: [&str; 6] = [
 ];
 
 /// Every file of a folder, by name.
+/// The study's files by name. The folder's marker (`manifest.json`) is left out: it records the
+/// command that wrote the folder (search, merge, or a resumed search), not the study.
 fn files(dir: &Path) -> BTreeMap<String, Vec<u8>> {
     fs::read_dir(dir)
         .unwrap_or_else(|e| panic!("list {}: {e}", dir.display()))
@@ -88,6 +90,7 @@ fn files(dir: &Path) -> BTreeMap<String, Vec<u8>> {
                 fs::read(e.path()).expect("read"),
             )
         })
+        .filter(|(name, _)| name != "manifest.json")
         .collect()
 }
 

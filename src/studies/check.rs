@@ -225,7 +225,7 @@ pub fn run(a: &CheckArgs) -> Result<i32, Failure> {
     let mut report = analyse(&sc, &plant);
     let map = super::operating_map::attach(&sc, &plant, &mut report);
     if let Some(staging) = out {
-        let dir = super::operating_map::write(staging, &report, &map, !a.no_plot)
+        let dir = super::operating_map::write(staging, &sc, &report, &map, !a.no_plot)
             .map_err(Failure::Other)?;
         report
             .notes

@@ -29,6 +29,9 @@ pub struct MergeArgs {
     /// Skip the charts.
     #[arg(long)]
     pub no_plot: bool,
+    /// Replace an output folder that crankcharge did not write (its files are lost).
+    #[arg(long)]
+    pub force: bool,
 }
 
 fn input(e: impl std::fmt::Display) -> Failure {
@@ -141,7 +144,7 @@ pub fn run(a: &MergeArgs) -> Result<i32, Failure> {
         }
     }
     rows.sort_by_key(|r| r.point);
-    open_folder(&study, &a.out, false)?;
+    open_folder(&study, &a.out, false, a.force)?;
     let journal = Journal::create(
         &a.out.join(POINTS_FILE),
         &header,

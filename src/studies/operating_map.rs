@@ -17,7 +17,6 @@ use crate::model::battery::li_ion::TempBand;
 use crate::model::battery::BatteryState;
 use crate::model::jitter::JitterTrack;
 use crate::model::network::Load;
-use crate::output::csv::table_csv;
 use crate::output::plot::design::{operating_map_chart, MapData};
 use crate::output::rundir::Staging;
 use crate::scenario::profile::Profile;
@@ -347,6 +346,12 @@ pub fn attach(sc: &Scenario, plant: &Plant, report: &mut Report) -> Vec<MapRow> 
 
 /// `operating_map.csv` as bytes.
 pub fn map_csv(map: &[MapRow]) -> anyhow::Result<Vec<u8>> {
+    let (header, rows) = map_table(map);
+    Ok(crate::output::csv::table_csv(&header, &rows)?)
+}
+
+/// The operating map as a header and rows of text (its CSV and its report table).
+fn map_table(map: &[MapRow]) -> (Vec<String>, Vec<Vec<String>>) {
     let header: Vec<String> = [
         "crank_rpm",
         "emf_v",
@@ -374,18 +379,20 @@ pub fn map_csv(map: &[MapRow]) -> anyhow::Result<Vec<u8>> {
             ]
         })
         .collect();
-    Ok(table_csv(&header, &rows)?)
+    (header, rows)
 }
 
 /// Writes `operating_map.csv` (and `operating_map.png`/`.svg`) into the staging folder and
 /// moves it into place.
 pub fn write(
     staging: Staging,
+    sc: &Scenario,
     report: &Report,
     map: &[MapRow],
     plots: bool,
 ) -> anyhow::Result<std::path::PathBuf> {
     staging.write("operating_map.csv", &map_csv(map)?)?;
+    let mut charts = Vec::new();
     if plots {
         let rpm: Vec<f64> = map.iter().map(|r| r.crank_rpm).collect();
         let emf: Vec<f64> = map.iter().map(|r| r.emf_v).collect();
@@ -406,6 +413,31 @@ pub fn write(
         )?;
         staging.write("operating_map.png", &chart.png)?;
         staging.write("operating_map.svg", chart.svg.as_bytes())?;
+        charts.push((
+            chart.svg,
+            "Generator EMF, converter input and the charge current across the cadence range, and what limits the charge at each cadence.".to_string(),
+        ));
     }
+    let mut page = super::pages::study_page(
+        &[sc],
+        "crankcharge check",
+        &format!("Design check: {} / {}", report.setup, report.profile),
+        map_table(map),
+        charts,
+        report.notes.clone(),
+    );
+    // The static figures, as `check --json` gives them, ahead of the map.
+    let figures = serde_json::to_string_pretty(report)?;
+    page.blocks.splice(
+        1..1,
+        [
+            crate::output::report::Block::Heading("Static design figures".into()),
+            crate::output::report::Block::Code(figures),
+        ],
+    );
+    staging.write(
+        "report.html",
+        crate::output::report::render(&page).as_bytes(),
+    )?;
     Ok(staging.commit()?)
 }

@@ -33,12 +33,14 @@ pub fn warn(message: Option<String>) {
     }
 }
 
-/// A bar counting finished items (runs of a study), hidden until [`SHOW_AFTER`] has passed.
+/// A bar counting finished items (runs of a study) with their rate and the time left, hidden
+/// until [`SHOW_AFTER`] has passed. Clones share the bar.
+#[derive(Clone)]
 pub struct CountBar {
     bar: ProgressBar,
     started: Instant,
     may_draw: bool,
-    shown: AtomicBool,
+    shown: std::sync::Arc<AtomicBool>,
 }
 
 impl CountBar {
@@ -46,7 +48,7 @@ impl CountBar {
     pub fn new(len: u64, prefix: &str, what: &str, quiet: bool) -> Self {
         let bar = ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::hidden());
         if let Ok(style) = ProgressStyle::with_template(&format!(
-            "{{prefix}} [{{bar:32}}] {{pos}}/{{len}} {what}, {{elapsed}} (eta {{eta}})"
+            "{{prefix}} [{{bar:32}}] {{pos}}/{{len}} {what}, {{per_sec}}, {{elapsed}} (eta {{eta}})"
         )) {
             bar.set_style(style.progress_chars("=> "));
         }
@@ -55,7 +57,7 @@ impl CountBar {
             bar,
             started: Instant::now(),
             may_draw: draws(quiet),
-            shown: AtomicBool::new(false),
+            shown: std::sync::Arc::new(AtomicBool::new(false)),
         }
     }
 

@@ -16,11 +16,11 @@ use std::collections::HashMap;
 
 use argmin::core::{CostFunction, Executor};
 use argmin::solver::neldermead::NelderMead;
-use indicatif::ProgressBar;
 
 use crate::cli::Failure;
 
-use super::search::{progress_bar, Study};
+use super::progress::CountBar;
+use super::search::Study;
 use super::search_finish::journal_cells;
 use super::search_table::{Journal, Origin, Row};
 use super::space::{Design, QUANTUM};
@@ -52,7 +52,7 @@ struct Memory<'j> {
     rows: Vec<Row>,
     next_point: usize,
     journal: &'j mut Journal,
-    bar: ProgressBar,
+    bar: CountBar,
     error: Option<Failure>,
 }
 
@@ -103,7 +103,7 @@ impl CostFunction for Objective<'_, '_> {
             };
             let bar = m.bar.clone();
             drop(m);
-            let figures = self.study.evaluate(&sc, &|| bar.inc(1));
+            let figures = self.study.evaluate(&sc, &|| bar.inc());
             m = self.memory.borrow_mut();
             let r = Row {
                 point,
@@ -152,7 +152,7 @@ pub fn refine(
         rows: Vec::new(),
         next_point: study.points.len(),
         journal,
-        bar: progress_bar(sessions, "sessions", "refine"),
+        bar: CountBar::new(sessions, "refine", "sessions", false),
         error: None,
     });
     for start in starts {
@@ -197,7 +197,7 @@ pub fn refine(
         }
     }
     let m = memory.into_inner();
-    m.bar.finish_and_clear();
+    m.bar.finish();
     Ok(m.rows)
 }
 

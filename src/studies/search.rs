@@ -13,17 +13,16 @@
 
 use std::collections::HashSet;
 use std::fs;
-use std::io::IsTerminal;
 use std::path::{Path, PathBuf};
 use std::sync::Mutex;
 
 use anyhow::anyhow;
 use clap::{Args, ValueEnum};
-use indicatif::{ProgressBar, ProgressDrawTarget, ProgressStyle};
 use rayon::prelude::*;
 use serde::{Deserialize, Serialize};
 
 use crate::cli::{Failure, EXIT_OK};
+use crate::output::rundir;
 use crate::scenario::load::{InputKind, Override, PROFILE_PREFIX};
 use crate::scenario::{load_scenario, InputError, Scenario, SourceText};
 use crate::simulate::Fidelity;
@@ -32,6 +31,7 @@ use super::check::build_plant;
 use super::goal::{parse_constraint, parse_pareto, Constraint, Objective, Sense};
 use super::montecarlo::MAX_RUNS;
 use super::population::{self, figure_index, Figures, FIGURES};
+use super::progress::CountBar;
 use super::run::{FidelityArg, SessionArgs};
 use super::search_finish;
 use super::search_table::{self, Journal, Origin, Row};
@@ -571,21 +571,6 @@ fn is_whole_number_field(
     )
 }
 
-/// A progress bar on a terminal (hidden otherwise): count, rate and time left.
-pub fn progress_bar(len: u64, what: &str, prefix: &str) -> ProgressBar {
-    if !std::io::stderr().is_terminal() {
-        return ProgressBar::hidden();
-    }
-    let b = ProgressBar::with_draw_target(Some(len), ProgressDrawTarget::stderr());
-    if let Ok(style) = ProgressStyle::with_template(&format!(
-        "{{prefix}} [{{bar:32}}] {{pos}}/{{len}} {what}, {{per_sec}}, {{elapsed}} (eta {{eta}})"
-    )) {
-        b.set_style(style.progress_chars("=> "));
-    }
-    b.set_prefix(prefix.to_string());
-    b
-}
-
 /// Executes `search`.
 pub fn run(a: &SearchArgs) -> Result<i32, Failure> {
     let settings = Study::settings_from_args(a)?;
@@ -594,7 +579,7 @@ pub fn run(a: &SearchArgs) -> Result<i32, Failure> {
         .out
         .clone()
         .unwrap_or_else(|| PathBuf::from("outputs").join("search"));
-    let known = open_folder(&study, &out, a.resume)?;
+    let known = open_folder(&study, &out, a.resume, a.session.force)?;
     // Validate every point this part runs before any session.
     let todo: Vec<usize> = (0..study.points.len())
         .filter(|&i| study.owns(i) && !known.iter().any(|r| r.point == i))
@@ -615,12 +600,12 @@ pub fn run(a: &SearchArgs) -> Result<i32, Failure> {
     .map_err(Failure::Other)?;
     let journal = Mutex::new(journal);
     let sessions = (scenarios.len() * study.settings.operators) as u64;
-    let bar = progress_bar(sessions, "sessions", "search");
+    let bar = CountBar::new(sessions, "search", "sessions", a.session.quiet);
     let origin = study.design_origin();
     let done: Vec<anyhow::Result<Row>> = scenarios
         .par_iter()
         .map(|(i, sc)| {
-            let figures = study.evaluate(sc, &|| bar.inc(1));
+            let figures = study.evaluate(sc, &|| bar.inc());
             let row = Row {
                 point: *i,
                 origin,
@@ -634,7 +619,7 @@ pub fn run(a: &SearchArgs) -> Result<i32, Failure> {
             Ok(row)
         })
         .collect();
-    bar.finish_and_clear();
+    bar.finish();
     for r in done {
         rows.push(r.map_err(Failure::Other)?);
     }
@@ -648,13 +633,20 @@ pub fn run(a: &SearchArgs) -> Result<i32, Failure> {
 /// Prepares the output folder: on `--resume` checks that it holds this study and returns the
 /// design rows already done (refined rows are kept only as known values); otherwise clears an
 /// earlier search's files. Writes `settings.json`.
-pub fn open_folder(study: &Study, out: &Path, resume: bool) -> Result<Vec<Row>, Failure> {
+pub fn open_folder(
+    study: &Study,
+    out: &Path,
+    resume: bool,
+    force: bool,
+) -> Result<Vec<Row>, Failure> {
     if out.exists() && !out.is_dir() {
         return Err(input(format!(
             "cannot write to '{}': it exists and is not a folder",
             out.display()
         )));
     }
+    // Only a folder crankcharge wrote (or an empty or new one) is written into, unless --force.
+    rundir::claim(out, force).map_err(|e| Failure::Input(e.into()))?;
     let settings_path = out.join(SETTINGS_FILE);
     let mut rows = Vec::new();
     // `--resume` on a folder that holds no study yet starts it (so a batch job can always pass it).
@@ -707,6 +699,7 @@ pub fn open_folder(study: &Study, out: &Path, resume: bool) -> Result<Vec<Row>, 
             }
         }
     }
+    write_atomic(&out.join(rundir::MARKER), &rundir::marker_text("search"))?;
     let json = serde_json::to_vec_pretty(&study.settings)
         .map_err(|e| Failure::Other(anyhow!("could not format the settings: {e}")))?;
     write_atomic(&settings_path, &json)?;
@@ -719,9 +712,13 @@ pub fn write_atomic(path: &Path, bytes: &[u8]) -> Result<(), Failure> {
         .file_name()
         .map_or_else(|| "file".to_string(), |n| n.to_string_lossy().into_owned());
     let tmp = path.with_file_name(format!(".{name}.partial"));
-    fs::write(&tmp, bytes)
-        .and_then(|_| fs::rename(&tmp, path))
-        .map_err(|e| Failure::Other(anyhow!("could not write '{}': {e}", path.display())))
+    rundir::register(&tmp);
+    let written = fs::write(&tmp, bytes).and_then(|_| fs::rename(&tmp, path));
+    if written.is_err() {
+        let _ = fs::remove_file(&tmp);
+    }
+    rundir::unregister(&tmp);
+    written.map_err(|e| Failure::Other(anyhow!("could not write '{}': {e}", path.display())))
 }
 
 /// Whether a key addresses the profile file.

@@ -25,9 +25,10 @@ use super::search_table::{self, cells, Journal, Origin, Row};
 use super::space::{Axis, AxisKind, Design};
 
 /// Files a search writes besides `settings.json` (an earlier study's are removed at a fresh start).
-pub const OUTPUT_FILES: [&str; 8] = [
+pub const OUTPUT_FILES: [&str; 9] = [
     POINTS_FILE,
     "search.json",
+    "report.html",
     "best.ron",
     "best-profile.ron",
     "points.png",
@@ -232,10 +233,28 @@ pub fn finish(
     let json = crate::output::json::to_json(&report)
         .map_err(|e| Failure::Other(anyhow!("could not format search.json: {e}")))?;
     write_atomic(&out.join("search.json"), &json)?;
-    if plots && !all.is_empty() {
-        write_charts(study, &all, &feasible, pareto.as_deref(), best, out)?;
+    let charts = if plots && !all.is_empty() {
+        write_charts(study, &all, &feasible, pareto.as_deref(), best, out)?
+    } else {
+        Vec::new()
+    };
+    let lines = report_lines(study, &report, &all, pareto.as_deref());
+    for l in &lines {
+        say(l);
     }
-    print_report(study, &report, &all, pareto.as_deref(), out);
+    say(&format!("  wrote {}", out.display()));
+    let page = super::pages::study_page(
+        &[&study.base],
+        "crankcharge search",
+        &format!("Search: {} / {}", report.setup, report.profile),
+        (study.header(), table),
+        charts,
+        lines,
+    );
+    write_atomic(
+        &out.join("report.html"),
+        crate::output::report::render(&page).as_bytes(),
+    )?;
     Ok(())
 }
 
@@ -552,7 +571,8 @@ fn write_charts(
     pareto: Option<&[bool]>,
     best: Option<usize>,
     out: &Path,
-) -> Result<(), Failure> {
+) -> Result<Vec<(String, String)>, Failure> {
+    let mut svgs = Vec::new();
     let ys: Vec<f64> = all
         .iter()
         .map(|r| study.value(r, &study.objective.figure).unwrap_or(f64::NAN))
@@ -598,6 +618,10 @@ fn write_charts(
     let chart = charts::points_chart(&data, &title).map_err(|e| Failure::Other(e.into()))?;
     write_atomic(&out.join("points.png"), &chart.png)?;
     write_atomic(&out.join("points.svg"), chart.svg.as_bytes())?;
+    svgs.push((
+        chart.svg,
+        "The objective at every point against each varied key (feasible points filled, the best marked).".to_string(),
+    ));
     if let (Some(p), Some(front)) = (&study.pareto, pareto) {
         let xs2: Vec<f64> = all
             .iter()
@@ -616,11 +640,18 @@ fn write_charts(
             .map_err(|e| Failure::Other(e.into()))?;
         write_atomic(&out.join("pareto.png"), &chart.png)?;
         write_atomic(&out.join("pareto.svg"), chart.svg.as_bytes())?;
+        svgs.push((
+            chart.svg,
+            "The two objectives of the feasible points; the non-dominated ones joined.".to_string(),
+        ));
     }
-    Ok(())
+    Ok(svgs)
 }
 
-fn print_report(study: &Study, r: &Report, all: &[Row], pareto: Option<&[bool]>, out: &Path) {
+/// The digest of a finished search, line by line (printed, and the notes of its report page).
+fn report_lines(study: &Study, r: &Report, all: &[Row], pareto: Option<&[bool]>) -> Vec<String> {
+    let mut lines: Vec<String> = Vec::new();
+    let mut say = |l: &str| lines.push(l.to_string());
     say(&format!(
         "search: {} / {}, {} axis(es), {} design point(s){} + {} refined, {} operator(s) a point; {} feasible",
         r.setup,
@@ -706,5 +737,6 @@ fn print_report(study: &Study, r: &Report, all: &[Row], pareto: Option<&[bool]>,
             ));
         }
     }
-    say(&format!("  {}; wrote {}", r.note, out.display()));
+    say(&format!("  {}", r.note));
+    lines
 }
