@@ -31,7 +31,11 @@ use crankcharge::scenario::setup::{
     ChargeWindow, Chemistry, Diode, DiodeKind, Drive, LeadAcidKind, Stage as BeltStage,
 };
 use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::simulate::engine::{initial_discrete, initial_state};
 use crankcharge::simulate::plant::Plant;
+use crankcharge::simulate::state::{
+    State, CRANK_ANGLE, CRANK_SPEED, GEN_SPEED, OP_INTEGRATOR, W_PRIME,
+};
 use crankcharge::studies::session::{run_session, RunSettings, Session};
 use crankcharge::units::{
     rpm_to_rad_s, thermal_voltage_v, v_per_krpm_to_v_s_per_rad, v_s_per_rad_to_v_per_krpm,
@@ -1567,6 +1571,121 @@ fn operator_w_prime_recovers_exponentially_below_cp() {
             "t = {t}: {w} vs {expected}"
         );
     }
+}
+
+/// The demo plant with the steady profile and `sets`, no wander or rests (ripple as set), the
+/// operator holding the steady target at t = 100 s with a mean crank power `p_mean_w` (the PI
+/// integrator carries the whole command; the envelope does not bind): the state, the mode and t.
+fn holding_power(sets: &[&str], p_mean_w: f64) -> (Plant, State, f64) {
+    let sc = scenario("demo", sets);
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let t = 100.0;
+    let omega = rpm_to_rad_s(plant.planned_rpm(t).0);
+    let mut y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    y[CRANK_SPEED] = omega;
+    y[GEN_SPEED] = omega * plant.drive.ratio;
+    y[OP_INTEGRATOR] = p_mean_w / omega;
+    (plant, y, t)
+}
+
+/// Rate of the W′ balance at `y` and the rippled instantaneous power there.
+fn w_prime_rate_at(plant: &Plant, y: &State, t: f64) -> (f64, f64, f64) {
+    let d = initial_discrete(plant, y);
+    let p = plant.eval(t, y, &d);
+    let mut dy = State::zeros();
+    plant.derivatives(&p, y, &d, &mut dy);
+    (dy[W_PRIME], p.operator_power_w, p.operator_mean_power_w)
+}
+
+#[test]
+fn operator_w_prime_is_flat_at_critical_power_with_the_ripple_on() {
+    for (ripple, peaks) in [("0.3", "2"), ("0.45", "1")] {
+        let sets = [
+            "profile.jitter.ripple_fraction=".to_string() + ripple,
+            "profile.jitter.ripple_peaks_per_rev=".to_string() + peaks,
+        ];
+        let sets: Vec<&str> = sets.iter().map(String::as_str).collect();
+        let cp = scenario("demo", &sets).profile.operator.critical_power_w;
+        let (plant, mut y, t) = holding_power(&sets, cp);
+        let w0 = plant.operator.w_prime_j;
+        y[W_PRIME] = 0.5 * w0;
+        // One crank revolution in equal angle steps (the crank turns at constant speed).
+        let n = 720;
+        let (mut model, mut instantaneous, mut p_inst_mean, mut p_inst_max) =
+            (0.0, 0.0, 0.0, 0.0f64);
+        for k in 0..n {
+            y[CRANK_ANGLE] = 2.0 * PI * k as f64 / n as f64;
+            let (rate, p_inst, p_mean) = w_prime_rate_at(&plant, &y, t);
+            assert!(
+                (p_mean - cp).abs() < 1e-9 * cp,
+                "mean power {p_mean} W vs CP {cp} W"
+            );
+            model += rate / n as f64;
+            // Source: Skiba et al., Med Sci Sports Exerc 44(8):1526–1532, 2012, W′ balance in
+            // differential form (REFERENCES §8): −(P − CP) above CP, (W′0 − W′)·(CP − P)/W′0
+            // below — here driven by the rippled instantaneous power, for contrast.
+            instantaneous += if p_inst > cp {
+                -(p_inst - cp)
+            } else {
+                (w0 - y[W_PRIME]) * (cp - p_inst) / w0
+            } / n as f64;
+            p_inst_mean += p_inst / n as f64;
+            p_inst_max = p_inst_max.max(p_inst);
+        }
+        // The ripple really is there, and averages to the mean over the turn.
+        assert!(p_inst_max > 1.25 * cp, "ripple peak {p_inst_max} W");
+        assert!(
+            (p_inst_mean - cp).abs() < 1e-6 * cp,
+            "turn mean {p_inst_mean} W"
+        );
+        // Source: Skiba et al. 2012 (REFERENCES §8) — at P = CP both branches of the published
+        // differential form vanish: W′ is flat. Over a 10-minute session it moves by < 1 %.
+        assert!(
+            model.abs() * 600.0 <= 0.01 * y[W_PRIME],
+            "ripple {ripple}: W′ drifts {model} J/s at mean power = CP"
+        );
+        // Driven by the rippled power instead, the same law drains W′ by more than 1 % in ten
+        // minutes: the check above can fail.
+        assert!(
+            -instantaneous * 600.0 > 0.01 * y[W_PRIME],
+            "ripple {ripple}: the contrast case drifts only {instantaneous} J/s"
+        );
+    }
+}
+
+#[test]
+fn operator_w_prime_runs_out_at_the_monod_scherrer_time_with_the_ripple_on() {
+    // CP 80 W, W′ 8 kJ, held at a mean 120 W by a single-arm crank with a strong ripple (the
+    // instantaneous power dips below CP each turn). Peak power and torque set out of the way.
+    let sets = [
+        "profile.operator.critical_power_w=80",
+        "profile.operator.w_prime_j=8000",
+        "profile.operator.peak_power_w=2000",
+        "profile.operator.peak_torque_n_m=200",
+        "profile.jitter.ripple_fraction=0.8",
+        "profile.jitter.ripple_peaks_per_rev=1",
+    ];
+    let (plant, mut y, t) = holding_power(&sets, 120.0);
+    let omega = y[CRANK_SPEED];
+    let (dt, mut s, mut p_min) = (1e-3, 0.0, f64::MAX);
+    // W′ is integrated with the crank turning at constant speed (a forward-Euler step is exact
+    // for a constant drain).
+    while y[W_PRIME] > 0.1 * 8000.0 && s < 1000.0 {
+        let (rate, p_inst, _) = w_prime_rate_at(&plant, &y, t);
+        p_min = p_min.min(p_inst);
+        y[W_PRIME] += dt * rate;
+        y[CRANK_ANGLE] += omega * dt;
+        s += dt;
+    }
+    assert!(p_min < 80.0, "the ripple should dip below CP ({p_min} W)");
+    // Source: Monod & Scherrer, Ergonomics 8:329–338, 1965 — t_lim = W′/(P − CP) = 200 s for
+    // CP 80 W, W′ 8 kJ, P 120 W (REFERENCES §8); W′ falls linearly, so 90 % of it is gone at
+    // 0.9·t_lim = 180 s.
+    let t_90 = 0.9 * 8000.0 / (120.0 - 80.0);
+    assert!(
+        (s - t_90).abs() <= 2.0 * dt,
+        "90 % of W′ gone at {s} s, not {t_90} s"
+    );
 }
 
 /// Asserts that a 10-minute session asked more of the default operator than they can give, and

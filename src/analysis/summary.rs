@@ -52,6 +52,8 @@ pub struct Summary {
     pub energy_to_battery_wh: f64,
     pub operator_work_j: f64,
     pub mean_operator_power_w: f64,
+    /// Highest operator power averaged over a crank revolution (trace grid), W: what the
+    /// operator's power cap and W′ balance act on.
     pub peak_operator_power_w: f64,
     pub in_regulation_fraction: f64,
     pub regulation_loss_s: f64,
@@ -83,6 +85,9 @@ pub struct Summary {
     /// The USB bus (only with a USB port).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub usb: Option<UsbSummary>,
+    /// Highest instantaneous operator power, the per-turn torque ripple riding on the mean
+    /// (trace grid), W.
+    pub peak_instant_operator_power_w: f64,
 }
 
 /// Figures of a USB port's bus (`summary.json` `usb`).
@@ -138,7 +143,7 @@ pub fn battery_peak(trace: &Trace) -> (f64, f64) {
 
 /// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
 /// so that study files are identical for identical inputs.
-pub const SCALAR_KEYS: [&str; 30] = [
+pub const SCALAR_KEYS: [&str; 31] = [
     "duration_s",
     "fidelity",
     "soc_start",
@@ -169,6 +174,7 @@ pub const SCALAR_KEYS: [&str; 30] = [
     "min_bus_v",
     "bus_out_of_band_s",
     "device_cutoffs",
+    "peak_instant_operator_power_w",
 ];
 
 impl Summary {
@@ -214,6 +220,7 @@ impl Summary {
             self.usb
                 .as_ref()
                 .map_or_else(String::new, |u| u.device_cutoffs.to_string()),
+            fmt(self.peak_instant_operator_power_w),
         ]
     }
 }

@@ -1492,6 +1492,7 @@ mod tests {
             in_regulation: true,
             bus_v: 12.6 + t / 2000.0,
             bus_current_a: 1.5 + 0.3 * (t / 25.0).cos(),
+            operator_mean_power_w: 45.0,
         }
     }
 

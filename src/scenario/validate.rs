@@ -599,6 +599,12 @@ pub fn profile(p: &Profile) -> Vec<Violation> {
     c.range("jitter.ripple_fraction", j.ripple_fraction, 0.0, 1.0);
     c.range("jitter.ripple_phase_rad", j.ripple_phase_rad, -10.0, 10.0);
     c.rule(
+        (1..=4).contains(&j.ripple_peaks_per_rev),
+        "jitter.ripple_peaks_per_rev",
+        j.ripple_peaks_per_rev.to_string(),
+        "1 ..= 4",
+    );
+    c.rule(
         j.rest_interval_s == 0.0 || (5.0..=1e5).contains(&j.rest_interval_s),
         "jitter.rest_interval_s",
         format!("{}", j.rest_interval_s),

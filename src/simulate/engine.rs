@@ -359,19 +359,9 @@ pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> Stat
     y
 }
 
-/// Runs one session.
-pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult, SimError> {
-    let t_end = opts.duration_s;
-    let mut time_events: Vec<f64> = plant
-        .segment_boundaries()
-        .chain(plant.jitter.rests.iter().flat_map(|r| [r.start_s, r.end_s]))
-        .filter(|&t| t > 0.0 && t < t_end)
-        .collect();
-    time_events.push(t_end);
-    time_events.sort_by(f64::total_cmp);
-    time_events.dedup();
-
-    let mut disc = Discrete {
+/// Mode at the start of a session from state `y0` (before any transition is applied).
+pub fn initial_discrete(plant: &Plant, y0: &State) -> Discrete {
+    Discrete {
         enabled: !plant.has_converter(),
         ov_shutdown: false,
         stage: Stage::Charging,
@@ -385,7 +375,22 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
         device_off_at_s: f64::NEG_INFINITY,
         device_on_at_s: f64::NEG_INFINITY,
         device_cutoffs: 0,
-    };
+    }
+}
+
+/// Runs one session.
+pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult, SimError> {
+    let t_end = opts.duration_s;
+    let mut time_events: Vec<f64> = plant
+        .segment_boundaries()
+        .chain(plant.jitter.rests.iter().flat_map(|r| [r.start_s, r.end_s]))
+        .filter(|&t| t > 0.0 && t < t_end)
+        .collect();
+    time_events.push(t_end);
+    time_events.sort_by(f64::total_cmp);
+    time_events.dedup();
+
+    let mut disc = initial_discrete(plant, &y0);
     let mut y = y0;
     let mut t = 0.0;
     let mut stats = SolverStats {
@@ -1166,6 +1171,7 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         in_regulation: p.in_regulation,
         bus_v: p.bus.bus_v,
         bus_current_a: p.bus.bus_current_a,
+        operator_mean_power_w: p.operator_mean_power_w,
     }
 }
 

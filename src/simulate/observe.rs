@@ -100,7 +100,7 @@ fn peak_of(kind: EventKind, p: &Point, y: &State) -> (f64, &'static str, bool) {
         EventKind::Overcharge => (p.net.battery_v, "V", true),
         EventKind::InputOvervoltage => (p.net.input_v, "V", true),
         EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => (y[BATTERY_TEMP], "degC", true),
-        EventKind::OperatorOverload => (p.operator_power_w, "W", true),
+        EventKind::OperatorOverload => (p.operator_mean_power_w, "W", true),
         EventKind::ChargeComplete => (p.net.battery_current_a, "A", false),
     }
 }

@@ -133,6 +133,8 @@ pub struct Plant {
     pub spin_up_s: f64,
     pub ripple_fraction: f64,
     pub ripple_phase_rad: f64,
+    /// Torque peaks per crank revolution k of the ripple 1 + a·cos(k·θ + φ).
+    pub ripple_peaks_per_rev: f64,
     pub alerts: Alerts,
     /// Detailed fidelity: circuit constants and loop gains.
     pub circuit: CircuitConstants,
@@ -176,7 +178,10 @@ pub struct Point {
     pub charge_limit_v: f64,
     pub operator_torque_n_m: f64,
     pub operator_command_n_m: f64,
+    /// Instantaneous operator power τ·ω, ripple included, W.
     pub operator_power_w: f64,
+    /// Operator power averaged over a crank revolution, W (see [`Plant::eval`]).
+    pub operator_mean_power_w: f64,
     pub crank_accel: f64,
     pub gen_accel: f64,
     pub belt_torque_n_m: f64,
@@ -336,6 +341,7 @@ impl Plant {
             spin_up_s: profile.operator.spin_up_s,
             ripple_fraction,
             ripple_phase_rad,
+            ripple_peaks_per_rev: f64::from(profile.jitter.ripple_peaks_per_rev),
             alerts: setup.alerts.clone(),
         })
     }
@@ -490,7 +496,14 @@ impl Plant {
         let tau_fric = self.drive.friction_n_m(omega_g);
         let bearing = CRANK_BEARING_N_M * (omega_c / CRANK_BEARING_SMOOTH).tanh();
         let omega_t = rpm_to_rad_s(target_rpm);
-        let (tau_op, tau_cmd) = if cranking {
+        // The ripple factor 1 + a·cos(k·θ + φ) averages to one over a revolution, so the power
+        // averaged over a turn is the un-rippled torque times the crank speed (exact up to the
+        // change of speed and command within the turn). The power cap of the envelope acts on
+        // it, and it drives the W′ balance: the published W′-balance model (Skiba et al., Med Sci
+        // Sports Exerc 44(8):1526–1532, 2012) is fitted to mean power, and driving it with the
+        // rippled power would drain W′ at a mean power equal to CP (the asymmetric recovery
+        // books the ripple's peaks as work above CP but pays back its troughs slowly).
+        let (tau_op, tau_cmd, tau_mean) = if cranking {
             let j_eff = self.drive.crank_inertia_kg_m2
                 + self.drive.ratio * self.drive.ratio * self.drive.shaft_inertia_kg_m2
                     / self.drive.efficiency;
@@ -505,11 +518,12 @@ impl Plant {
                 .command_n_m(omega_t, omega_c, y[OP_INTEGRATOR], ff);
             let env = self.operator.envelope_n_m(omega_c, y[W_PRIME]);
             let sat = cmd.clamp(0.0, env);
-            let ripple =
-                1.0 + self.ripple_fraction * (2.0 * y[CRANK_ANGLE] + self.ripple_phase_rad).cos();
-            (sat * ripple, cmd)
+            let ripple = 1.0
+                + self.ripple_fraction
+                    * (self.ripple_peaks_per_rev * y[CRANK_ANGLE] + self.ripple_phase_rad).cos();
+            (sat * ripple, cmd, sat)
         } else {
-            (0.0, 0.0)
+            (0.0, 0.0, 0.0)
         };
         let (crank_accel, gen_accel, belt, drive_loss) = if d.engaged {
             let c = self
@@ -554,6 +568,7 @@ impl Plant {
             operator_torque_n_m: tau_op,
             operator_command_n_m: tau_cmd,
             operator_power_w: tau_op * omega_c,
+            operator_mean_power_w: tau_mean * omega_c,
             crank_accel,
             gen_accel,
             belt_torque_n_m: belt,
@@ -750,7 +765,7 @@ impl Plant {
         };
         dy[W_PRIME] = self
             .operator
-            .w_prime_rate(p.operator_power_w.max(0.0), y[W_PRIME]);
+            .w_prime_rate(p.operator_mean_power_w.max(0.0), y[W_PRIME]);
         dy[SOC] = self.battery.soc_rate(ib, &bs);
         dy[V_RC] = p.v_rc_rate;
         dy[BATTERY_TEMP] = self.battery.thermal().rate_k_per_s(

@@ -8,7 +8,7 @@ pub const N_STATES: usize = 29;
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
 
-/// Crank angle θ, rad (for the two-phase torque ripple).
+/// Crank angle θ, rad (for the per-turn torque ripple).
 pub const CRANK_ANGLE: usize = 0;
 /// Crank speed, rad/s.
 pub const CRANK_SPEED: usize = 1;

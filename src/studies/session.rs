@@ -131,6 +131,7 @@ fn first_non_finite(r: &SimResult) -> Option<f64> {
             row.soc,
             row.battery_temp_c,
             row.operator_power_w,
+            row.operator_mean_power_w,
             row.charge_limit_v,
             row.operator_torque_n_m,
             row.w_prime_balance_j,
@@ -235,7 +236,7 @@ fn summarise(
         } else {
             0.0
         },
-        peak_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
+        peak_operator_power_w: fold_max(|r| r.operator_mean_power_w).max(0.0),
         in_regulation_fraction: in_regulation,
         regulation_loss_s: regulation_loss,
         overcharge_s,
@@ -276,6 +277,7 @@ fn summarise(
         ledger: *led,
         solver: r.stats,
         usb: usb_summary(sc, r),
+        peak_instant_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
     }
 }
 
