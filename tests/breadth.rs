@@ -7,7 +7,7 @@ use std::path::{Path, PathBuf};
 use crankcharge::analysis::events::EventKind;
 use crankcharge::analysis::summary::Verdict;
 use crankcharge::analysis::trace::Mode;
-use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel};
+use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel, Overhead};
 use crankcharge::scenario::demo::SETUPS;
 use crankcharge::scenario::load::{InputKind, Override};
 use crankcharge::scenario::{load_scenario, Scenario, SourceText};
@@ -74,6 +74,7 @@ fn ideal_buck_boost(inductance_h: f64, switching_frequency_hz: f64) -> BuckBoost
         switching_frequency_hz,
         switch_transition_s: 0.0,
         quiescent_current_a: 0.0,
+        overhead: Overhead::default(),
     }
 }
 
@@ -363,7 +364,7 @@ fn buck_boost_ccm_ratio_is_d_over_one_minus_d() {
     };
     let d = lossy.ccm_duty(12.0, 12.0, 1.0);
     assert!(d > 0.5 && d < 0.6, "lossy duty {d}");
-    let p_in = 12.0 * lossy.input_current_a(d, 1.0);
+    let p_in = 12.0 * lossy.input_current_a(d, 1.0, 12.0);
     let p_out = 12.0 * 1.0;
     let loss = lossy.losses(d, 1.0, 12.0).total_w();
     assert!((p_in - p_out - loss).abs() < 1e-9 * p_in);

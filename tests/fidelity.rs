@@ -13,7 +13,7 @@ use crankcharge::analysis::events::{Event, EventKind};
 use crankcharge::analysis::trace::TraceRow;
 use crankcharge::model::battery::{BatteryModel, BatteryState, Terminal};
 use crankcharge::model::circuit::{self, CircuitConstants, Drive, FastRates, FastStates};
-use crankcharge::model::converter::BuckModel;
+use crankcharge::model::converter::{BuckModel, Overhead};
 use crankcharge::model::diode::DiodeModel;
 use crankcharge::model::drive::DriveModel;
 use crankcharge::model::generator::GeneratorModel;
@@ -88,6 +88,11 @@ fn generator(resistance_ohm: f64, inductance_h: f64) -> GeneratorModel {
         inductance_h,
         inertia_kg_m2: 6e-5,
         brush_drop_v: 0.0,
+        hysteresis_loss_w_per_krpm: 0.0,
+        eddy_loss_w_per_krpm2: 0.0,
+        ke_tempco_per_k: 0.0,
+        cogging_torque_n_m: 0.0,
+        cogging_periods: 1.0,
         winding_heat_capacity_j_per_k: 60.0,
         winding_to_ambient_w_per_k: 0.8,
     }
@@ -730,11 +735,13 @@ fn buck_averaged_steady_state_in_ccm_is_duty_minus_the_drops() {
         switch_drop_v: 0.3,
         switch_resistance_ohm: 0.05,
         catch_drop_v: 0.45,
+        output_diode_v: 0.0,
         inductor_resistance_ohm: 0.06,
         inductance_h: 47e-6,
         switching_frequency_hz: 150e3,
         switch_transition_s: 0.0,
         quiescent_current_a: 0.0,
+        overhead: Overhead::default(),
     };
     let term = Terminal::Linear {
         rest_v: 8.0,

@@ -191,6 +191,15 @@ pub struct Ledger {
     pub charge_as: f64,
     /// Heat in a USB device's charger between bus and cell, J (0 for a battery output).
     pub device_loss_j: f64,
+    /// Generator iron loss, J.
+    pub iron_loss_j: f64,
+    /// Change of the generator's cogging potential energy, J (its torque does no work over a
+    /// period: it only stores and returns).
+    pub cogging_change_j: f64,
+    /// Gate-drive and inductor-core loss of a switching charger, J.
+    pub overhead_loss_j: f64,
+    /// Heat in a linear charger's pass element, J.
+    pub pass_heat_j: f64,
 }
 
 impl Ledger {
@@ -213,7 +222,11 @@ impl Ledger {
             + self.stored_chemical_j
             + self.rc_change_j
             + self.field_change_j
-            + self.device_loss_j;
+            + self.device_loss_j
+            + self.iron_loss_j
+            + self.cogging_change_j
+            + self.overhead_loss_j
+            + self.pass_heat_j;
         self.operator_work_j - out
     }
 }
@@ -230,6 +243,7 @@ fn step_energy_defect(plant: &Plant, ya: &State, yb: &State) -> (f64, f64) {
         .map(|k| (yb[k] - ya[k]).abs())
         .sum::<f64>()
         + across.kinetic_change_j.abs()
+        + across.cogging_change_j.abs()
         + across.field_change_j.abs()
         + across.rc_change_j.abs();
     (across.imbalance_j() - before.imbalance_j(), moved)
@@ -349,6 +363,7 @@ pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> Stat
     y[SOC] = soc_start;
     y[BATTERY_TEMP] = battery_temp_c;
     y[WINDING_TEMP] = plant.ambient_c;
+    y[JUNCTION_TEMP] = plant.ambient_c;
     if plant.fidelity == Fidelity::Detailed {
         let rest = plant.battery.terminal(&Plant::battery_state(&y)).v(0.0).0;
         y[OUTPUT_V] = rest;
@@ -370,6 +385,7 @@ pub fn initial_discrete(plant: &Plant, y0: &State) -> Discrete {
         resting: plant.jitter.resting(0.0),
         engaged: true,
         soft_done: plant.charger.soft_start_s <= 0.0,
+        buck_mode: false,
         disabled_at_s: f64::NEG_INFINITY,
         device_on: false,
         device_off_at_s: f64::NEG_INFINITY,
@@ -620,7 +636,7 @@ fn explicit_segment(
 ) -> Result<SegmentEnd, SimError> {
     let plant = run.plant;
     let (t, y, t_stop) = (seg.t, seg.y, seg.t_stop);
-    let mut model = ContinuousOutputModel::default();
+    let mut model = ContinuousOutputModel::new();
     let result = {
         let rhs = Rhs {
             plant,
@@ -896,7 +912,7 @@ fn unphysical(y: &State) -> Option<&'static str> {
     if !all_finite(y) {
         return Some("a state is not finite");
     }
-    let checks: [(usize, f64, f64, &'static str); 9] = [
+    let checks: [(usize, f64, f64, &'static str); 10] = [
         (CRANK_SPEED, -1e4, 1e4, "crank speed beyond ±10 000 rad/s"),
         (GEN_SPEED, -1e6, 1e6, "generator speed beyond ±1e6 rad/s"),
         (SOC, -0.5, 1.5, "state of charge outside −0.5 … 1.5"),
@@ -911,6 +927,12 @@ fn unphysical(y: &State) -> Option<&'static str> {
             -150.0,
             1000.0,
             "winding temperature outside −150 … 1000 °C",
+        ),
+        (
+            JUNCTION_TEMP,
+            -150.0,
+            1000.0,
+            "junction temperature outside −150 … 1000 °C",
         ),
         (ARMATURE_I, -1e4, 1e4, "armature current beyond ±10 kA"),
         (INPUT_V, -1e4, 1e4, "input voltage beyond ±10 kV"),
@@ -1196,6 +1218,10 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         field_change_j: plant.field_energy_j(y) - plant.field_energy_j(y0),
         charge_as: y[Q_BATTERY],
         device_loss_j: y[E_DEVICE],
+        iron_loss_j: y[E_IRON],
+        cogging_change_j: plant.cogging_j(y) - plant.cogging_j(y0),
+        overhead_loss_j: y[E_OVERHEAD],
+        pass_heat_j: y[E_PASS],
     }
 }
 

@@ -60,6 +60,8 @@ pub struct Discrete {
     pub engaged: bool,
     /// Soft-start ramp finished.
     pub soft_done: bool,
+    /// Buck-boost running as a buck (output switch held off).
+    pub buck_mode: bool,
     /// When the converter last locked out or went to sleep, s (−∞ before the first time).
     pub disabled_at_s: f64,
     /// USB port: the device is attached and draws from the bus.
@@ -94,6 +96,8 @@ pub struct Charger {
     pub input_floor_v: Option<f64>,
     /// Least off-time after a lock-out before a restart, s.
     pub restart_delay_s: f64,
+    /// Buck-boost: buck mode while the buck duty stays at or below this (0: never).
+    pub buck_mode_max_duty: f64,
 }
 
 /// One target-cadence segment in absolute time.
@@ -116,6 +120,8 @@ pub struct Plant {
     pub buck: BuckModel,
     /// Buck-boost model (used when the topology is `buck_boost`).
     pub buck_boost: BuckBoostModel,
+    /// The buck-boost's power stage run as a buck (its buck mode).
+    pub buck_boost_as_buck: BuckModel,
     /// Linear charger model (used when the topology is `linear`).
     pub linear: LinearModel,
     pub charger: Charger,
@@ -187,6 +193,8 @@ pub struct Point {
     pub belt_torque_n_m: f64,
     pub drive_loss_w: f64,
     pub friction_w: f64,
+    /// Generator iron loss, W.
+    pub iron_w: f64,
     pub copper_w: f64,
     pub winding_ohm: f64,
     pub battery_powers: BatteryPowers,
@@ -250,6 +258,14 @@ impl Plant {
             input_floor_v: match c.topology {
                 Topology::Buck | Topology::BuckBoost => c.input_floor_v,
                 _ => None,
+            },
+            buck_mode_max_duty: match c.topology {
+                // A USB bus keeps the buck-boost switching both switches (not modelled in buck
+                // mode there).
+                Topology::BuckBoost if setup.usb.is_none() => {
+                    c.buck_mode_max_duty.unwrap_or((c.max_duty - 0.05).min(0.8))
+                }
+                _ => 0.0,
             },
         };
         let mut segments = Vec::with_capacity(profile.segments.len());
@@ -324,6 +340,7 @@ impl Plant {
             diode,
             drive,
             buck,
+            buck_boost_as_buck: buck_boost.as_buck(),
             buck_boost,
             linear,
             charger,
@@ -450,8 +467,10 @@ impl Plant {
             0.0
         };
 
-        // Electrical network.
-        let emf = self.generator.emf_v(omega_g);
+        // Electrical network. The magnets sit at the machine's one lumped temperature (the
+        // winding's): E and τ share k_e(T).
+        let ke = self.generator.ke_at(y[WINDING_TEMP]);
+        let emf = ke * omega_g;
         let r_w = self.generator.resistance_ohm(y[WINDING_TEMP]);
         let src = Source {
             generator: &self.generator,
@@ -470,7 +489,7 @@ impl Plant {
         let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
             _ if self.usb.is_some() => usb_eval.map_or_else(Default::default, |u| u.electrical),
             Fidelity::Fast => {
-                let (load, target, cv) = self.fast_load(request, &term);
+                let (load, target, cv) = self.fast_load(request, &term, d);
                 (
                     network::solve(&src, load, &term),
                     target,
@@ -479,7 +498,7 @@ impl Plant {
                     (0.0, 0.0),
                 )
             }
-            Fidelity::Detailed => self.detailed_network(&src, request, &term, y),
+            Fidelity::Detailed => self.detailed_network(&src, request, &term, y, d),
         };
         let bus = usb_eval.map_or_else(
             || BusPoint::battery(net.battery_v, net.battery_current_a),
@@ -487,13 +506,17 @@ impl Plant {
         );
         let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
         let idle_input_v = match (request, self.fidelity) {
-            (Request::Off, Fidelity::Fast) => src.node_v(self.buck.quiescent_current_a),
+            (Request::Off, Fidelity::Fast) => self.idle_input_v(&src, d),
             _ => net.input_v,
         };
 
         // Mechanics.
-        let tau_em = self.generator.torque_n_m(net.generator_current_a);
+        let tau_em = ke * net.generator_current_a;
         let tau_fric = self.drive.friction_n_m(omega_g);
+        // Iron loss and cogging act on the rotor like friction, but are booked on their own.
+        let tau_iron = self.generator.iron_loss_torque_n_m(omega_g);
+        let tau_cog = self.generator.cogging_torque_n_m(y[ROTOR_ANGLE]);
+        let tau_load = tau_em + tau_fric + tau_iron + tau_cog;
         let bearing = CRANK_BEARING_N_M * (omega_c / CRANK_BEARING_SMOOTH).tanh();
         let omega_t = rpm_to_rad_s(target_rpm);
         // The ripple factor 1 + a·cos(k·θ + φ) averages to one over a revolution, so the power
@@ -526,9 +549,7 @@ impl Plant {
             (0.0, 0.0, 0.0)
         };
         let (crank_accel, gen_accel, belt, drive_loss) = if d.engaged {
-            let c = self
-                .drive
-                .coupled(tau_op - bearing, tau_em + tau_fric, omega_c);
+            let c = self.drive.coupled(tau_op - bearing, tau_load, omega_c);
             (
                 c.crank_accel,
                 c.crank_accel * self.drive.ratio,
@@ -538,7 +559,7 @@ impl Plant {
         } else {
             let jc = self.drive.crank_inertia_kg_m2.max(1e-9);
             let js = self.drive.shaft_inertia_kg_m2.max(1e-12);
-            ((tau_op - bearing) / jc, -(tau_em + tau_fric) / js, 0.0, 0.0)
+            ((tau_op - bearing) / jc, -tau_load / js, 0.0, 0.0)
         };
 
         let powers = frozen.powers(net.battery_current_a, net.battery_v);
@@ -574,6 +595,7 @@ impl Plant {
             belt_torque_n_m: belt,
             drive_loss_w: drive_loss,
             friction_w: tau_fric * omega_g + bearing * omega_c,
+            iron_w: tau_iron * omega_g,
             copper_w: net.generator_current_a * net.generator_current_a * r_w,
             winding_ohm: r_w,
             battery_powers: powers,
@@ -588,8 +610,48 @@ impl Plant {
         }
     }
 
+    /// The power stage in mode `d`: the topology as it switches now and the buck model it uses
+    /// (a buck-boost in buck mode works as a buck with an always-on output diode).
+    pub fn stage(&self, d: &Discrete) -> (Topology, &BuckModel) {
+        if self.charger.topology == Topology::BuckBoost && d.buck_mode {
+            (Topology::Buck, &self.buck_boost_as_buck)
+        } else {
+            (self.charger.topology, &self.buck)
+        }
+    }
+
+    /// Input voltage with the converter enabled but passing nothing (fast fidelity): the source
+    /// carrying the stage's quiescent and gate-drive current and its core loss, i = I_q + P_core/v(i)
+    /// (a few fixed-point steps; the core current is small and varies slowly with v).
+    fn idle_input_v(&self, src: &Source, d: &Discrete) -> f64 {
+        let (iq, oh) = match self.stage(d) {
+            (Topology::BuckBoost, _) => (
+                self.buck_boost.quiescent_current_a,
+                self.buck_boost.overhead,
+            ),
+            (Topology::Linear, _) => (self.linear.quiescent_current_a, Default::default()),
+            (_, b) => (b.quiescent_current_a, b.overhead),
+        };
+        let mut i = iq;
+        for _ in 0..3 {
+            i = iq + oh.core_current_a(src.node_v(i));
+        }
+        src.node_v(i)
+    }
+
+    /// The converter models as the network sees them in mode `d`.
+    pub fn converters(&self, d: &Discrete) -> network::Converters<'_> {
+        let (topology, buck) = self.stage(d);
+        network::Converters {
+            topology,
+            buck,
+            buck_boost: &self.buck_boost,
+            linear: &self.linear,
+        }
+    }
+
     /// Fast fidelity: the ideal controller holds min(CC limit, the CV current) at once.
-    fn fast_load(&self, r: Request, term: &Terminal) -> (Load<'_>, f64, bool) {
+    fn fast_load(&self, r: Request, term: &Terminal, d: &Discrete) -> (Load<'_>, f64, bool) {
         match r {
             Request::Off => (Load::Off, 0.0, false),
             Request::Direct => (Load::Direct, 0.0, false),
@@ -599,12 +661,7 @@ impl Plant {
                 ramp,
                 hold,
             } => {
-                let conv = network::Converters {
-                    topology: self.charger.topology,
-                    buck: &self.buck,
-                    buck_boost: &self.buck_boost,
-                    linear: &self.linear,
-                };
+                let conv = self.converters(d);
                 if hold {
                     return (conv.charging(0.0), 0.0, false);
                 }
@@ -631,7 +688,9 @@ impl Plant {
         r: Request,
         term: &Terminal,
         y: &State,
+        d: &Discrete,
     ) -> (NetworkPoint, f64, bool, FastRates, (f64, f64)) {
+        let (topology, buck) = self.stage(d);
         let x = FastStates {
             armature_a: y[ARMATURE_I],
             input_v: y[INPUT_V],
@@ -645,7 +704,7 @@ impl Plant {
                 (p, 0.0, false, rates, (0.0, 0.0))
             }
             Request::Off => {
-                let drive = match self.charger.topology {
+                let drive = match topology {
                     Topology::BuckBoost => circuit::Drive::BuckBoost {
                         model: &self.buck_boost,
                         duty: 0.0,
@@ -655,7 +714,7 @@ impl Plant {
                         current_a: 0.0,
                         on: false,
                     },
-                    _ => circuit::Drive::Off(&self.buck),
+                    _ => circuit::Drive::Off(buck),
                 };
                 let (p, rates) = circuit::evaluate(src, &self.circuit, term, drive, &x);
                 (p, 0.0, false, rates, (0.0, 0.0))
@@ -677,7 +736,7 @@ impl Plant {
                     current_integrator: y[CTRL_I],
                     input_floor_v: self.charger.input_floor_v,
                 };
-                let (out, drive) = match self.charger.topology {
+                let (out, drive) = match topology {
                     Topology::BuckBoost => {
                         let out =
                             controller::control_buck_boost(&self.gains, &self.buck_boost, &input);
@@ -697,9 +756,9 @@ impl Plant {
                         (out, drive)
                     }
                     _ => {
-                        let out = controller::control(&self.gains, &self.buck, &input);
+                        let out = controller::control(&self.gains, buck, &input);
                         let drive = circuit::Drive::Switching {
-                            buck: &self.buck,
+                            buck,
                             duty: out.duty,
                         };
                         (out, drive)
@@ -789,7 +848,8 @@ impl Plant {
         dy[E_COPPER] = p.copper_w;
         dy[E_BRUSH] = p.net.brush_v * ig;
         dy[E_DIODE] = p.net.diode_v * ig;
-        dy[E_CONVERTER] = p.net.losses.total_w();
+        let losses = &p.net.losses;
+        dy[E_CONVERTER] = losses.total_w() - losses.overhead_w - losses.pass_w;
         dy[E_BATTERY_TERMINAL] = p.net.battery_v * ib;
         dy[E_BATTERY_OHMIC] = p.battery_powers.ohmic_w;
         dy[E_BATTERY_COULOMBIC] = p.battery_powers.coulombic_loss_w;
@@ -802,6 +862,11 @@ impl Plant {
         dy[CTRL_V] = p.ctrl_rates.0;
         dy[CTRL_I] = p.ctrl_rates.1;
         dy[E_DEVICE] = p.bus.device_loss_w;
+        dy[ROTOR_ANGLE] = y[GEN_SPEED];
+        dy[JUNCTION_TEMP] = 0.0;
+        dy[E_IRON] = p.iron_w;
+        dy[E_OVERHEAD] = losses.overhead_w;
+        dy[E_PASS] = losses.pass_w;
     }
 
     /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.
@@ -819,6 +884,11 @@ impl Plant {
                 },
             ),
         }
+    }
+
+    /// Potential energy of the generator's cogging, J.
+    pub fn cogging_j(&self, y: &State) -> f64 {
+        self.generator.cogging_energy_j(y[ROTOR_ANGLE])
     }
 
     /// Kinetic energy of crank and shaft, J.

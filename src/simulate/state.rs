@@ -3,7 +3,7 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 29;
+pub const N_STATES: usize = 34;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
@@ -59,6 +59,19 @@ pub const CTRL_I: usize = 27;
 /// Energy ledger, USB port only: heat in the device's charger (its pass element), J.
 pub const E_DEVICE: usize = 28;
 
+/// Generator rotor angle, rad (for the cogging torque; it runs on its own while the freewheel
+/// lets the shaft overrun).
+pub const ROTOR_ANGLE: usize = 29;
+/// Junction temperature of a linear charger's pass element, °C (ambient for the other
+/// topologies).
+pub const JUNCTION_TEMP: usize = 30;
+/// Energy ledger: generator iron loss, J.
+pub const E_IRON: usize = 31;
+/// Energy ledger: switching chargers' gate-drive and inductor-core loss, J.
+pub const E_OVERHEAD: usize = 32;
+/// Energy ledger: heat in a linear charger's pass element, J.
+pub const E_PASS: usize = 33;
+
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
     y.iter().all(|v| v.is_finite())
@@ -95,4 +108,9 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "voltage_loop_a",
     "current_loop",
     "e_device_j",
+    "rotor_angle_rad",
+    "junction_temp_c",
+    "e_iron_j",
+    "e_overhead_j",
+    "e_pass_j",
 ];

@@ -7,7 +7,7 @@ use crate::model::battery::Terminal;
 use crate::model::circuit::{self, FastRates, FastStates};
 use crate::model::controller::{self, ControlInput, ControllerGains};
 use crate::model::converter::BuckModel;
-use crate::model::network::{Converters, NetworkPoint, Source};
+use crate::model::network::{NetworkPoint, Source};
 use crate::model::usb::{BusPoint, UsbModel};
 use crate::model::usb_network;
 use crate::scenario::setup::{Setup, Topology, UsbPort};
@@ -107,7 +107,7 @@ impl Plant {
                 let (p, bus) = match r {
                     Request::Charge { ramp, .. } => usb_network::solve(
                         src,
-                        &self.converters(),
+                        &self.converters(d),
                         u,
                         (ramp * u.bus_v, u.port_current_a),
                         demand,
@@ -147,15 +147,6 @@ impl Plant {
                 let d_ff = ((v_o + b.catch_drop_v) / den).clamp(0.0, b.max_duty);
                 b.reported_duty(v_in, v_o, current_a, d_ff).0 - d_ff
             }
-        }
-    }
-
-    fn converters(&self) -> Converters<'_> {
-        Converters {
-            topology: self.charger.topology,
-            buck: &self.buck,
-            buck_boost: &self.buck_boost,
-            linear: &self.linear,
         }
     }
 
@@ -229,10 +220,17 @@ impl Plant {
                     circuit::evaluate_with_sink(src, &self.circuit, drive, &x, sink);
                 if out.duty <= 0.0 {
                     // Skipping every pulse, the running controller still draws its quiescent
-                    // current from the input (the averaged stage books it only while switching).
+                    // current from the input (the averaged stage books it only while switching);
+                    // its gate driver then rests.
                     let iq = match self.charger.topology {
-                        Topology::BuckBoost => self.buck_boost.quiescent_current_a,
-                        _ => self.buck.quiescent_current_a,
+                        Topology::BuckBoost => {
+                            let bb = &self.buck_boost;
+                            bb.quiescent_current_a - bb.overhead.gate_drive_current_a
+                        }
+                        _ => {
+                            let b = &self.buck;
+                            b.quiescent_current_a - b.overhead.gate_drive_current_a
+                        }
                     };
                     rates.input -= iq / self.circuit.input_capacitance_f;
                     p.losses.quiescent_w += x.input_v * iq;

@@ -201,20 +201,21 @@ pub fn run(a: &CheckArgs) -> Result<i32, Failure> {
 /// The static network of a plant: what is needed to solve operating points at a cadence.
 pub(super) struct Statics<'a> {
     pub plant: &'a Plant,
+    /// Armature resistance with the winding at ambient, Ω.
     pub resistance_ohm: f64,
+    /// Back-EMF constant with the magnets at ambient, V·s/rad.
+    pub ke_v_s_per_rad: f64,
 }
 
 impl Statics<'_> {
     /// Open-circuit EMF at a crank cadence, V.
     pub fn emf_v(&self, crank_rpm: f64) -> f64 {
-        self.plant
-            .generator
-            .emf_v(rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio)
+        self.ke_v_s_per_rad * rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio
     }
 
     /// Crank cadence at which the open-circuit EMF equals `v`, rpm.
     pub fn cadence_for_emf(&self, v: f64) -> f64 {
-        rad_s_to_rpm(v / self.plant.generator.ke_v_s_per_rad / self.plant.drive.ratio)
+        rad_s_to_rpm(v / self.ke_v_s_per_rad / self.plant.drive.ratio)
     }
 
     /// The generator side at a crank cadence (winding at ambient).
@@ -268,11 +269,16 @@ impl Statics<'_> {
         !p.dropout && p.input_v >= c.uvlo_off_v && p.battery_current_a >= target_a * (1.0 - 1e-9)
     }
 
-    /// Steady torque the crank must give at a cadence for a generator current, N·m.
+    /// Steady torque the crank must give at a cadence for a generator current (electromagnetic
+    /// torque, shaft friction and iron loss; cogging averages to zero over a turn), N·m.
     fn crank_torque_n_m(&self, crank_rpm: f64, generator_current_a: f64) -> f64 {
         let d = &self.plant.drive;
+        let g = &self.plant.generator;
         let omega_g = rpm_to_rad_s(crank_rpm) * d.ratio;
-        (self.plant.generator.torque_n_m(generator_current_a) + d.friction_n_m(omega_g)) * d.ratio
+        (self.ke_v_s_per_rad * generator_current_a
+            + d.friction_n_m(omega_g)
+            + g.iron_loss_torque_n_m(omega_g))
+            * d.ratio
             / d.efficiency
     }
 }
@@ -355,6 +361,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
     let st = Statics {
         plant,
         resistance_ohm: plant.generator.resistance_ohm(ambient),
+        ke_v_s_per_rad: plant.generator.ke_at(ambient),
     };
     let bs_start = BatteryState {
         soc: setup.battery.soc_start,
