@@ -472,6 +472,132 @@ fn linear_charger_efficiency_is_about_vo_over_vin_and_it_drops_out_below_the_hea
     assert!(slow.summary.in_regulation_fraction < s.summary.in_regulation_fraction);
 }
 
+#[test]
+fn linear_pass_element_settles_at_ambient_plus_power_times_theta() {
+    // A smooth operator and a small heat capacity (θ·C = 1.6 s) so the junction follows the
+    // slowly changing dissipation; θ, C and ambient are set here.
+    let (theta, ambient) = (8.0, 20.0);
+    let sc = load(
+        &setup_path("lfp-linear"),
+        &[
+            ("converter.pass_theta_ja_k_per_w", "8"),
+            ("converter.pass_heat_capacity_j_per_k", "0.2"),
+            ("ambient_c", "20"),
+            ("profile.jitter.enabled", "false"),
+        ],
+    );
+    let s = run(&sc, Some(60.0), Fidelity::Fast);
+    let mut checked = 0;
+    for r in s.result.trace.rows.iter().filter(|r| r.time_s >= 30.0) {
+        let p = (r.input_v - r.battery_v) * r.battery_current_a;
+        // Source: the lumped thermal model, ΔT_ss = P·R_th (Incropera & DeWitt; Çengel, Heat
+        // Transfer; REFERENCES §9) with R_th = θ_ja.
+        let want = ambient + p * theta;
+        assert!(
+            (r.junction_temp_c - want).abs() <= 0.02 * (want - ambient) + 1e-6,
+            "t = {}: junction {} °C vs {want} °C at {p} W",
+            r.time_s,
+            r.junction_temp_c
+        );
+        checked += 1;
+    }
+    assert!(checked > 200, "only {checked} rows");
+    // The pass element really dissipates: the check is not made on a cold junction.
+    let hottest = s
+        .result
+        .trace
+        .rows
+        .iter()
+        .map(|r| r.junction_temp_c)
+        .fold(f64::MIN, f64::max);
+    assert!(
+        hottest > ambient + 10.0,
+        "junction only reached {hottest} °C"
+    );
+    // Its heat is a ledger term of its own, and the ledger closes with it.
+    assert!(s.result.ledger.pass_heat_j > 100.0);
+    assert!(s.summary.energy_balance_error < 1e-3);
+}
+
+#[test]
+fn linear_charger_folds_back_without_a_heatsink_and_says_so() {
+    // The pass element in free air (62.5 K/W, 1 J/K) against the shipped heatsink; foldback
+    // from 120 °C to zero at 150 °C, set here.
+    let common = [
+        ("converter.pass_foldback_c", "120"),
+        ("converter.pass_shutdown_c", "150"),
+    ];
+    let with = |theta: &'static str, cap: &'static str| {
+        let mut sets = vec![
+            ("converter.pass_theta_ja_k_per_w", theta),
+            ("converter.pass_heat_capacity_j_per_k", cap),
+        ];
+        sets.extend(common);
+        run(
+            &load(&setup_path("lfp-linear"), &sets),
+            Some(300.0),
+            Fidelity::Fast,
+        )
+    };
+    let bare = with("62.5", "1");
+    let sink = with("8", "40");
+    let i_cc = load(&setup_path("lfp-linear"), &[])
+        .setup
+        .converter
+        .charge_current_a;
+    let folds = |s: &Session| {
+        s.summary
+            .alerts
+            .iter()
+            .filter(|e| e.kind == EventKind::ThermalFoldback)
+            .count()
+    };
+    assert!(folds(&bare) > 0, "no thermal_foldback alert in free air");
+    assert_eq!(
+        folds(&sink),
+        0,
+        "the heatsinked pass element should not fold back"
+    );
+    let mut cut = 0;
+    for r in &bare.result.trace.rows {
+        // The current limit follows the foldback line: full at 120 °C, none at 150 °C.
+        let allowed = i_cc * ((150.0 - r.junction_temp_c) / 30.0).clamp(0.0, 1.0);
+        assert!(
+            r.battery_current_a <= allowed + 1e-6,
+            "t = {}: {} A at a {} °C junction (allowed {allowed} A)",
+            r.time_s,
+            r.battery_current_a,
+            r.junction_temp_c
+        );
+        assert!(r.junction_temp_c < 150.0, "junction reached the cut-off");
+        cut += usize::from(r.junction_temp_c > 125.0);
+    }
+    assert!(
+        cut > 100,
+        "the foldback hardly acted ({cut} rows above 125 °C)"
+    );
+    assert!(
+        bare.summary.charge_delivered_ah < 0.9 * sink.summary.charge_delivered_ah,
+        "folding back should cost charge: {} vs {} Ah",
+        bare.summary.charge_delivered_ah,
+        sink.summary.charge_delivered_ah
+    );
+    // `check` warns of it from the static figures.
+    let wd = WorkDir::new();
+    let out = run_ok(
+        &wd,
+        &[
+            "check",
+            "lfp-linear",
+            "--set",
+            "converter.pass_theta_ja_k_per_w=62.5",
+        ],
+    );
+    assert!(out.contains("foldback"), "{out}");
+    let out = run_ok(&wd, &["check", "lfp-linear"]);
+    assert!(!out.contains("foldback"), "{out}");
+}
+
 // ---------------------------------------------------------------------------------------------
 // Lead-acid behind a buck
 // ---------------------------------------------------------------------------------------------

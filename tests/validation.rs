@@ -895,7 +895,7 @@ fn usb_port_limit_defaults_to_a_dedicated_charging_port() {
 #[test]
 fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line() {
     use crankcharge::model::battery::Terminal;
-    use crankcharge::model::converter::{BuckBoostModel, LinearModel};
+    use crankcharge::model::converter::{BuckBoostModel, LinearModel, PassThermal};
     use crankcharge::model::network::{Converters, Source};
     use crankcharge::model::usb::UsbModel;
     use crankcharge::model::usb_network;
@@ -932,6 +932,12 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         dropout_v: 0.3,
         pass_resistance_ohm: 0.3,
         quiescent_current_a: 0.0,
+        thermal: PassThermal {
+            theta_ja_k_per_w: 62.5,
+            heat_capacity_j_per_k: 1.0,
+            foldback_c: 120.0,
+            shutdown_c: 150.0,
+        },
     };
     let conv = Converters {
         topology: Topology::Buck,

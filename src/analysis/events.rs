@@ -24,6 +24,9 @@ pub enum EventKind {
     ChargeComplete,
     /// USB port: the device cut itself off the sagging (or vanished) bus, until it reconnects.
     DeviceCutoff,
+    /// Linear charger: the pass element's junction is past its foldback temperature, so the
+    /// charge current is cut back.
+    ThermalFoldback,
 }
 
 impl EventKind {
@@ -39,6 +42,7 @@ impl EventKind {
             EventKind::OperatorOverload => "operator_overload",
             EventKind::ChargeComplete => "charge_complete",
             EventKind::DeviceCutoff => "device_cutoff",
+            EventKind::ThermalFoldback => "thermal_foldback",
         }
     }
 

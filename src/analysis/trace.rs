@@ -76,10 +76,12 @@ pub struct TraceRow {
     pub bus_current_a: f64,
     /// Operator power averaged over a crank revolution (the un-rippled torque × crank speed), W.
     pub operator_mean_power_w: f64,
+    /// Junction temperature of a linear charger's pass element (ambient otherwise), °C.
+    pub junction_temp_c: f64,
 }
 
 /// Column names of `trace.csv`, in order.
-pub const TRACE_COLUMNS: [&str; 23] = [
+pub const TRACE_COLUMNS: [&str; 24] = [
     "time_s",
     "crank_rpm",
     "target_rpm",
@@ -103,6 +105,7 @@ pub const TRACE_COLUMNS: [&str; 23] = [
     "bus_v",
     "bus_current_a",
     "operator_mean_power_w",
+    "junction_temp_c",
 ];
 
 /// The whole sampled trace of one session.

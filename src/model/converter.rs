@@ -412,6 +412,9 @@ pub fn buck_boost_conversion_ratio(d: f64) -> f64 {
 /// current; in dropout the pass element is fully on and acts as a resistance
 /// R_pass = V_dropout / I_cc (so the headroom needed at the charge current is the dropout voltage).
 /// Input current I + I_q, so the efficiency is V_o·I/(V_in·(I + I_q)) ≈ V_o/V_in.
+///
+/// The pass element heats: one lumped thermal node, C·dT_j/dt = P − (T_j − T_a)/θ_ja, and the
+/// charger folds its current limit back linearly from full at T_fold to zero at T_shutdown.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub struct LinearModel {
     /// Headroom V_in − V_o needed at the charge current, V.
@@ -419,6 +422,34 @@ pub struct LinearModel {
     /// Pass resistance when fully on, Ω.
     pub pass_resistance_ohm: f64,
     pub quiescent_current_a: f64,
+    /// The pass element's thermal node.
+    pub thermal: PassThermal,
+}
+
+/// Thermal node of a linear charger's pass element and its foldback.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct PassThermal {
+    /// Junction-to-ambient thermal resistance, K/W.
+    pub theta_ja_k_per_w: f64,
+    /// Heat capacity, J/K.
+    pub heat_capacity_j_per_k: f64,
+    /// Foldback starts here, °C.
+    pub foldback_c: f64,
+    /// The current limit reaches zero here, °C.
+    pub shutdown_c: f64,
+}
+
+impl PassThermal {
+    /// dT_j/dt = (P − (T_j − T_a)/θ_ja)/C, K/s (lumped; steady rise P·θ_ja, time constant θ·C).
+    pub fn rate_k_per_s(&self, heat_w: f64, junction_c: f64, ambient_c: f64) -> f64 {
+        (heat_w - (junction_c - ambient_c) / self.theta_ja_k_per_w) / self.heat_capacity_j_per_k
+    }
+
+    /// Fraction of the charge current allowed at junction temperature T_j:
+    /// clamp((T_sd − T_j)/(T_sd − T_fold), 0, 1).
+    pub fn foldback(&self, junction_c: f64) -> f64 {
+        ((self.shutdown_c - junction_c) / (self.shutdown_c - self.foldback_c)).clamp(0.0, 1.0)
+    }
 }
 
 impl LinearModel {
@@ -429,6 +460,12 @@ impl LinearModel {
             dropout_v,
             pass_resistance_ohm: dropout_v / c.charge_current_a.max(1e-6),
             quiescent_current_a: c.quiescent_current_a,
+            thermal: PassThermal {
+                theta_ja_k_per_w: c.pass_theta_ja_k_per_w,
+                heat_capacity_j_per_k: c.pass_heat_capacity_j_per_k,
+                foldback_c: c.pass_foldback_c,
+                shutdown_c: c.pass_shutdown_c,
+            },
         }
     }
 

@@ -271,11 +271,7 @@ mod tests {
         let cfg: crate::scenario::setup::Converter =
             ron::from_str("(topology: buck_boost)").expect("converter defaults");
         let bb = BuckBoostModel::from_config(&cfg);
-        let lin = LinearModel {
-            dropout_v: 0.3,
-            pass_resistance_ohm: 0.3,
-            quiescent_current_a: 0.0,
-        };
+        let lin = LinearModel::from_config(&cfg);
         let conv = Converters {
             topology: Topology::Buck,
             buck: &b,

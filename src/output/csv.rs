@@ -93,6 +93,7 @@ fn trace_record(r: &TraceRow) -> [Cell; TRACE_COLUMNS.len()] {
         Num(r.bus_v, 6),
         Num(r.bus_current_a, 6),
         Num(r.operator_mean_power_w, 4),
+        Num(r.junction_temp_c, 4),
     ]
 }
 

@@ -748,7 +748,8 @@ fn alert_panel(kind: EventKind) -> Option<usize> {
         EventKind::Overcharge
         | EventKind::InputOvervoltage
         | EventKind::Lockout
-        | EventKind::DeviceCutoff => Some(1),
+        | EventKind::DeviceCutoff
+        | EventKind::ThermalFoldback => Some(1),
         EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => Some(2),
         EventKind::OperatorOverload => Some(3),
         EventKind::RegulationLoss | EventKind::ChargeComplete => None,
@@ -766,6 +767,7 @@ fn alert_label(kind: EventKind) -> &'static str {
         EventKind::RegulationLoss => "regulation lost",
         EventKind::ChargeComplete => "charge complete",
         EventKind::DeviceCutoff => "device cut off",
+        EventKind::ThermalFoldback => "thermal foldback",
     }
 }
 
@@ -780,6 +782,7 @@ fn alert_color(kind: EventKind) -> RGBColor {
         EventKind::RegulationLoss => BAND,
         EventKind::ChargeComplete => OLIVE,
         EventKind::DeviceCutoff => RGBColor(20, 140, 120),
+        EventKind::ThermalFoldback => RGBColor(168, 84, 20),
     }
 }
 
@@ -1493,6 +1496,7 @@ mod tests {
             bus_v: 12.6 + t / 2000.0,
             bus_current_a: 1.5 + 0.3 * (t / 25.0).cos(),
             operator_mean_power_w: 45.0,
+            junction_temp_c: 20.0,
         }
     }
 

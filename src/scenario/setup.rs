@@ -231,6 +231,27 @@ pub struct Converter {
     /// Linear charger: headroom V_in − V_o needed at the charge current, V (0.01 … 5); default 0.3.
     #[serde(default)]
     pub dropout_v: Option<f64>,
+    /// Linear charger: thermal resistance from the pass element's junction to ambient, K/W
+    /// (0.1 … 500). Default 62.5, a TO-220 package in free air (from memory: the R_θJA that
+    /// power-transistor datasheets give for it); on a heatsink, junction-to-case plus interface
+    /// plus heatsink, a few K/W.
+    #[serde(default = "default_pass_theta_ja")]
+    pub pass_theta_ja_k_per_w: f64,
+    /// Linear charger: heat capacity of the pass element with whatever it is mounted on, J/K
+    /// (0.01 … 10 000). Default 1, a TO-220 package alone (about 2 g of copper tab and moulding;
+    /// from memory); add a heatsink's mass × specific heat (aluminium ≈ 0.9 J/(g·K)).
+    #[serde(default = "default_pass_heat_capacity")]
+    pub pass_heat_capacity_j_per_k: f64,
+    /// Linear charger: junction temperature at which thermal foldback starts to cut the charge
+    /// current, °C (40 … 200). Default 120 (common practice: linear charger ICs regulate their die
+    /// near 105–125 °C).
+    #[serde(default = "default_pass_foldback")]
+    pub pass_foldback_c: f64,
+    /// Linear charger: junction temperature at which foldback has cut the current to zero, °C
+    /// (above `pass_foldback_c`, at most 250). Default 150 (common practice: thermal shutdown of
+    /// regulator and charger ICs near 150–165 °C).
+    #[serde(default = "default_pass_shutdown")]
+    pub pass_shutdown_c: f64,
     /// Freewheel (catch) diode drop, V (0 … 2); the buck-boost has two such diodes.
     #[serde(default = "default_catch_drop")]
     pub catch_diode_drop_v: f64,
@@ -308,6 +329,18 @@ pub struct Converter {
 
 fn default_charge_current() -> f64 {
     1.0
+}
+fn default_pass_theta_ja() -> f64 {
+    62.5
+}
+fn default_pass_heat_capacity() -> f64 {
+    1.0
+}
+fn default_pass_foldback() -> f64 {
+    120.0
+}
+fn default_pass_shutdown() -> f64 {
+    150.0
 }
 fn default_max_duty() -> f64 {
     0.95

@@ -251,6 +251,25 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         }
         if cv.topology == Topology::Linear {
             c.opt_range("converter.dropout_v", cv.dropout_v, 0.01, 5.0);
+            c.range(
+                "converter.pass_theta_ja_k_per_w",
+                cv.pass_theta_ja_k_per_w,
+                0.1,
+                500.0,
+            );
+            c.range(
+                "converter.pass_heat_capacity_j_per_k",
+                cv.pass_heat_capacity_j_per_k,
+                0.01,
+                10_000.0,
+            );
+            c.range("converter.pass_foldback_c", cv.pass_foldback_c, 40.0, 200.0);
+            c.above(
+                "converter.pass_shutdown_c",
+                cv.pass_shutdown_c,
+                cv.pass_foldback_c,
+                250.0,
+            );
             c.rule(
                 cv.input_floor_v.is_none(),
                 "converter.input_floor_v",

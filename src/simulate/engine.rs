@@ -1194,6 +1194,7 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         bus_v: p.bus.bus_v,
         bus_current_a: p.bus.bus_current_a,
         operator_mean_power_w: p.operator_mean_power_w,
+        junction_temp_c: y[JUNCTION_TEMP],
     }
 }
 

@@ -13,7 +13,7 @@ use super::usb_port::device_cut_off;
 pub const OVERCHARGE_MARGIN_V: f64 = 1e-6;
 
 /// The watched conditions, in a fixed order.
-pub const WATCHED: [EventKind; 8] = [
+pub const WATCHED: [EventKind; 9] = [
     EventKind::RegulationLoss,
     EventKind::Lockout,
     EventKind::Overcharge,
@@ -22,6 +22,7 @@ pub const WATCHED: [EventKind; 8] = [
     EventKind::ChargeTempWindow,
     EventKind::OperatorOverload,
     EventKind::DeviceCutoff,
+    EventKind::ThermalFoldback,
 ];
 
 /// Codes of every watched condition at one point (0 = not present).
@@ -77,6 +78,7 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Codes {
         },
         u8::from(w0 > 0.0 && y[W_PRIME] < plant.alerts.operator_reserve_fraction * w0),
         device_cutoff_code(plant, p, d),
+        u8::from(conv && d.enabled && !d.ov_shutdown && plant.foldback(y) < 1.0),
     ]
 }
 
@@ -102,6 +104,7 @@ fn peak_of(kind: EventKind, p: &Point, y: &State) -> (f64, &'static str, bool) {
         EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => (y[BATTERY_TEMP], "degC", true),
         EventKind::OperatorOverload => (p.operator_mean_power_w, "W", true),
         EventKind::ChargeComplete => (p.net.battery_current_a, "A", false),
+        EventKind::ThermalFoldback => (y[JUNCTION_TEMP], "degC", true),
     }
 }
 
@@ -183,6 +186,14 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
         ),
         EventKind::ChargeComplete => "charge terminated".to_string(),
         EventKind::DeviceCutoff => "device cut off".to_string(),
+        EventKind::ThermalFoldback => {
+            let t = &plant.linear.thermal;
+            format!(
+                "pass element junction above {:.0} degC: charge current folded back (to zero at \
+                 {:.0} degC)",
+                t.foldback_c, t.shutdown_c
+            )
+        }
     }
 }
 

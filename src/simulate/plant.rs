@@ -92,6 +92,10 @@ pub struct Charger {
     /// The charger sleeps while its input is below the battery (buck, linear); a buck-boost
     /// charges from there too.
     pub sleeps_below_battery: bool,
+    /// How far above the battery the input must be before a sleeping charger can pass current, V:
+    /// a buck's switch drop (below V_o + V_sw no duty pushes current into the inductor), 0 for a
+    /// linear charger.
+    pub sleep_margin_v: f64,
     /// Switching chargers: the input-voltage floor they hold by trimming their current, V.
     pub input_floor_v: Option<f64>,
     /// Least off-time after a lock-out before a restart, s.
@@ -255,6 +259,11 @@ impl Plant {
             input_overvoltage_v: c.input_overvoltage_v,
             overvoltage_shutdown: c.overvoltage_shutdown,
             sleeps_below_battery: c.topology != Topology::BuckBoost,
+            sleep_margin_v: if c.topology == Topology::Buck && setup.usb.is_none() {
+                c.switch_drop_v
+            } else {
+                0.0
+            },
             input_floor_v: match c.topology {
                 Topology::Buck | Topology::BuckBoost => c.input_floor_v,
                 _ => None,
@@ -481,7 +490,7 @@ impl Plant {
         let band = self.band(bs.temp_c);
         let frozen = self.battery.freeze(&bs);
         let term = frozen.terminal();
-        let request = self.request(d, bs.temp_c, band, y[SOFT_START]);
+        let request = self.request(d, y, band);
         let usb_eval = self
             .usb
             .as_ref()
@@ -778,7 +787,18 @@ impl Plant {
     }
 
     /// What the charger asks for in mode `d` at battery temperature `temp_c`.
-    fn request(&self, d: &Discrete, temp_c: f64, band: TempBand, soft: f64) -> Request {
+    /// A linear charger's thermal foldback: the fraction of its current limit its pass element's
+    /// junction temperature allows (1 for the other topologies).
+    pub fn foldback(&self, y: &State) -> f64 {
+        if self.charger.topology == Topology::Linear {
+            self.linear.thermal.foldback(y[JUNCTION_TEMP])
+        } else {
+            1.0
+        }
+    }
+
+    /// What the charger asks for in mode `d` at state `y` (battery temperature in `band`).
+    fn request(&self, d: &Discrete, y: &State, band: TempBand) -> Request {
         if !self.has_converter() {
             return Request::Direct;
         }
@@ -791,12 +811,12 @@ impl Plant {
             _ => 1.0,
         };
         Request::Charge {
-            cc_limit_a: self.charger.charge_current_a * fraction,
-            v_set: self.voltage_setpoint_v(d, temp_c),
+            cc_limit_a: self.charger.charge_current_a * fraction * self.foldback(y),
+            v_set: self.voltage_setpoint_v(d, y[BATTERY_TEMP]),
             ramp: if d.soft_done {
                 1.0
             } else {
-                soft.clamp(0.0, 1.0)
+                y[SOFT_START].clamp(0.0, 1.0)
             },
             hold,
         }
@@ -863,7 +883,10 @@ impl Plant {
         dy[CTRL_I] = p.ctrl_rates.1;
         dy[E_DEVICE] = p.bus.device_loss_w;
         dy[ROTOR_ANGLE] = y[GEN_SPEED];
-        dy[JUNCTION_TEMP] = 0.0;
+        dy[JUNCTION_TEMP] =
+            self.linear
+                .thermal
+                .rate_k_per_s(losses.pass_w, y[JUNCTION_TEMP], self.ambient_c);
         dy[E_IRON] = p.iron_w;
         dy[E_OVERHEAD] = losses.overhead_w;
         dy[E_PASS] = losses.pass_w;

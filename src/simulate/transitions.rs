@@ -62,9 +62,10 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             if c.overvoltage_shutdown && p.net.input_v > c.input_overvoltage_v {
                 return Some(Transition::OvShutdown);
             }
-            // UVLO, or sleep: an input below the battery cannot charge it.
+            // UVLO, or sleep: an input below the battery (plus a buck's switch drop) cannot
+            // charge it.
             if p.net.input_v < c.uvlo_off_v
-                || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v)
+                || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v + c.sleep_margin_v)
                 || usb_sleeps(plant, p, 0.0)
             {
                 return Some(Transition::Disable);
@@ -96,7 +97,8 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 _ => {}
             }
         } else if p.idle_input_v >= c.uvlo_on_v
-            && (!c.sleeps_below_battery || p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V)
+            && (!c.sleeps_below_battery
+                || p.idle_input_v >= p.net.battery_v + c.sleep_margin_v + SLEEP_HYSTERESIS_V)
             && !usb_sleeps(plant, p, SLEEP_HYSTERESIS_V)
             && p.t - d.disabled_at_s >= c.restart_delay_s
         {

@@ -520,6 +520,18 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
     } else {
         notes.push("The profile never asks for a cadence above zero.".to_string());
     }
+    if let (Topology::Linear, Some(at)) = (plant.charger.topology, &at_profile) {
+        // Lumped junction: steady rise P·θ_ja above ambient.
+        let th = &plant.linear.thermal;
+        let p = (at.input_v - at.battery_v).max(0.0) * at.battery_current_a.max(0.0);
+        let tj = ambient + p * th.theta_ja_k_per_w;
+        if tj > th.foldback_c {
+            notes.push(format!(
+                "At the profile's cadence the pass element dissipates {p:.1} W: its junction would settle near {tj:.0} °C (θ_ja {:.1} K/W), past the {:.0} °C foldback, so the charge current will be cut back. A heatsink (lower θ_ja) keeps the full current.",
+                th.theta_ja_k_per_w, th.foldback_c
+            ));
+        }
+    }
     if matches!(band, TempBand::Cool | TempBand::Warm) {
         notes.push(format!(
             "The battery starts in its {} charge-temperature band at {temp_start} °C: current or voltage is reduced.",

@@ -132,6 +132,7 @@ fn first_non_finite(r: &SimResult) -> Option<f64> {
             row.battery_temp_c,
             row.operator_power_w,
             row.operator_mean_power_w,
+            row.junction_temp_c,
             row.charge_limit_v,
             row.operator_torque_n_m,
             row.w_prime_balance_j,

@@ -670,13 +670,16 @@ def run(m, duration, grid_dt, rtol, atol_all, method="Radau", max_step=0.01, sta
             ev_names.append(name)
 
         # UVLO with hysteresis, and sleep: the charger needs its input at or above uvlo_on_v and
-        # sleep_hysteresis_v above the battery (the output capacitor) to start; it stops when the
-        # input falls below uvlo_off_v or below the battery.
+        # sleep_hysteresis_v above the battery (the output capacitor) plus its switch drop (below
+        # V_o + V_sw no duty pushes current) to start; it stops when the input falls below
+        # uvlo_off_v or below the battery plus the switch drop.
         hyst = m.c["sleep_hysteresis_v"]
         if not enabled:
-            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_on, yy[m.V_O] + hyst), True, 1.0, "enable")
+            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_on, yy[m.V_O] + m.vsw + hyst), True, 1.0,
+                 "enable")
         else:
-            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_off, yy[m.V_O]), True, -1.0, "disable")
+            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_off, yy[m.V_O] + m.vsw), True, -1.0,
+                 "disable")
             if not soft_done:
                 make(lambda tt, yy: yy[m.SOFT] - 1.0, True, 1.0, "soft_start_done")
             # Not mode changes, only reported: the duty command meeting and leaving D_max.
