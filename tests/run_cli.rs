@@ -802,6 +802,96 @@ fn w_prime_stays_flat_when_the_operator_is_held_at_critical_power() {
 }
 
 #[test]
+fn the_overreach_operator_tires_by_itself_and_w_prime_follows_skiba() {
+    // The shipped profile asks for one constant cadence; its operator's critical power is below
+    // what the demo takes at that cadence.
+    #[derive(Deserialize)]
+    struct Overreach {
+        segments: Vec<SegmentFile>,
+        operator: OperatorFile,
+    }
+    #[derive(Deserialize)]
+    struct SegmentFile {
+        cadence_rpm: f64,
+        #[serde(default)]
+        end_cadence_rpm: Option<f64>,
+    }
+    let p: Overreach = shipped("profiles/cranking/overreach.ron");
+    let target = p.segments[0].cadence_rpm;
+    assert!(
+        p.segments
+            .iter()
+            .all(|s| s.cadence_rpm == target && s.end_cadence_rpm.unwrap_or(target) == target),
+        "overreach scripts no sag: one cadence throughout"
+    );
+    let (cp, w0) = (p.operator.critical_power_w, p.operator.w_prime_j);
+    let wd = WorkDir::new();
+    run_ok(
+        &wd,
+        &["run", "--profile", "overreach", "--no-plot", "--out", "o"],
+    );
+    let tr = Trace::read(&wd.path("o"));
+    let t = tr.col("time_s");
+    let crank = tr.col("crank_rpm");
+    let goal = tr.col("target_rpm");
+    let p_mean = tr.col("operator_mean_power_w");
+    let w = tr.col("w_prime_balance_j");
+    let mean_over = |v: &[f64], a: f64, b: f64| {
+        let sel: Vec<f64> = (0..t.len())
+            .filter(|&k| t[k] >= a && t[k] < b)
+            .map(|k| v[k])
+            .collect();
+        sel.iter().sum::<f64>() / sel.len() as f64
+    };
+    // Fresh, the operator holds the target (30–120 s) …
+    let early = mean_over(&crank, 30.0, 120.0) / mean_over(&goal, 30.0, 120.0);
+    assert!(early > 0.95, "early cadence only {early:.3} of the target");
+    // … above critical power, so W′ runs down …
+    assert!(
+        mean_over(&p_mean, 30.0, 120.0) > cp,
+        "early power not above CP"
+    );
+    let w_end = *w.last().expect("rows");
+    assert!(w_end < 0.1 * w0, "W′ only fell to {w_end} J of {w0} J");
+    // … and the cadence falls by itself in the last two minutes, with the target unchanged.
+    let late = mean_over(&crank, 480.0, 600.0) / mean_over(&goal, 480.0, 600.0);
+    assert!(late < 0.75, "late cadence still {late:.3} of the target");
+    assert!(
+        (mean_over(&goal, 480.0, 600.0) / mean_over(&goal, 30.0, 120.0) - 1.0).abs() < 0.05,
+        "the target itself must not sag"
+    );
+    // Source: Skiba et al., Med Sci Sports Exerc 44(8):1526–1532, 2012 — the W′ balance in
+    // differential form (REFERENCES §8), integrated here over the trace's revolution-averaged
+    // power (0.1-s steps): it follows the product's W′ to within 1 % of W′0.
+    let mut w_ref = w0;
+    let mut worst: f64 = 0.0;
+    for k in 1..t.len() {
+        let p = p_mean[k - 1];
+        let rate = if p > cp {
+            if w_ref > 0.0 {
+                -(p - cp)
+            } else {
+                0.0
+            }
+        } else {
+            (w0 - w_ref) * (cp - p) / w0
+        };
+        w_ref += rate * (t[k] - t[k - 1]);
+        worst = worst.max((w_ref - w[k]).abs());
+    }
+    assert!(
+        worst < 0.01 * w0,
+        "W′ differs from Skiba's balance by {worst} J"
+    );
+    // The exhausted reserve is reported.
+    let events = read_events(&wd.path("o"));
+    assert!(
+        events.iter().any(|e| e.kind == "operator_overload"),
+        "no operator_overload event"
+    );
+}
+
+#[test]
 fn slow_cranking_loses_regulation_and_the_events_add_up() {
     let wd = WorkDir::new();
     run_ok(
