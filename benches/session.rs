@@ -330,6 +330,7 @@ fn stretch(quick: bool) {
         resting: false,
         engaged: true,
         soft_done: true,
+        buck_mode: false,
         disabled_at_s: f64::NEG_INFINITY,
         device_on: false,
         device_off_at_s: f64::NEG_INFINITY,

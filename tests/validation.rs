@@ -79,6 +79,10 @@ mod file {
     pub struct Generator {
         pub back_emf_v_per_krpm: f64,
         pub resistance_ohm: f64,
+        #[serde(default)]
+        pub hysteresis_loss_w_per_krpm: f64,
+        #[serde(default)]
+        pub eddy_loss_w_per_krpm2: f64,
     }
 
     #[derive(Deserialize)]
@@ -381,6 +385,79 @@ fn pmdc_emf_reverses_with_rotation() {
     // rotation.
     assert!(g.emf_v(w) > 0.0);
     assert!((g.emf_v(-w) + g.emf_v(w)).abs() < 1e-12);
+}
+
+#[test]
+fn pmdc_iron_loss_grows_as_steinmetz_with_speed() {
+    let sc = scenario(
+        "demo",
+        &[
+            "generator.hysteresis_loss_w_per_krpm=0.4",
+            "generator.eddy_loss_w_per_krpm2=0.15",
+        ],
+    );
+    let g = GeneratorModel::from_config(&sc.setup.generator);
+    for rpm in [300.0, 1000.0, 1750.0, 3000.0] {
+        let w = rpm_to_rad_s(rpm);
+        let p = g.iron_loss_torque_n_m(w) * w;
+        // Common practice: at fixed flux a core's hysteresis loss grows with frequency (the
+        // same loop every cycle) and its eddy-current loss with frequency squared (Steinmetz;
+        // the classical separation of iron losses): P = k_h·(n/1000) + k_e·(n/1000)².
+        let k = rpm / 1000.0;
+        let want = 0.4 * k + 0.15 * k * k;
+        assert!(
+            (p - want).abs() < 1e-9 * want,
+            "{rpm} rpm: {p} W vs {want} W"
+        );
+    }
+    // A drag: it opposes rotation both ways and never feeds power back.
+    let w = rpm_to_rad_s(1500.0);
+    assert!((g.iron_loss_torque_n_m(-w) + g.iron_loss_torque_n_m(w)).abs() < 1e-12);
+    assert_eq!(g.iron_loss_torque_n_m(0.0), 0.0);
+}
+
+#[test]
+fn pmdc_iron_loss_is_booked_in_the_ledger_as_the_trace_says() {
+    // The demo's own iron loss over two minutes of steady cranking: the ledger's term against
+    // the Steinmetz form integrated over the trace's generator speed (0.1-s trapezoids).
+    let gen = &setup_file("demo").generator;
+    let (kh, ke) = (gen.hysteresis_loss_w_per_krpm, gen.eddy_loss_w_per_krpm2);
+    assert!(kh > 0.0 && ke > 0.0, "the demo states its iron loss");
+    let s = &steady_sessions()
+        .iter()
+        .find(|(n, _)| n == "demo")
+        .expect("demo")
+        .1;
+    let rows = &s.result.trace.rows;
+    // Common practice: P = k_h·(n/1000 rpm) + k_e·(n/1000 rpm)² (Steinmetz, as above).
+    let p = |rpm: f64| {
+        let k = rpm.abs() / 1000.0;
+        kh * k + ke * k * k
+    };
+    let traced: f64 = rows
+        .windows(2)
+        .map(|w| {
+            0.5 * (p(w[0].generator_rpm) + p(w[1].generator_rpm)) * (w[1].time_s - w[0].time_s)
+        })
+        .sum();
+    let booked = s.result.ledger.iron_loss_j;
+    assert!(booked > 50.0, "iron loss {booked} J");
+    assert!(
+        (traced - booked).abs() < 0.01 * booked,
+        "ledger {booked} J vs trace {traced} J"
+    );
+}
+
+#[test]
+fn pmdc_magnets_weaken_with_temperature() {
+    let sc = scenario("demo", &["generator.back_emf_tempco_pct_per_k=-0.2"]);
+    let g = GeneratorModel::from_config(&sc.setup.generator);
+    let ke20 = setup_file("demo").generator.back_emf_v_per_krpm * 60.0 / (2.0 * PI * 1000.0);
+    // From memory: hard-ferrite magnets lose about 0.2 % of their remanence per kelvin near room
+    // temperature (magnet makers' data), and a PMDC machine's k_e with it: +50 K → −10 %.
+    assert!((g.ke_at(20.0) - ke20).abs() < 1e-12);
+    assert!((g.ke_at(70.0) / ke20 - 0.90).abs() < 1e-12);
+    assert!((g.ke_at(-10.0) / ke20 - 1.06).abs() < 1e-12);
 }
 
 #[test]

@@ -193,8 +193,8 @@ pub struct Ledger {
     pub device_loss_j: f64,
     /// Generator iron loss, J.
     pub iron_loss_j: f64,
-    /// Change of the generator's cogging potential energy, J (its torque does no work over a
-    /// period: it only stores and returns).
+    /// Work done against the generator's cogging torque, J: the change of its potential energy
+    /// (it does no work over a period: it only stores and returns).
     pub cogging_change_j: f64,
     /// Gate-drive and inductor-core loss of a switching charger, J.
     pub overhead_loss_j: f64,
@@ -243,7 +243,6 @@ fn step_energy_defect(plant: &Plant, ya: &State, yb: &State) -> (f64, f64) {
         .map(|k| (yb[k] - ya[k]).abs())
         .sum::<f64>()
         + across.kinetic_change_j.abs()
-        + across.cogging_change_j.abs()
         + across.field_change_j.abs()
         + across.rc_change_j.abs();
     (across.imbalance_j() - before.imbalance_j(), moved)
@@ -765,7 +764,7 @@ fn implicit_segment(
     enum Halt {
         Failed(SimError),
         /// Too many rejections in a row at this time and state.
-        Stalled(f64, State),
+        Stalled(f64, Box<State>),
     }
     use Halt::{Failed, Stalled};
     let mut solver = stiff::Segment::start(method, &rhs, seg.t, &seg.y, seg.t_stop, &limits)
@@ -794,13 +793,13 @@ fn implicit_segment(
             Ok(a) => a,
             // The crate's own guards (step-size underflow, singular matrices) also end in a
             // bridge: an explicit method may pass where Newton cannot.
-            Err(_) => break Err(Stalled(solver.t(), y_last)),
+            Err(_) => break Err(Stalled(solver.t(), Box::new(y_last))),
         };
         let Attempt::Accepted { t_prev, t } = attempt else {
             stats.rejected_steps += 1;
             rejected_in_a_row += 1;
             if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
-                break Err(Stalled(solver.t(), y_last));
+                break Err(Stalled(solver.t(), Box::new(y_last)));
             }
             continue;
         };
@@ -822,7 +821,7 @@ fn implicit_segment(
             stats.rejected_steps += 1;
             rejected_in_a_row += 1;
             if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
-                break Err(Stalled(t_prev, y_last));
+                break Err(Stalled(t_prev, Box::new(y_last)));
             }
             add_counts(stats, &solver.counts);
             let retry = Limits {
@@ -832,7 +831,7 @@ fn implicit_segment(
             };
             match stiff::Segment::start(method, &rhs, t_prev, &y_last, seg.t_stop, &retry) {
                 Ok(s) => solver = s,
-                Err(_) => break Err(Stalled(t_prev, y_last)),
+                Err(_) => break Err(Stalled(t_prev, Box::new(y_last))),
             }
             continue;
         }
@@ -864,6 +863,7 @@ fn implicit_segment(
         }),
         Err(Failed(e)) => Err(e),
         Err(Stalled(t, y)) => {
+            let y = *y;
             // Hand over to Dopri5 for a short stretch; the next segment is implicit again.
             let t_stop = (t + BRIDGE_S).min(seg.t_stop);
             if t_stop - t <= 1e-12 * t.abs().max(1.0) {

@@ -199,6 +199,8 @@ pub struct Point {
     pub friction_w: f64,
     /// Generator iron loss, W.
     pub iron_w: f64,
+    /// Power into the cogging potential (negative while it gives energy back), W.
+    pub cogging_w: f64,
     pub copper_w: f64,
     pub winding_ohm: f64,
     pub battery_powers: BatteryPowers,
@@ -605,6 +607,7 @@ impl Plant {
             drive_loss_w: drive_loss,
             friction_w: tau_fric * omega_g + bearing * omega_c,
             iron_w: tau_iron * omega_g,
+            cogging_w: tau_cog * omega_g,
             copper_w: net.generator_current_a * net.generator_current_a * r_w,
             winding_ohm: r_w,
             battery_powers: powers,
@@ -890,6 +893,7 @@ impl Plant {
         dy[E_IRON] = p.iron_w;
         dy[E_OVERHEAD] = losses.overhead_w;
         dy[E_PASS] = losses.pass_w;
+        dy[E_COGGING] = p.cogging_w;
     }
 
     /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.

@@ -3,7 +3,7 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 34;
+pub const N_STATES: usize = 35;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
@@ -71,6 +71,11 @@ pub const E_IRON: usize = 31;
 pub const E_OVERHEAD: usize = 32;
 /// Energy ledger: heat in a linear charger's pass element, J.
 pub const E_PASS: usize = 33;
+/// Work done against the generator's cogging torque, J: for an exact solution the change of the
+/// cogging potential (within ±2·T_c/n), which the ledger takes from the rotor angle itself. Kept
+/// as a quadrature so that Dopri5's step-size control resolves the cogging period (a step over
+/// several periods misses this integral by far more than the tolerance).
+pub const E_COGGING: usize = 34;
 
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
@@ -113,4 +118,5 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "e_iron_j",
     "e_overhead_j",
     "e_pass_j",
+    "e_cogging_j",
 ];

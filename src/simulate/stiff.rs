@@ -21,7 +21,7 @@ use super::state::*;
 
 /// Whether state `k` is an energy-ledger quadrature (read by nothing that feeds back).
 pub const fn is_ledger(k: usize) -> bool {
-    (k >= E_OPERATOR && k <= Q_BATTERY) || k == E_DEVICE || (k >= E_IRON && k <= E_PASS)
+    (k >= E_OPERATOR && k <= Q_BATTERY) || k == E_DEVICE || (k >= E_IRON && k <= E_COGGING)
 }
 
 const fn ledger_count() -> usize {
@@ -457,7 +457,7 @@ mod tests {
             .filter(|k| {
                 !(E_OPERATOR..=Q_BATTERY).contains(k)
                     && *k != E_DEVICE
-                    && !(E_IRON..=E_PASS).contains(k)
+                    && !(E_IRON..=E_COGGING).contains(k)
             })
             .map(|k| k as f64 + 0.5)
             .collect();
