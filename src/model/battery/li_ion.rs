@@ -10,7 +10,6 @@ use crate::units::c_to_k;
 /// SOC knots of the built-in OCV curves.
 const SOC_KNOTS: [f64; 12] = [0.0, 0.05, 0.1, 0.2, 0.3, 0.4, 0.5, 0.6, 0.7, 0.8, 0.9, 1.0];
 /// Typical NMC cell OCV, V (a generic curve of the usual shape, not a particular cell). SOC 1 is
-/// defined as full at the CV voltage, so the top knot equals the chemistry's CV voltage. SOC 1 is
 /// defined as full at the CV voltage, so the top knot equals the chemistry's CV voltage.
 const OCV_NMC: [f64; 12] = [
     3.00, 3.40, 3.50, 3.59, 3.64, 3.69, 3.74, 3.81, 3.90, 3.99, 4.09, 4.20,
@@ -158,12 +157,12 @@ impl LiIonModel {
     }
 }
 
-/// Charge-temperature band after the JEITA-style guideline.
 /// Rate of the Thevenin RC-branch voltage, dV_RC/dt = I/C1 − V_RC/(R1·C1), V/s (Plett 2015, ch. 2).
 pub fn rc_branch_rate(i: f64, v_rc_v: f64, r1_ohm: f64, c1_f: f64) -> f64 {
     i / c1_f - v_rc_v / (r1_ohm * c1_f)
 }
 
+/// Charge-temperature band after the JEITA-style guideline.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum TempBand {
     /// Below the minimum: no charge.
