@@ -1108,6 +1108,68 @@ fn negative_resistance_exits_2_naming_the_field_and_range() {
 }
 
 #[test]
+fn new_loss_and_operator_keys_are_checked_with_their_paths_and_ranges() {
+    // Each new key, set out of its range through --set, is refused with exit 2 naming its path,
+    // the value and the allowed range; nothing is written.
+    let cases: [(&str, &[&str], &str); 9] = [
+        ("generator.back_emf_tempco_pct_per_k=0.5", &[], "-1 ..= 0"),
+        ("generator.hysteresis_loss_w_per_krpm=-1", &[], "0 ..= 50"),
+        ("generator.eddy_loss_w_per_krpm2=51", &[], "0 ..= 50"),
+        ("generator.cogging_periods_per_rev=0", &[], "1 ..= 200"),
+        ("converter.core_loss_w=11", &[], "0 ..= 10"),
+        ("converter.gate_charge_c=1e-3", &[], "0 ..= 0.000001"),
+        (
+            "converter.buck_mode_max_duty=0.9",
+            &["demo-buck-boost"],
+            "max_duty − 0.01",
+        ),
+        (
+            "converter.pass_shutdown_c=100",
+            &["lfp-linear"],
+            "> 120",
+        ),
+        ("profile.jitter.ripple_peaks_per_rev=5", &[], "1 ..= 4"),
+    ];
+    let wd = WorkDir::new();
+    for (k, (set, setup, allowed)) in cases.iter().enumerate() {
+        let out = format!("x{k}");
+        let mut args: Vec<&str> = vec!["run"];
+        args.extend_from_slice(setup);
+        args.extend_from_slice(&["--no-plot", "--out", &out, "--set", set]);
+        let stderr = run_code(&wd, &args, 2);
+        let (path, value) = set.split_once('=').unwrap();
+        let path = path.trim_start_matches("profile.");
+        for needle in [path, value, allowed] {
+            assert!(
+                stderr.contains(needle),
+                "{set}: stderr should contain `{needle}`:\n{stderr}"
+            );
+        }
+        assert!(!wd.path(&out).exists(), "{set}: a refused run wrote {out}");
+    }
+    // In range, the same keys are taken.
+    run_ok(
+        &wd,
+        &[
+            "run",
+            "--duration",
+            "5",
+            "--no-plot",
+            "--out",
+            "ok",
+            "--set",
+            "generator.cogging_torque_n_m=0.01",
+            "--set",
+            "generator.cogging_periods_per_rev=6",
+            "--set",
+            "profile.jitter.ripple_peaks_per_rev=1",
+            "--set",
+            "converter.core_loss_w=0.2",
+        ],
+    );
+}
+
+#[test]
 fn negative_resistance_in_a_file_names_file_position_and_field() {
     let demo = std::fs::read_to_string(repo().join("profiles/setups/demo.ron")).unwrap();
     let (line_idx, line) = demo
