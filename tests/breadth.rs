@@ -247,9 +247,12 @@ fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
     );
     assert!(fb < 0.5, "the buck drops out at 0.8 × cadence: {fb}");
     // Below the battery the buck-boost still regulates; what it loses is its soft-start restarts
-    // when a ripple trough pulls the generator under its UVLO.
+    // when a ripple trough pulls the generator under its UVLO. (With realistic brush drop and
+    // iron loss the source's power limit at a 45-rpm trough, about 30 W, sits just above the 2-A
+    // charge's 27 W, so a trough folds it more often than it did: about 70 % in regulation here,
+    // held as more than 65 %.)
     assert!(
-        fbb > 0.7,
+        fbb > 0.65,
         "the buck-boost holds regulation most of the time: {fbb}"
     );
     assert!(fbb > fb + 0.25, "buck-boost {fbb} vs buck {fb}");
@@ -852,15 +855,26 @@ fn input_floor_keeps_a_slow_operator_out_of_lockout_cycling() {
         Fidelity::Fast,
     );
     let count = |s: &Session, k: EventKind| s.result.events.iter().filter(|e| e.kind == k).count();
-    let (lf, lt) = (
-        count(&free, EventKind::Lockout),
-        count(&floored, EventKind::Lockout),
-    );
+    // Each lock-out cycle ends in a soft-start restart. (Counted by its restarts: when the input
+    // collapses at the source's power limit, the fast fidelity's algebraic input node is back
+    // above UVLO the same instant the charger lets go, so a cycle's lock-out can last no time and
+    // leave no `lockout` row.)
+    let restarts = |s: &Session| {
+        s.result
+            .events
+            .iter()
+            .filter(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("restarting"))
+            .count()
+    };
+    let (lf, lt) = (restarts(&free), restarts(&floored));
     let (rf, rt) = (
         count(&free, EventKind::RegulationLoss),
         count(&floored, EventKind::RegulationLoss),
     );
-    assert!(lt < lf, "lock-outs {lt} with the floor vs {lf} without");
+    assert!(
+        10 * lt < lf,
+        "restarts {lt} with the floor vs {lf} without"
+    );
     assert!(
         10 * rt < rf,
         "regulation losses {rt} with the floor vs {rf} without"

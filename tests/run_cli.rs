@@ -506,12 +506,13 @@ fn trace_input_drop_is_a_diode_drop() {
             "row {k}: generator current {} A flows backwards",
             i_gen[k]
         );
-        if i_gen[k] < 0.1 {
+        if i_gen[k] < 1.0 {
             continue;
         }
         checked += 1;
         let r = r20 * (1.0 + COPPER_ALPHA_PER_K * (t_wind[k] - 20.0));
-        // The brushes take their drop first (constant above a few tens of mA).
+        // The brushes take their full drop at these currents (it levels off above a few tenths
+        // of an ampere).
         let drop = emf[k] - vin[k] - i_gen[k] * r - brush_v;
         // From memory: rectifier datasheets give Schottky 0.3–0.6 V and silicon at most 1.1 V
         // at about 1 A; 0–1.3 V leaves room for the series resistance at 2 A.

@@ -7,8 +7,12 @@ use crate::units::{rpm_to_rad_s, v_per_krpm_to_v_s_per_rad};
 /// Temperature coefficient of annealed copper at 20 °C, 1/K (Dellinger 1911).
 pub const COPPER_ALPHA_PER_K: f64 = 0.00393;
 
-/// Current scale below which the brush drop is smoothed to zero, A.
-const BRUSH_SMOOTH_A: f64 = 0.02;
+/// Current scale of the brush drop's rise, A: V_b·tanh(i/i_s). A carbon brush's contact drop grows
+/// about in proportion to the current at low current density and levels off towards its full
+/// value (from memory: brush makers' V–I curves flatten at a few A/cm²); 0.2 A is about a tenth
+/// of a small machine's full load. (A sharper knee, 20 mA, made the drop an 80-Ω slope at light
+/// load and cost the implicit solver thousands of Newton failures a session.)
+const BRUSH_SMOOTH_A: f64 = 0.2;
 /// Speed scale below which the hysteresis drag is smoothed to zero (as the drive's Coulomb
 /// friction), rad/s.
 const IRON_SMOOTH_RAD_S: f64 = 0.5;

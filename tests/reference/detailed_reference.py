@@ -58,7 +58,7 @@ MODEL_CONSTANTS = {
     # Copper temperature coefficient at 20 °C (Dellinger 1911; REFERENCES.md §4).
     "copper_alpha_per_k": (0.00393, "src/model/generator.rs", r"COPPER_ALPHA_PER_K: f64 = " + NUM),
     # Brush drop smoothing current V_b·tanh(i/i_s), A.
-    "brush_smooth_a": (0.02, "src/model/generator.rs", r"BRUSH_SMOOTH_A: f64 = " + NUM),
+    "brush_smooth_a": (0.2, "src/model/generator.rs", r"BRUSH_SMOOTH_A: f64 = " + NUM),
     # Hysteresis (iron-loss) drag smoothing τ_h·tanh(ω/ω_s), rad/s.
     "iron_smooth_rad_s": (0.5, "src/model/generator.rs", r"IRON_SMOOTH_RAD_S: f64 = " + NUM),
     # Temperature at which the back-EMF constant is given, °C.
