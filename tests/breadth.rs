@@ -871,10 +871,7 @@ fn input_floor_keeps_a_slow_operator_out_of_lockout_cycling() {
         count(&free, EventKind::RegulationLoss),
         count(&floored, EventKind::RegulationLoss),
     );
-    assert!(
-        10 * lt < lf,
-        "restarts {lt} with the floor vs {lf} without"
-    );
+    assert!(10 * lt < lf, "restarts {lt} with the floor vs {lf} without");
     assert!(
         10 * rt < rf,
         "regulation losses {rt} with the floor vs {rf} without"

@@ -1124,11 +1124,7 @@ fn new_loss_and_operator_keys_are_checked_with_their_paths_and_ranges() {
             &["demo-buck-boost"],
             "max_duty − 0.01",
         ),
-        (
-            "converter.pass_shutdown_c=100",
-            &["lfp-linear"],
-            "> 120",
-        ),
+        ("converter.pass_shutdown_c=100", &["lfp-linear"], "> 120"),
         ("profile.jitter.ripple_peaks_per_rev=5", &[], "1 ..= 4"),
     ];
     let wd = WorkDir::new();

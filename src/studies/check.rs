@@ -243,9 +243,31 @@ impl Statics<'_> {
         network::solve(&self.source(crank_rpm), load, &term)
     }
 
+    /// The charger asking for `target_a` at a cadence: a buck-boost as a buck where the buck duty
+    /// this needs stays within its buck-mode limit (as it runs there), else switching both.
+    fn charging(&self, crank_rpm: f64, target_a: f64, bs: &BatteryState) -> NetworkPoint {
+        let limit = self.plant.charger.buck_mode_max_duty;
+        if self.plant.charger.topology == Topology::BuckBoost && limit > 0.0 {
+            let as_buck = network::Converters {
+                topology: Topology::Buck,
+                buck: &self.plant.buck_boost_as_buck,
+                ..self.converters()
+            };
+            let p = self.solve(crank_rpm, self.with_floor(as_buck, target_a), bs);
+            if !p.dropout && p.balance_duty <= limit {
+                return p;
+            }
+        }
+        self.solve(crank_rpm, self.buck(target_a), bs)
+    }
+
     /// The charger asking for `target_a`, trimming it to hold its input floor when it has one.
     fn buck(&self, target_a: f64) -> Load<'_> {
-        let conv = self.converters();
+        self.with_floor(self.converters(), target_a)
+    }
+
+    /// `conv` asking for `target_a`, trimming it to hold the input floor when there is one.
+    fn with_floor<'a>(&self, conv: network::Converters<'a>, target_a: f64) -> Load<'a> {
         match self.plant.charger.input_floor_v {
             Some(floor_v) => Load::Floored {
                 conv,
@@ -265,7 +287,7 @@ impl Statics<'_> {
         if oc < c.uvlo_on_v || (c.overvoltage_shutdown && oc > c.input_overvoltage_v) {
             return false;
         }
-        let p = self.solve(crank_rpm, self.buck(target_a), bs);
+        let p = self.charging(crank_rpm, target_a, bs);
         !p.dropout && p.input_v >= c.uvlo_off_v && p.battery_current_a >= target_a * (1.0 - 1e-9)
     }
 
@@ -435,7 +457,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
                 let on =
                     oc >= c.uvlo_on_v && !(c.overvoltage_shutdown && oc > c.input_overvoltage_v);
                 let p = if on {
-                    st.solve(r, st.buck(start_target), &bs_start)
+                    st.charging(r, start_target, &bs_start)
                 } else {
                     st.solve(r, Load::Off, &bs_start)
                 };
