@@ -12,10 +12,11 @@ use crate::scenario::setup::Converter;
 /// converter switches only above its UVLO, well above it), V.
 pub const CORE_LOSS_MIN_V: f64 = 1.0;
 
-/// The fixed losses of a switching stage (Erickson & Maksimović ch. 4 and 15 budget them apart
-/// from the current-dependent ones): the gate driver, fed from the input through the
-/// controller's regulator, draws Q_g·f_sw for every switching transistor; the inductor core loses
-/// P_core while the stage switches, taken from the input as P_core/V_in.
+/// The fixed losses of a switching stage, which loss budgets keep apart from the current-dependent
+/// ones (common practice): the gate driver, fed from the input through the controller's
+/// regulator, draws Q_g·f_sw for every switching transistor; the inductor core loses P_core while
+/// the stage switches (held at its value at the design ripple), taken from the input as
+/// P_core/V_in.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
 pub struct Overhead {
     /// Gate-drive current from the input, A.

@@ -789,7 +789,6 @@ impl Plant {
         }
     }
 
-    /// What the charger asks for in mode `d` at battery temperature `temp_c`.
     /// A linear charger's thermal foldback: the fraction of its current limit its pass element's
     /// junction temperature allows (1 for the other topologies).
     pub fn foldback(&self, y: &State) -> f64 {
