@@ -7,13 +7,13 @@
 //! 1. Whole sessions through the engine (events located, trace sampled, ledger), steady profile.
 //! 2. The golden 3-s detailed scenario against the committed scipy Radau reference: worst trace
 //!    error in units of the golden test's tolerance, and the error of the located UVLO release.
-//! 4. Peak resident memory (VmHWM) and wall time of whole `run` processes (the real binary, fast
-//!    fidelity, no charts) of 8 hours and 7 days, with the machine they ran on.
-//! 3. One 10-s stretch of the detailed demo (16 feedback states, the converter charging, no mode
+//! 3. One 10-s stretch of the detailed demo (the feedback states, the converter charging, no mode
 //!    changes) from the same state with every candidate crate, so the crates meet identical
 //!    equations; the last column is the end state's deviation from a tight-tolerance Radau5 run
 //!    in units of the tolerance (≤ 1 is as asked).
-//! 4. The README's 3-axis `search` on the demo with 64 operators a point, the whole study (grid,
+//! 4. Peak resident memory (VmHWM) and wall time of whole `run` processes (the real binary, fast
+//!    fidelity, no charts) of 8 hours and 7 days, with the machine they ran on.
+//! 5. The README's 3-axis `search` on the demo with 64 operators a point, the whole study (grid,
 //!    refinement, files) as the command runs it; target: under 2 minutes on the 2-core machine.
 //!
 //! Integrator choice for the detailed fidelity: **Radau5 from `differential-equations`**. What
@@ -36,13 +36,13 @@
 //!   room to spare and the better accuracy; ivp's BDF is the first thing to try if the detailed
 //!   fidelity must get faster still.
 //! - `diffsol` (BDF/SDIRK on its own matrix stack) was not measured: a heavy dependency for a
-//!   16-state system that Radau5 already integrates at several hundred times real time.
+//!   18-state system that Radau5 already integrates at several hundred times real time.
 //! - The fast fidelity stays on Dopri5: Radau5 there stopped with a step-size underflow on the
 //!   demo at rtol 1e-6 where the algebraic network changes branch, and at the defaults took 5 to
 //!   13 times Dopri5's time.
 //!
 //! Two things the measurements taught: Radau5's linear algebra was ~80 % of its run time, so the
-//! ledger quadratures are kept out of the Newton system (16×16 instead of 29×29); and both
+//! ledger quadratures are kept out of the Newton system (18×18 instead of 35×35); and both
 //! Radau codes rescale a scalar tolerance once per component (a scalar ends near 1e-3 whatever was
 //! asked), so tolerances are passed per component.
 //!
@@ -201,7 +201,7 @@ const SEARCH_EXAMPLE: [&str; 18] = [
     "64",
 ];
 
-/// Table 4: the README's 3-axis search on the demo (40 grid points and the refinement, 64
+/// Table 5: the README's 3-axis search on the demo (40 grid points and the refinement, 64
 /// operators a point, 10-minute sessions), the whole study as `crankcharge search` runs it:
 /// wall time, sessions and sessions per second on every core.
 fn search_study(quick: bool) {
@@ -296,7 +296,16 @@ fn accuracy() {
         .map(|rec| rec.expect("row").iter().map(String::from).collect())
         .collect();
     let col = |name: &str| header.iter().position(|h| h == name).expect("column");
-    let uvlo_ref = 1.172_506_283; // tests/reference/demo_detailed_3s_events.csv, `enable`
+    // The reference's first UVLO release (tests/reference/demo_detailed_3s_events.csv, `enable`).
+    let uvlo_ref = csv::ReaderBuilder::new()
+        .comment(Some(b'#'))
+        .from_path(root.join("tests/reference/demo_detailed_3s_events.csv"))
+        .expect("reference events")
+        .records()
+        .map(|rec| rec.expect("row"))
+        .find(|rec| &rec[0] == "enable")
+        .map(|rec| rec[1].parse::<f64>().expect("enable time"))
+        .expect("an `enable` row");
     println!();
     println!("Golden 3-s detailed scenario against the scipy Radau reference (tests/reference/)");
     println!(
@@ -493,6 +502,7 @@ fn stretch(quick: bool) {
         resting: false,
         engaged: true,
         soft_done: true,
+        buck_mode: false,
         disabled_at_s: f64::NEG_INFINITY,
         device_on: false,
         device_off_at_s: f64::NEG_INFINITY,
@@ -512,7 +522,7 @@ fn stretch(quick: bool) {
 
     println!();
     println!(
-        "One {:.0}-s stretch of the detailed demo from t = {t0} s, 16 states, no mode changes \
+        "One {:.0}-s stretch of the detailed demo from t = {t0} s, {N_DYN} states, no mode changes \
          (rtol {RTOL:e}, atol {ATOL:e}, largest step {H_MAX} s)",
         t1 - t0
     );
@@ -626,7 +636,7 @@ type Small = ode_solvers::SVector<f64, N_DYN>;
 
 impl ode_solvers::System<f64, Small> for Explicit<'_> {
     fn system(&self, t: f64, y: &Small, dy: &mut Small) {
-        let f: Flat = y.as_slice().try_into().expect("16 states");
+        let f: Flat = y.as_slice().try_into().expect("the feedback states");
         dy.copy_from_slice(&self.0.rates(t, &f));
     }
 }
@@ -661,7 +671,7 @@ fn dopri5(rhs: &StiffRhs, t0: f64, t1: f64, y0: &Flat) -> Result<Outcome, String
         evals: 0,
         jacobians: 0,
         lus: 0,
-        end: last.as_slice().try_into().expect("16 states"),
+        end: last.as_slice().try_into().expect("the feedback states"),
     })
 }
 
@@ -670,7 +680,7 @@ struct ForIvp<'a>(&'a StiffRhs<'a>);
 
 impl ivp::ivp::FirstOrderSystem for ForIvp<'_> {
     fn derivative(&self, t: f64, y: &[f64], dydx: &mut [f64]) {
-        let f: Flat = y.try_into().expect("16 states");
+        let f: Flat = y.try_into().expect("the feedback states");
         dydx.copy_from_slice(&self.0.rates(t, &f));
     }
 }

@@ -99,7 +99,7 @@ fn runs_shorter_than_the_dwell_are_dropped_and_close_rows_are_joined() {
     // of the crank. With no dwell and no merge gap each crossing is a row; the default timing
     // keeps only those held for the dwell, joined across the merge gap.
     let base = [
-        ("alerts.overcharge.tolerance_v_per_cell", "0.04"),
+        ("alerts.overcharge.tolerance_v_per_cell", "0.01"),
         ("alerts.overcharge.hysteresis_v_per_cell", "0"),
     ];
     let raw_sets: Vec<(&str, &str)> = base.iter().chain(&RAW_OVERCHARGE).copied().collect();

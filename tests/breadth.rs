@@ -7,12 +7,18 @@ use std::path::{Path, PathBuf};
 use crankcharge::analysis::events::EventKind;
 use crankcharge::analysis::summary::Verdict;
 use crankcharge::analysis::trace::Mode;
-use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel};
+use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel, Overhead};
+use crankcharge::model::jitter::JitterTrack;
+use crankcharge::model::network::{self, Source};
 use crankcharge::scenario::demo::SETUPS;
 use crankcharge::scenario::load::{InputKind, Override};
 use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::simulate::engine::{initial_discrete, initial_state};
+use crankcharge::simulate::plant::Plant;
+use crankcharge::simulate::state::{CRANK_SPEED, E_COGGING, GEN_SPEED, OP_INTEGRATOR, ROTOR_ANGLE};
 use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::{run_session, RunSettings, Session};
+use crankcharge::units::rpm_to_rad_s;
 
 use crate::common::{read_csv, repo, run_code, run_ok, WorkDir, RUN_FILES};
 
@@ -74,6 +80,7 @@ fn ideal_buck_boost(inductance_h: f64, switching_frequency_hz: f64) -> BuckBoost
         switching_frequency_hz,
         switch_transition_s: 0.0,
         quiescent_current_a: 0.0,
+        overhead: Overhead::default(),
     }
 }
 
@@ -240,9 +247,12 @@ fn buck_boost_twin_holds_regulation_where_the_buck_drops_out() {
     );
     assert!(fb < 0.5, "the buck drops out at 0.8 × cadence: {fb}");
     // Below the battery the buck-boost still regulates; what it loses is its soft-start restarts
-    // when a ripple trough pulls the generator under its UVLO.
+    // when a ripple trough pulls the generator under its UVLO. (With realistic brush drop and
+    // iron loss the source's power limit at a 45-rpm trough, about 30 W, sits just above the 2-A
+    // charge's 27 W, so a trough folds it more often than it did: about 70 % in regulation here,
+    // held as more than 65 %.)
     assert!(
-        fbb > 0.7,
+        fbb > 0.65,
         "the buck-boost holds regulation most of the time: {fbb}"
     );
     assert!(fbb > fb + 0.25, "buck-boost {fbb} vs buck {fb}");
@@ -280,9 +290,13 @@ fn a_converter_that_keeps_restarting_is_not_counted_in_regulation() {
     // Common practice: a charger in its soft-start ramp is not yet holding its set current or
     // voltage; one that keeps locking out and restarting (hiccup) delivers only ramps, and a
     // regulation figure must not call that regulated.
+    // Without its input floor the shipped buck-boost hiccups at 0.7 of the cadence.
     let sc = load(
         &setup_path("demo-buck-boost"),
-        &[("profile.cadence_scale", "0.7")],
+        &[
+            ("profile.cadence_scale", "0.7"),
+            ("converter.input_floor_v", "None"),
+        ],
     );
     let s = run(&sc, Some(120.0), Fidelity::Fast);
     // Each lock-out is over within the same instant here (the input recovers at once with the
@@ -363,7 +377,7 @@ fn buck_boost_ccm_ratio_is_d_over_one_minus_d() {
     };
     let d = lossy.ccm_duty(12.0, 12.0, 1.0);
     assert!(d > 0.5 && d < 0.6, "lossy duty {d}");
-    let p_in = 12.0 * lossy.input_current_a(d, 1.0);
+    let p_in = 12.0 * lossy.input_current_a(d, 1.0, 12.0);
     let p_out = 12.0 * 1.0;
     let loss = lossy.losses(d, 1.0, 12.0).total_w();
     assert!((p_in - p_out - loss).abs() < 1e-9 * p_in);
@@ -473,6 +487,334 @@ fn linear_charger_efficiency_is_about_vo_over_vin_and_it_drops_out_below_the_hea
     );
 }
 
+#[test]
+fn linear_pass_element_settles_at_ambient_plus_power_times_theta() {
+    // A smooth operator and a small heat capacity (θ·C = 1.6 s) so the junction follows the
+    // slowly changing dissipation; θ, C and ambient are set here.
+    let (theta, ambient) = (8.0, 20.0);
+    let sc = load(
+        &setup_path("lfp-linear"),
+        &[
+            ("converter.pass_theta_ja_k_per_w", "8"),
+            ("converter.pass_heat_capacity_j_per_k", "0.2"),
+            ("ambient_c", "20"),
+            ("profile.jitter.enabled", "false"),
+        ],
+    );
+    let s = run(&sc, Some(60.0), Fidelity::Fast);
+    let mut checked = 0;
+    for r in s.result.trace.rows.iter().filter(|r| r.time_s >= 30.0) {
+        let p = (r.input_v - r.battery_v) * r.battery_current_a;
+        // Source: the lumped thermal model, ΔT_ss = P·R_th (Incropera & DeWitt; Çengel, Heat
+        // Transfer; REFERENCES §9) with R_th = θ_ja.
+        let want = ambient + p * theta;
+        assert!(
+            (r.junction_temp_c - want).abs() <= 0.02 * (want - ambient) + 1e-6,
+            "t = {}: junction {} °C vs {want} °C at {p} W",
+            r.time_s,
+            r.junction_temp_c
+        );
+        checked += 1;
+    }
+    assert!(checked > 200, "only {checked} rows");
+    // The pass element really dissipates: the check is not made on a cold junction.
+    let hottest = s
+        .result
+        .trace
+        .rows
+        .iter()
+        .map(|r| r.junction_temp_c)
+        .fold(f64::MIN, f64::max);
+    assert!(
+        hottest > ambient + 10.0,
+        "junction only reached {hottest} °C"
+    );
+    // Its heat is a ledger term of its own, and the ledger closes with it.
+    assert!(s.result.ledger.pass_heat_j > 100.0);
+    assert!(s.summary.energy_balance_error < 1e-3);
+}
+
+#[test]
+fn linear_charger_folds_back_without_a_heatsink_and_says_so() {
+    // The pass element in free air (62.5 K/W, 1 J/K) against the shipped heatsink; foldback
+    // from 120 °C to zero at 150 °C, set here.
+    let common = [
+        ("converter.pass_foldback_c", "120"),
+        ("converter.pass_shutdown_c", "150"),
+    ];
+    let with = |theta: &'static str, cap: &'static str| {
+        let mut sets = vec![
+            ("converter.pass_theta_ja_k_per_w", theta),
+            ("converter.pass_heat_capacity_j_per_k", cap),
+        ];
+        sets.extend(common);
+        run(
+            &load(&setup_path("lfp-linear"), &sets),
+            Some(300.0),
+            Fidelity::Fast,
+        )
+    };
+    let bare = with("62.5", "1");
+    let sink = with("8", "40");
+    let i_cc = load(&setup_path("lfp-linear"), &[])
+        .setup
+        .converter
+        .charge_current_a;
+    // Informational rows (they do not decide the verdict): the summary's episodes.
+    let folds = |s: &Session| {
+        s.summary
+            .events()
+            .iter()
+            .filter(|e| e.kind == EventKind::ThermalFoldback)
+            .count()
+    };
+    assert!(folds(&bare) > 0, "no thermal_foldback alert in free air");
+    assert_eq!(
+        folds(&sink),
+        0,
+        "the heatsinked pass element should not fold back"
+    );
+    let mut cut = 0;
+    for r in &bare.result.trace.rows {
+        // The current limit follows the foldback line: full at 120 °C, none at 150 °C.
+        let allowed = i_cc * ((150.0 - r.junction_temp_c) / 30.0).clamp(0.0, 1.0);
+        assert!(
+            r.battery_current_a <= allowed + 1e-6,
+            "t = {}: {} A at a {} °C junction (allowed {allowed} A)",
+            r.time_s,
+            r.battery_current_a,
+            r.junction_temp_c
+        );
+        assert!(r.junction_temp_c < 150.0, "junction reached the cut-off");
+        cut += usize::from(r.junction_temp_c > 125.0);
+    }
+    assert!(
+        cut > 100,
+        "the foldback hardly acted ({cut} rows above 125 °C)"
+    );
+    assert!(
+        bare.summary.charge_delivered_ah < 0.9 * sink.summary.charge_delivered_ah,
+        "folding back should cost charge: {} vs {} Ah",
+        bare.summary.charge_delivered_ah,
+        sink.summary.charge_delivered_ah
+    );
+    // `check` warns of it from the static figures.
+    let wd = WorkDir::new();
+    let out = run_ok(
+        &wd,
+        &[
+            "check",
+            "lfp-linear",
+            "--set",
+            "converter.pass_theta_ja_k_per_w=62.5",
+        ],
+    );
+    assert!(out.contains("foldback"), "{out}");
+    let out = run_ok(&wd, &["check", "lfp-linear"]);
+    assert!(!out.contains("foldback"), "{out}");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Generator cogging, buck-boost buck mode, gate drive and core loss
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn cogging_is_conservative_and_the_ledger_closes_with_it() {
+    // T_c = 0.02 N·m, n = 10 periods a turn, set here.
+    let (tc, n) = (0.02, 10.0);
+    let cog = [
+        ("generator.cogging_torque_n_m", "0.02"),
+        ("generator.cogging_periods_per_rev", "10"),
+    ];
+    let sc = load(&setup_path("demo"), &cog);
+    // It acts: a quarter period either side of a potential minimum the rotor feels ∓T_c, and
+    // through the rigid belt (forward power flow) the shaft's acceleration changes by
+    // N·(N/η)·2·T_c/(J_c + N²·J_s/η).
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let mut y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    let t = 100.0;
+    let wc = rpm_to_rad_s(plant.planned_rpm(t).0);
+    y[CRANK_SPEED] = wc;
+    y[GEN_SPEED] = wc * plant.drive.ratio;
+    y[OP_INTEGRATOR] = 8.0;
+    let d = initial_discrete(&plant, &y);
+    let accel = |angle: f64| {
+        let mut y = y;
+        y[ROTOR_ANGLE] = angle;
+        plant.eval(t, &y, &d).gen_accel
+    };
+    let quarter = std::f64::consts::FRAC_PI_2 / n;
+    let (nn, eta) = (plant.drive.ratio, plant.drive.efficiency);
+    let (jc, js) = (
+        plant.drive.crank_inertia_kg_m2,
+        plant.drive.shaft_inertia_kg_m2,
+    );
+    // Common practice: a torque ∓T_c on the rotor of a rigidly belted drive (Newton's second law
+    // about the crank, the belt's efficiency on the forward power).
+    let want = nn * (nn / eta) * 2.0 * tc / (jc + nn * nn * js / eta);
+    let got = accel(-quarter) - accel(quarter);
+    assert!(
+        (got - want).abs() < 1e-6 * want,
+        "Δ acceleration {got} rad/s² vs {want} rad/s²"
+    );
+
+    let fast = run(&sc, Some(20.0), Fidelity::Fast);
+    let detailed = run(&sc, Some(20.0), Fidelity::Detailed);
+    let plain = run(&load(&setup_path("demo"), &[]), Some(20.0), Fidelity::Fast);
+    for s in [&fast, &detailed] {
+        let l = &s.result.ledger;
+        // Common practice: a conservative torque, −dU/dθ, does no net work; what the rotor did
+        // against it is the change of U = (T_c/n)·(1 − cos(n·θ)), never more than 2·T_c/n.
+        assert!(
+            l.cogging_change_j.abs() <= 2.0 * tc / n + 1e-12,
+            "{}: {} J in the cogging potential",
+            s.summary.fidelity,
+            l.cogging_change_j
+        );
+        assert!(
+            s.summary.energy_balance_error < 1e-3,
+            "{}: ledger closes to {}",
+            s.summary.fidelity,
+            s.summary.energy_balance_error
+        );
+    }
+    // The work against cogging integrated along the fast run is that change too, to within the
+    // tolerance (1e-4) of the energy cycled through the potential: 2·(2·T_c/n) a period, n·θ/2π
+    // periods.
+    let work = fast.result.final_state[E_COGGING];
+    let periods = n * fast.result.final_state[ROTOR_ANGLE] / (2.0 * std::f64::consts::PI);
+    assert!(periods > 1000.0, "only {periods} cogging periods");
+    let cycled = periods * 4.0 * tc / n;
+    assert!(
+        (work - fast.result.ledger.cogging_change_j).abs() < 1e-4 * cycled,
+        "work {work} J vs potential change {} J ({cycled} J cycled)",
+        fast.result.ledger.cogging_change_j
+    );
+    // Zero on average, it leaves the charge as it was, in both fidelities.
+    let q0 = plain.summary.charge_delivered_ah;
+    for s in [&fast, &detailed] {
+        let q = s.summary.charge_delivered_ah;
+        assert!(
+            (q - q0).abs() < 0.005 * q0,
+            "{}: {q} Ah with cogging vs {q0} Ah without",
+            s.summary.fidelity
+        );
+    }
+}
+
+#[test]
+fn buck_boost_runs_as_a_buck_above_the_battery_and_saves_losses() {
+    let sc = load(&setup_path("demo-buck-boost"), &[]);
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let c = &sc.setup.converter;
+    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    let term = plant.battery.terminal(&Plant::battery_state(&y));
+    let src = Source {
+        generator: &plant.generator,
+        diode: &plant.diode,
+        emf_v: 24.0,
+        resistance_ohm: plant.generator.resistance_ohm(20.0),
+    };
+    let mut d = initial_discrete(&plant, &y);
+    d.buck_mode = false;
+    let both = network::solve(&src, plant.converters(&d).charging(2.0), &term);
+    d.buck_mode = true;
+    let buck = network::solve(&src, plant.converters(&d).charging(2.0), &term);
+    for p in [&both, &buck] {
+        assert!((p.battery_current_a - 2.0).abs() < 1e-9 && !p.dropout);
+    }
+    // Source: Erickson & Maksimović, Fundamentals of Power Electronics, 2nd ed., ch. 2–3 —
+    // inductor volt-second balance of a buck with switch, freewheel-diode and DCR drops; in buck
+    // mode the output diode conducts all the time, one more V_D in series with V_o:
+    // d·(V_in − V_sw − I·R_on + V_D) = V_o + 2·V_D + I·R_L.
+    let i = buck.battery_current_a;
+    let want = (buck.battery_v + 2.0 * c.catch_diode_drop_v + i * c.inductor_resistance_ohm)
+        / (buck.input_v - c.switch_drop_v - i * c.switch_resistance_ohm + c.catch_diode_drop_v);
+    assert!(
+        (buck.balance_duty - want).abs() < 1e-9,
+        "buck-mode duty {} vs {want}",
+        buck.balance_duty
+    );
+    // The inductor carries I instead of I/(1 − d) and one switch switches: less input for the
+    // same charge current.
+    let p_in = |p: &crankcharge::model::network::NetworkPoint| p.input_v * p.generator_current_a;
+    assert!(
+        p_in(&buck) < p_in(&both) - 0.5,
+        "input power {} W in buck mode vs {} W switching both",
+        p_in(&buck),
+        p_in(&both)
+    );
+
+    // Over a session the buck mode's savings show in the efficiency; the charger still holds its
+    // current (regulation as good or better), and the ledger closes in both fidelities.
+    let with = run(&sc, Some(120.0), Fidelity::Fast);
+    let without = run(
+        &load(
+            &setup_path("demo-buck-boost"),
+            &[("converter.buck_mode_max_duty", "0")],
+        ),
+        Some(120.0),
+        Fidelity::Fast,
+    );
+    assert!(
+        with.summary.efficiency_crank_to_battery
+            > without.summary.efficiency_crank_to_battery + 0.01,
+        "efficiency {} with buck mode vs {} without",
+        with.summary.efficiency_crank_to_battery,
+        without.summary.efficiency_crank_to_battery
+    );
+    assert!(
+        with.summary.in_regulation_fraction.unwrap()
+            >= without.summary.in_regulation_fraction.unwrap() - 0.01
+    );
+    let detailed = run(&sc, Some(20.0), Fidelity::Detailed);
+    let fast20 = run(&sc, Some(20.0), Fidelity::Fast);
+    for s in [&with, &detailed] {
+        assert!(s.summary.energy_balance_error < 1e-3);
+    }
+    let (qf, qd) = (
+        fast20.summary.charge_delivered_ah,
+        detailed.summary.charge_delivered_ah,
+    );
+    assert!(
+        (qf - qd).abs() < 0.005 * qf,
+        "fast {qf} Ah vs detailed {qd} Ah"
+    );
+}
+
+#[test]
+fn switching_overhead_is_the_core_loss_while_switching_and_the_gate_drive() {
+    // The demo's buck has a bipolar switch (no gate charge) and a core loss; give it a gate
+    // charge too, Q_g = 20 nC at its f_sw (read from the file).
+    let sc = load(&setup_path("demo"), &[("converter.gate_charge_c", "20e-9")]);
+    let c = &sc.setup.converter;
+    assert!(c.core_loss_w > 0.0, "the demo states its core loss");
+    let s = run(&sc, Some(120.0), Fidelity::Fast);
+    // Common practice: a gate driver fed from the input draws Q_g·f_sw (the charge of each gate,
+    // every cycle), so it dissipates V_in·Q_g·f_sw; the core loses its fixed loss while the
+    // stage switches. Summed over the trace's switching samples (0.1-s trapezoids).
+    let gate_a = 20e-9 * c.switching_frequency_hz;
+    let p = |r: &crankcharge::analysis::trace::TraceRow| {
+        if r.mode == Mode::Lockout {
+            0.0
+        } else {
+            c.core_loss_w + r.input_v * gate_a
+        }
+    };
+    let rows = &s.result.trace.rows;
+    let traced: f64 = rows
+        .windows(2)
+        .map(|w| 0.5 * (p(&w[0]) + p(&w[1])) * (w[1].time_s - w[0].time_s))
+        .sum();
+    let booked = s.result.ledger.overhead_loss_j;
+    assert!(booked > 5.0, "overhead {booked} J");
+    assert!(
+        (traced - booked).abs() < 0.02 * booked,
+        "ledger {booked} J vs trace {traced} J"
+    );
+    assert!(s.summary.energy_balance_error < 1e-3);
+}
+
 // ---------------------------------------------------------------------------------------------
 // Lead-acid behind a buck
 // ---------------------------------------------------------------------------------------------
@@ -520,8 +862,13 @@ fn lead_acid_buck_goes_through_absorption_to_float() {
 #[test]
 fn input_floor_keeps_a_slow_operator_out_of_lockout_cycling() {
     let slow = ("profile.cadence_scale", "0.6");
+    // The shipped buck-boost holds a 9.5-V floor; the free-running charger is the same design
+    // without it.
     let free = run(
-        &load(&setup_path("demo-buck-boost"), &[slow]),
+        &load(
+            &setup_path("demo-buck-boost"),
+            &[slow, ("converter.input_floor_v", "None")],
+        ),
         None,
         Fidelity::Fast,
     );
@@ -534,15 +881,23 @@ fn input_floor_keeps_a_slow_operator_out_of_lockout_cycling() {
         Fidelity::Fast,
     );
     let count = |s: &Session, k: EventKind| s.result.runs.iter().filter(|e| e.kind == k).count();
-    let (lf, lt) = (
-        count(&free, EventKind::Lockout),
-        count(&floored, EventKind::Lockout),
-    );
+    // Each lock-out cycle ends in a soft-start restart. (Counted by its restarts: when the input
+    // collapses at the source's power limit, the fast fidelity's algebraic input node is back
+    // above UVLO the same instant the charger lets go, so a cycle's lock-out can last no time and
+    // leave no `lockout` row.)
+    let restarts = |s: &Session| {
+        s.result
+            .runs
+            .iter()
+            .filter(|e| e.kind == EventKind::RegulationLoss && e.detail.contains("restarting"))
+            .count()
+    };
+    let (lf, lt) = (restarts(&free), restarts(&floored));
     let (rf, rt) = (
         count(&free, EventKind::RegulationLoss),
         count(&floored, EventKind::RegulationLoss),
     );
-    assert!(lt < lf, "lock-outs {lt} with the floor vs {lf} without");
+    assert!(10 * lt < lf, "restarts {lt} with the floor vs {lf} without");
     assert!(
         10 * rt < rf,
         "regulation losses {rt} with the floor vs {rf} without"

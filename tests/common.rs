@@ -143,10 +143,12 @@ pub fn ideal_buck(
         switch_drop_v: 0.0,
         switch_resistance_ohm: 0.0,
         catch_drop_v: 0.0,
+        output_diode_v: 0.0,
         inductor_resistance_ohm: 0.0,
         inductance_h,
         switching_frequency_hz,
         switch_transition_s: 0.0,
         quiescent_current_a: 0.0,
+        overhead: crankcharge::model::converter::Overhead::default(),
     }
 }

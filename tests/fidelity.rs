@@ -13,7 +13,7 @@ use crankcharge::analysis::events::{Event, EventKind};
 use crankcharge::analysis::trace::TraceRow;
 use crankcharge::model::battery::{BatteryModel, BatteryState, Terminal};
 use crankcharge::model::circuit::{self, CircuitConstants, Drive, FastRates, FastStates};
-use crankcharge::model::converter::BuckModel;
+use crankcharge::model::converter::{BuckModel, Overhead};
 use crankcharge::model::diode::DiodeModel;
 use crankcharge::model::drive::DriveModel;
 use crankcharge::model::generator::GeneratorModel;
@@ -156,6 +156,11 @@ fn generator(resistance_ohm: f64, inductance_h: f64) -> GeneratorModel {
         inductance_h,
         inertia_kg_m2: 6e-5,
         brush_drop_v: 0.0,
+        hysteresis_loss_w_per_krpm: 0.0,
+        eddy_loss_w_per_krpm2: 0.0,
+        ke_tempco_per_k: 0.0,
+        cogging_torque_n_m: 0.0,
+        cogging_periods: 1.0,
         winding_heat_capacity_j_per_k: 60.0,
         winding_to_ambient_w_per_k: 0.8,
     }
@@ -244,7 +249,7 @@ const GOLDEN_EVENTS: &str = "tests/reference/demo_detailed_3s_events.csv";
 /// they stay far below any modelling difference worth
 /// finding (a sample taken 50 ms stale is 1.7 rpm off; in the reference, +0.1 % on k_e moves the
 /// input node 45 mV, +10 % on the switch R_on 21 mV, +10 % on C_in or the buck's L 6 mV and 4 mV).
-/// The grid does not see the loop gains or C_o here: the duty sits at D_max until 2.33 s and the
+/// The grid does not see the loop gains or C_o here: the duty sits at D_max until 2.58 s and the
 /// loops then settle within a millisecond.
 /// Per column:
 /// - speeds: 1e-3 rpm at the crank, ×25 (the belt ratio) at the generator;
@@ -362,18 +367,32 @@ fn detailed_trace_matches_the_independent_radau_reference() {
         eprintln!("golden {name:>20}: worst |error| {err:.2e} at {t:.1} s (tolerance {tol:e})");
     }
 
-    // Switching times: UVLO release, and the duty command meeting and leaving D_max.
+    // Switching times: UVLO releases and sleeps, and the duty command meeting and leaving D_max.
     let (eh, ev) = read_fixture(GOLDEN_EVENTS);
-    let at = |kind: &str| {
+    let all = |kind: &str| -> Vec<f64> {
         ev.iter()
-            .find(|r| r[eh.iter().position(|h| h == "kind").unwrap()] == kind)
+            .filter(|r| r[eh.iter().position(|h| h == "kind").unwrap()] == kind)
             .map(|r| num(&r[eh.iter().position(|h| h == "time_s").unwrap()]))
-            .unwrap_or_else(|| panic!("{GOLDEN_EVENTS}: no {kind}"))
+            .collect()
     };
+    let (enables, disables) = (all("enable"), all("disable"));
+    let (drop_starts, drop_ends) = (all("dropout_start"), all("dropout_end"));
+    assert!(
+        !enables.is_empty() && drop_ends.len() == 1,
+        "{GOLDEN_EVENTS}"
+    );
+    // Locked out from the start until the first release; each later lock-out (the input sagging
+    // below the battery plus the switch drop as the charger starts drawing) from a reference
+    // `disable` to the next `enable`.
     let lockout = periods(&session.result.runs, EventKind::Lockout);
-    assert_eq!(lockout.len(), 1, "lockout periods: {lockout:?}");
-    // Regulation is lost from the start: locked out, then the soft-start ramp, then the duty at
-    // its limit until the crank is up to speed; one period per reason, back to back.
+    assert_eq!(
+        lockout.len(),
+        enables.len(),
+        "lockout periods: {lockout:?}, reference releases {enables:?}"
+    );
+    assert_eq!(disables.len(), enables.len() - 1, "{GOLDEN_EVENTS}");
+    // Regulation is lost from the start: locked out, the soft-start ramp, the duty at its limit
+    // (and locked out again, and so on) until the crank is up to speed; back to back.
     let mut loss: Vec<&Event> = session
         .result
         .runs
@@ -382,20 +401,29 @@ fn detailed_trace_matches_the_independent_radau_reference() {
         .collect();
     loss.sort_by(|a, b| a.start_s.total_cmp(&b.start_s));
     let reasons: Vec<&str> = loss.iter().map(|e| e.detail.as_str()).collect();
-    assert_eq!(loss.len(), 3, "regulation-loss periods: {reasons:?}");
     assert!(reasons[0].contains("locked out"), "{reasons:?}");
-    assert!(reasons[1].contains("soft-start"), "{reasons:?}");
-    assert!(reasons[2].contains("duty at its limit"), "{reasons:?}");
     assert_eq!(loss[0].start_s, 0.0);
     for w in loss.windows(2) {
         assert!((w[1].start_s - w[0].end_s).abs() < 1e-9, "{reasons:?}");
     }
-    let dropout = loss[2];
-    let pairs = [
-        ("UVLO release (end of lockout)", lockout[0].1, at("enable")),
-        ("dropout start", dropout.start_s, at("dropout_start")),
-        ("dropout end", dropout.end_s, at("dropout_end")),
-    ];
+    let dropouts: Vec<&&Event> = loss
+        .iter()
+        .filter(|e| e.detail.contains("duty at its limit"))
+        .collect();
+    assert_eq!(dropouts.len(), drop_starts.len(), "{reasons:?}");
+    let last = loss.last().expect("periods");
+    assert!(last.detail.contains("duty at its limit"), "{reasons:?}");
+    let mut pairs: Vec<(String, f64, f64)> = Vec::new();
+    for (k, (start, end)) in lockout.iter().enumerate() {
+        pairs.push((format!("UVLO release {k}"), *end, enables[k]));
+        if k > 0 {
+            pairs.push((format!("sleep {k}"), *start, disables[k - 1]));
+        }
+    }
+    for (k, d) in dropouts.iter().enumerate() {
+        pairs.push((format!("dropout start {k}"), d.start_s, drop_starts[k]));
+    }
+    pairs.push(("dropout end".into(), last.end_s, drop_ends[0]));
     for (what, got, want) in pairs {
         eprintln!(
             "golden {what:>30}: {got:.6} s vs {want:.6} s (|error| {:.1e})",
@@ -784,11 +812,13 @@ fn buck_averaged_steady_state_in_ccm_is_duty_minus_the_drops() {
         switch_drop_v: 0.3,
         switch_resistance_ohm: 0.05,
         catch_drop_v: 0.45,
+        output_diode_v: 0.0,
         inductor_resistance_ohm: 0.06,
         inductance_h: 47e-6,
         switching_frequency_hz: 150e3,
         switch_transition_s: 0.0,
         quiescent_current_a: 0.0,
+        overhead: Overhead::default(),
     };
     let term = Terminal::Linear {
         rest_v: 8.0,
@@ -1097,8 +1127,11 @@ fn the_energy_ledger_stays_closed_through_lead_acid_lockouts() {
         "energy_balance_error {}",
         s.summary.energy_balance_error
     );
-    // No stall needed the explicit bridge, and (almost) no step had to be retaken for energy.
-    assert_eq!(st.explicit_bridges, 0, "{st:?}");
+    // Stalls that need the explicit bridge are rare (a handful of 5-ms Dopri5 stretches in three
+    // minutes: since realistic brush drop and iron loss joined the model, the implicit solver
+    // stalls a few times at the lock-outs; each bridge keeps the ledger closed, as checked
+    // above), and (almost) no step had to be retaken for energy.
+    assert!(st.explicit_bridges <= 3, "{st:?}");
     assert!(st.energy_retries <= 5, "{st:?}");
 }
 

@@ -114,6 +114,10 @@ struct StageFile {
 #[derive(Debug, Deserialize)]
 struct GeneratorFile {
     back_emf_v_per_krpm: f64,
+    #[serde(default)]
+    hysteresis_loss_w_per_krpm: f64,
+    #[serde(default)]
+    eddy_loss_w_per_krpm2: f64,
 }
 
 #[derive(Debug, Deserialize)]
@@ -687,11 +691,17 @@ fn check_json_is_valid_and_its_figures_follow_the_files() {
         .expect("demo sets input_overvoltage_v");
     let want = v_ov / (k_v_per_rpm * n);
     assert!((num(&v, "converter.input_limit_cadence_rpm") - want).abs() < 1e-9 * want);
-    // Crank power = (E·I + friction power at the generator shaft) / drive efficiency.
+    // Crank power = (E·I + friction and iron-loss power at the generator shaft) / drive
+    // efficiency; the iron loss is k_h·(n/1000 rpm) + k_e·(n/1000 rpm)² as the file states it.
     let omega_g = cadence * n * std::f64::consts::PI / 30.0;
     let friction_w = setup.drive.coulomb_friction_n_m * omega_g
         + setup.drive.viscous_friction_n_m_s * omega_g * omega_g;
-    let want_p = (num(at, "open_circuit_v") * num(at, "generator_current_a") + friction_w) / eta;
+    let krpm = cadence * n / 1000.0;
+    let iron_w = setup.generator.hysteresis_loss_w_per_krpm * krpm
+        + setup.generator.eddy_loss_w_per_krpm2 * krpm * krpm;
+    assert!(iron_w > 0.0, "the demo states its iron loss");
+    let want_p =
+        (num(at, "open_circuit_v") * num(at, "generator_current_a") + friction_w + iron_w) / eta;
     assert!(
         (num(at, "crank_power_w") - want_p).abs() < 1e-6 * want_p,
         "{at}"

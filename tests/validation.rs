@@ -17,7 +17,7 @@ use crankcharge::model::battery::lead_acid::{
 };
 use crankcharge::model::battery::li_ion::{band_of, default_cv_v_per_cell, LiIonModel, TempBand};
 use crankcharge::model::battery::{BatteryModel, BatteryState};
-use crankcharge::model::converter::{buck_conversion_ratio, BuckModel};
+use crankcharge::model::converter::{buck_conversion_ratio, BuckModel, Overhead};
 use crankcharge::model::diode::{shockley_from_points, DiodeModel};
 use crankcharge::model::drive::DriveModel;
 use crankcharge::model::generator::{copper_resistance, GeneratorModel};
@@ -31,7 +31,11 @@ use crankcharge::scenario::setup::{
     ChargeWindow, Chemistry, Diode, DiodeKind, Drive, LeadAcidKind, Stage as BeltStage,
 };
 use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::simulate::engine::{initial_discrete, initial_state};
 use crankcharge::simulate::plant::Plant;
+use crankcharge::simulate::state::{
+    State, CRANK_ANGLE, CRANK_SPEED, GEN_SPEED, OP_INTEGRATOR, W_PRIME,
+};
 use crankcharge::studies::session::{run_session, RunSettings, Session};
 use crankcharge::units::{
     rpm_to_rad_s, thermal_voltage_v, v_per_krpm_to_v_s_per_rad, v_s_per_rad_to_v_per_krpm,
@@ -75,6 +79,10 @@ mod file {
     pub struct Generator {
         pub back_emf_v_per_krpm: f64,
         pub resistance_ohm: f64,
+        #[serde(default)]
+        pub hysteresis_loss_w_per_krpm: f64,
+        #[serde(default)]
+        pub eddy_loss_w_per_krpm2: f64,
     }
 
     #[derive(Deserialize)]
@@ -376,6 +384,79 @@ fn pmdc_emf_reverses_with_rotation() {
 }
 
 #[test]
+fn pmdc_iron_loss_grows_as_steinmetz_with_speed() {
+    let sc = scenario(
+        "demo",
+        &[
+            "generator.hysteresis_loss_w_per_krpm=0.4",
+            "generator.eddy_loss_w_per_krpm2=0.15",
+        ],
+    );
+    let g = GeneratorModel::from_config(&sc.setup.generator);
+    for rpm in [300.0, 1000.0, 1750.0, 3000.0] {
+        let w = rpm_to_rad_s(rpm);
+        let p = g.iron_loss_torque_n_m(w) * w;
+        // Common practice: at fixed flux a core's hysteresis loss grows with frequency (the
+        // same loop every cycle) and its eddy-current loss with frequency squared (Steinmetz;
+        // the classical separation of iron losses): P = k_h·(n/1000) + k_e·(n/1000)².
+        let k = rpm / 1000.0;
+        let want = 0.4 * k + 0.15 * k * k;
+        assert!(
+            (p - want).abs() < 1e-9 * want,
+            "{rpm} rpm: {p} W vs {want} W"
+        );
+    }
+    // A drag: it opposes rotation both ways and never feeds power back.
+    let w = rpm_to_rad_s(1500.0);
+    assert!((g.iron_loss_torque_n_m(-w) + g.iron_loss_torque_n_m(w)).abs() < 1e-12);
+    assert_eq!(g.iron_loss_torque_n_m(0.0), 0.0);
+}
+
+#[test]
+fn pmdc_iron_loss_is_booked_in_the_ledger_as_the_trace_says() {
+    // The demo's own iron loss over two minutes of steady cranking: the ledger's term against
+    // the Steinmetz form integrated over the trace's generator speed (0.1-s trapezoids).
+    let gen = &setup_file("demo").generator;
+    let (kh, ke) = (gen.hysteresis_loss_w_per_krpm, gen.eddy_loss_w_per_krpm2);
+    assert!(kh > 0.0 && ke > 0.0, "the demo states its iron loss");
+    let s = &steady_sessions()
+        .iter()
+        .find(|(n, _)| n == "demo")
+        .expect("demo")
+        .1;
+    let rows = &s.result.trace.rows;
+    // Common practice: P = k_h·(n/1000 rpm) + k_e·(n/1000 rpm)² (Steinmetz, as above).
+    let p = |rpm: f64| {
+        let k = rpm.abs() / 1000.0;
+        kh * k + ke * k * k
+    };
+    let traced: f64 = rows
+        .windows(2)
+        .map(|w| {
+            0.5 * (p(w[0].generator_rpm) + p(w[1].generator_rpm)) * (w[1].time_s - w[0].time_s)
+        })
+        .sum();
+    let booked = s.result.ledger.iron_loss_j;
+    assert!(booked > 50.0, "iron loss {booked} J");
+    assert!(
+        (traced - booked).abs() < 0.01 * booked,
+        "ledger {booked} J vs trace {traced} J"
+    );
+}
+
+#[test]
+fn pmdc_magnets_weaken_with_temperature() {
+    let sc = scenario("demo", &["generator.back_emf_tempco_pct_per_k=-0.2"]);
+    let g = GeneratorModel::from_config(&sc.setup.generator);
+    let ke20 = setup_file("demo").generator.back_emf_v_per_krpm * 60.0 / (2.0 * PI * 1000.0);
+    // From memory: hard-ferrite magnets lose about 0.2 % of their remanence per kelvin near room
+    // temperature (magnet makers' data), and a PMDC machine's k_e with it: +50 K → −10 %.
+    assert!((g.ke_at(20.0) - ke20).abs() < 1e-12);
+    assert!((g.ke_at(70.0) / ke20 - 0.90).abs() < 1e-12);
+    assert!((g.ke_at(-10.0) / ke20 - 1.06).abs() < 1e-12);
+}
+
+#[test]
 fn units_rpm_to_rad_s() {
     // Common practice: one revolution is 2π rad, so 60 rpm = 2π rad/s.
     assert!((rpm_to_rad_s(60.0) - 2.0 * PI).abs() < 1e-12);
@@ -480,8 +561,12 @@ fn diode_shipped_schottky_drop_over_load_currents() {
             currents.len() > 100,
             "{name}: the generator hardly conducted"
         );
+        // The working range: the quartile to the 95th percentile of the conducting samples. (The
+        // light-load tail below it is left out: with realistic brush drop and iron loss the
+        // diode-only lead-acid setup trickles at under 0.1 A for a tenth of its session, where a
+        // 3-A Schottky drops below 0.3 V, as its own datasheet points say.)
         let (lo, hi) = (
-            percentile(currents.clone(), 0.05),
+            percentile(currents.clone(), 0.25),
             percentile(currents, 0.95),
         );
         for i in [lo, hi] {
@@ -726,7 +811,7 @@ fn buck_input_power_equals_output_power_plus_losses() {
     for &(vin, vo, i) in &[(15.0, 12.0, 2.0), (20.0, 11.4, 1.0), (30.0, 12.6, 0.4)] {
         let d = b.ccm_duty(vin, vo, i);
         assert!(d > 0.0 && d < b.max_duty);
-        let p_in = vin * b.input_current_a(d, i);
+        let p_in = vin * b.input_current_a(d, i, vin);
         let p_out = vo * i;
         let losses = b.losses(d, i, vin).total_w();
         // Common practice: conservation of energy in an averaged converter — power in equals power
@@ -770,7 +855,10 @@ fn buck_network_regulates_above_dropout_edge_and_drops_out_below() {
         high.input_v
     );
     // Input power = output power + losses at the solved point.
-    let p_in = high.input_v * plant.buck.input_current_a(high.balance_duty, target);
+    let p_in = high.input_v
+        * plant
+            .buck
+            .input_current_a(high.balance_duty, target, high.input_v);
     assert!((p_in - high.battery_v * target - high.losses.total_w()).abs() < 1e-6 * p_in);
 
     let low = solve(15.0);
@@ -880,7 +968,7 @@ fn usb_port_limit_defaults_to_a_dedicated_charging_port() {
 #[test]
 fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line() {
     use crankcharge::model::battery::Terminal;
-    use crankcharge::model::converter::{BuckBoostModel, LinearModel};
+    use crankcharge::model::converter::{BuckBoostModel, LinearModel, PassThermal};
     use crankcharge::model::network::{Converters, Source};
     use crankcharge::model::usb::UsbModel;
     use crankcharge::model::usb_network;
@@ -893,11 +981,13 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         switch_drop_v: v_sw,
         switch_resistance_ohm: r_on,
         catch_drop_v: v_d,
+        output_diode_v: 0.0,
         inductor_resistance_ohm: r_l,
         inductance_h: 22e-6,
         switching_frequency_hz: f_sw,
         switch_transition_s: t_tr,
         quiescent_current_a: iq,
+        overhead: Overhead::default(),
     };
     let bb = BuckBoostModel {
         max_duty: 0.9,
@@ -909,11 +999,18 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         switching_frequency_hz: f_sw,
         switch_transition_s: 0.0,
         quiescent_current_a: 0.0,
+        overhead: Overhead::default(),
     };
     let lin = LinearModel {
         dropout_v: 0.3,
         pass_resistance_ohm: 0.3,
         quiescent_current_a: 0.0,
+        thermal: PassThermal {
+            theta_ja_k_per_w: 62.5,
+            heat_capacity_j_per_k: 1.0,
+            foldback_c: 120.0,
+            shutdown_c: 150.0,
+        },
     };
     let conv = Converters {
         topology: Topology::Buck,
@@ -928,6 +1025,11 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         inductance_h: 1e-3,
         inertia_kg_m2: 6e-5,
         brush_drop_v: 0.0,
+        hysteresis_loss_w_per_krpm: 0.0,
+        eddy_loss_w_per_krpm2: 0.0,
+        ke_tempco_per_k: 0.0,
+        cogging_torque_n_m: 0.0,
+        cogging_periods: 1.0,
         winding_heat_capacity_j_per_k: 60.0,
         winding_to_ambient_w_per_k: 0.8,
     };
@@ -2043,6 +2145,121 @@ fn operator_w_prime_recovers_exponentially_below_cp() {
     }
 }
 
+/// The demo plant with the steady profile and `sets`, no wander or rests (ripple as set), the
+/// operator holding the steady target at t = 100 s with a mean crank power `p_mean_w` (the PI
+/// integrator carries the whole command; the envelope does not bind): the state, the mode and t.
+fn holding_power(sets: &[&str], p_mean_w: f64) -> (Plant, State, f64) {
+    let sc = scenario("demo", sets);
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let t = 100.0;
+    let omega = rpm_to_rad_s(plant.planned_rpm(t).0);
+    let mut y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    y[CRANK_SPEED] = omega;
+    y[GEN_SPEED] = omega * plant.drive.ratio;
+    y[OP_INTEGRATOR] = p_mean_w / omega;
+    (plant, y, t)
+}
+
+/// Rate of the W′ balance at `y` and the rippled instantaneous power there.
+fn w_prime_rate_at(plant: &Plant, y: &State, t: f64) -> (f64, f64, f64) {
+    let d = initial_discrete(plant, y);
+    let p = plant.eval(t, y, &d);
+    let mut dy = State::zeros();
+    plant.derivatives(&p, y, &d, &mut dy);
+    (dy[W_PRIME], p.operator_power_w, p.operator_mean_power_w)
+}
+
+#[test]
+fn operator_w_prime_is_flat_at_critical_power_with_the_ripple_on() {
+    for (ripple, peaks) in [("0.3", "2"), ("0.45", "1")] {
+        let sets = [
+            "profile.jitter.ripple_fraction=".to_string() + ripple,
+            "profile.jitter.ripple_peaks_per_rev=".to_string() + peaks,
+        ];
+        let sets: Vec<&str> = sets.iter().map(String::as_str).collect();
+        let cp = scenario("demo", &sets).profile.operator.critical_power_w;
+        let (plant, mut y, t) = holding_power(&sets, cp);
+        let w0 = plant.operator.w_prime_j;
+        y[W_PRIME] = 0.5 * w0;
+        // One crank revolution in equal angle steps (the crank turns at constant speed).
+        let n = 720;
+        let (mut model, mut instantaneous, mut p_inst_mean, mut p_inst_max) =
+            (0.0, 0.0, 0.0, 0.0f64);
+        for k in 0..n {
+            y[CRANK_ANGLE] = 2.0 * PI * k as f64 / n as f64;
+            let (rate, p_inst, p_mean) = w_prime_rate_at(&plant, &y, t);
+            assert!(
+                (p_mean - cp).abs() < 1e-9 * cp,
+                "mean power {p_mean} W vs CP {cp} W"
+            );
+            model += rate / n as f64;
+            // Source: Skiba et al., Med Sci Sports Exerc 44(8):1526–1532, 2012, W′ balance in
+            // differential form (REFERENCES §8): −(P − CP) above CP, (W′0 − W′)·(CP − P)/W′0
+            // below — here driven by the rippled instantaneous power, for contrast.
+            instantaneous += if p_inst > cp {
+                -(p_inst - cp)
+            } else {
+                (w0 - y[W_PRIME]) * (cp - p_inst) / w0
+            } / n as f64;
+            p_inst_mean += p_inst / n as f64;
+            p_inst_max = p_inst_max.max(p_inst);
+        }
+        // The ripple really is there, and averages to the mean over the turn.
+        assert!(p_inst_max > 1.25 * cp, "ripple peak {p_inst_max} W");
+        assert!(
+            (p_inst_mean - cp).abs() < 1e-6 * cp,
+            "turn mean {p_inst_mean} W"
+        );
+        // Source: Skiba et al. 2012 (REFERENCES §8) — at P = CP both branches of the published
+        // differential form vanish: W′ is flat. Over a 10-minute session it moves by < 1 %.
+        assert!(
+            model.abs() * 600.0 <= 0.01 * y[W_PRIME],
+            "ripple {ripple}: W′ drifts {model} J/s at mean power = CP"
+        );
+        // Driven by the rippled power instead, the same law drains W′ by more than 1 % in ten
+        // minutes: the check above can fail.
+        assert!(
+            -instantaneous * 600.0 > 0.01 * y[W_PRIME],
+            "ripple {ripple}: the contrast case drifts only {instantaneous} J/s"
+        );
+    }
+}
+
+#[test]
+fn operator_w_prime_runs_out_at_the_monod_scherrer_time_with_the_ripple_on() {
+    // CP 80 W, W′ 8 kJ, held at a mean 120 W by a single-arm crank with a strong ripple (the
+    // instantaneous power dips below CP each turn). Peak power and torque set out of the way.
+    let sets = [
+        "profile.operator.critical_power_w=80",
+        "profile.operator.w_prime_j=8000",
+        "profile.operator.peak_power_w=2000",
+        "profile.operator.peak_torque_n_m=200",
+        "profile.jitter.ripple_fraction=0.8",
+        "profile.jitter.ripple_peaks_per_rev=1",
+    ];
+    let (plant, mut y, t) = holding_power(&sets, 120.0);
+    let omega = y[CRANK_SPEED];
+    let (dt, mut s, mut p_min) = (1e-3, 0.0, f64::MAX);
+    // W′ is integrated with the crank turning at constant speed (a forward-Euler step is exact
+    // for a constant drain).
+    while y[W_PRIME] > 0.1 * 8000.0 && s < 1000.0 {
+        let (rate, p_inst, _) = w_prime_rate_at(&plant, &y, t);
+        p_min = p_min.min(p_inst);
+        y[W_PRIME] += dt * rate;
+        y[CRANK_ANGLE] += omega * dt;
+        s += dt;
+    }
+    assert!(p_min < 80.0, "the ripple should dip below CP ({p_min} W)");
+    // Source: Monod & Scherrer, Ergonomics 8:329–338, 1965 — t_lim = W′/(P − CP) = 200 s for
+    // CP 80 W, W′ 8 kJ, P 120 W (REFERENCES §8); W′ falls linearly, so 90 % of it is gone at
+    // 0.9·t_lim = 180 s.
+    let t_90 = 0.9 * 8000.0 / (120.0 - 80.0);
+    assert!(
+        (s - t_90).abs() <= 2.0 * dt,
+        "90 % of W′ gone at {s} s, not {t_90} s"
+    );
+}
+
 /// Asserts that a 10-minute session asked more of the default operator than they can give, and
 /// that their mean power lands in the arm-cranking band.
 fn assert_arm_session_in_band(sc: &Scenario) {
@@ -2236,7 +2453,11 @@ fn energy_balance_every_shipped_setup_steady_120_s() {
             + l.stored_chemical_j
             + l.rc_change_j
             + l.device_loss_j
-            + l.gas_j;
+            + l.gas_j
+            + l.iron_loss_j
+            + l.cogging_change_j
+            + l.overhead_loss_j
+            + l.pass_heat_j;
         // Common practice: conservation of energy (the ledger terms, summed here, equal the work).
         assert!(
             (sum - l.operator_work_j).abs() < 1e-3 * l.operator_work_j,

@@ -27,6 +27,9 @@ pub enum EventKind {
     /// The battery model runs outside the range its laws were fitted to (lead-acid: charge current
     /// beyond 1.5·I10); its figures there are extrapolations.
     ModelRange,
+    /// Linear charger: the pass element's junction is past its foldback temperature, so the
+    /// charge current is cut back.
+    ThermalFoldback,
 }
 
 impl EventKind {
@@ -43,11 +46,12 @@ impl EventKind {
             EventKind::ChargeComplete => "charge_complete",
             EventKind::DeviceCutoff => "device_cutoff",
             EventKind::ModelRange => "model_range",
+            EventKind::ThermalFoldback => "thermal_foldback",
         }
     }
 
     /// Every kind, in the order of the README's alert table.
-    pub const ALL: [EventKind; 10] = [
+    pub const ALL: [EventKind; 11] = [
         EventKind::Overcharge,
         EventKind::RegulationLoss,
         EventKind::Lockout,
@@ -56,6 +60,7 @@ impl EventKind {
         EventKind::ChargeTempWindow,
         EventKind::OperatorOverload,
         EventKind::DeviceCutoff,
+        EventKind::ThermalFoldback,
         EventKind::ModelRange,
         EventKind::ChargeComplete,
     ];

@@ -61,6 +61,8 @@ pub struct Summary {
     pub energy_to_battery_wh: f64,
     pub operator_work_j: f64,
     pub mean_operator_power_w: f64,
+    /// Highest operator power averaged over a crank revolution (trace grid), W: what the
+    /// operator's power cap and W′ balance act on.
     pub peak_operator_power_w: f64,
     /// Fraction of cranking time the converter held its set point; `null` for a direct design
     /// (nothing regulates).
@@ -122,6 +124,9 @@ pub struct Summary {
     /// The USB bus (only with a USB port).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub usb: Option<UsbSummary>,
+    /// Highest instantaneous operator power, the per-turn torque ripple riding on the mean
+    /// (trace grid), W.
+    pub peak_instant_operator_power_w: f64,
 }
 
 /// Window over which the lowest sustained cadence is averaged, s: a few crank turns, so that the
@@ -177,7 +182,7 @@ pub fn battery_peak(trace: &Trace) -> (f64, f64) {
 
 /// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
 /// so that study files are identical for identical inputs.
-pub const SCALAR_KEYS: [&str; 35] = [
+pub const SCALAR_KEYS: [&str; 36] = [
     "duration_s",
     "fidelity",
     "soc_start",
@@ -213,6 +218,7 @@ pub const SCALAR_KEYS: [&str; 35] = [
     "episode_count",
     "marginal_figures",
     "overrides",
+    "peak_instant_operator_power_w",
 ];
 
 impl Summary {
@@ -261,6 +267,7 @@ impl Summary {
             self.episodes.len().to_string(),
             self.marginal_figures().join("+"),
             self.overrides.join(";"),
+            fmt(self.peak_instant_operator_power_w),
         ]
     }
 

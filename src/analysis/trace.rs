@@ -74,10 +74,14 @@ pub struct TraceRow {
     pub bus_v: f64,
     /// Current out of the converter output into the device or the battery, A.
     pub bus_current_a: f64,
+    /// Operator power averaged over a crank revolution (the un-rippled torque × crank speed), W.
+    pub operator_mean_power_w: f64,
+    /// Junction temperature of a linear charger's pass element (ambient otherwise), °C.
+    pub junction_temp_c: f64,
 }
 
 /// Column names of `trace.csv`, in order.
-pub const TRACE_COLUMNS: [&str; 22] = [
+pub const TRACE_COLUMNS: [&str; 24] = [
     "time_s",
     "crank_rpm",
     "target_rpm",
@@ -100,6 +104,8 @@ pub const TRACE_COLUMNS: [&str; 22] = [
     "in_regulation",
     "bus_v",
     "bus_current_a",
+    "operator_mean_power_w",
+    "junction_temp_c",
 ];
 
 /// The whole sampled trace of one session.

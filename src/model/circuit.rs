@@ -115,7 +115,7 @@ pub fn evaluate(
                 diode_v: src.diode.forward_v(i_a),
                 brush_v: src.generator.brush_drop(i_a),
                 losses: ConverterLosses {
-                    switch_w: pass * (v_in - v_o),
+                    pass_w: pass * (v_in - v_o),
                     quiescent_w: v_in * iq,
                     ..Default::default()
                 },
@@ -158,8 +158,10 @@ pub fn evaluate(
             let i_l = x.inductor_a.max(0.0);
             let v_o = x.output_v;
             let v_in = x.input_v;
-            let a = v_in - buck.switch_drop_v - i_l * buck.switch_resistance_ohm - v_o;
-            let b = v_o + buck.catch_drop_v;
+            // The switching cell sees the output plus an always-on output diode (buck mode of a
+            // buck-boost; 0 for a buck).
+            let a = v_in - buck.switch_drop_v - i_l * buck.switch_resistance_ohm - buck.cell_v(v_o);
+            let b = buck.cell_v(v_o) + buck.catch_drop_v;
             let (d2, dcm) =
                 diode_interval(d, a, i_l, buck.inductance_h, buck.switching_frequency_hz);
             let dcm = dcm || (i_l <= 0.0 && d <= 0.0);
@@ -173,13 +175,21 @@ pub fn evaluate(
             let switching = d > 0.0;
             let i_in = if switching {
                 let share = if d + d2 > 0.0 { d / (d + d2) } else { 1.0 };
-                share * i_l + buck.quiescent_current_a + buck.switching_current_a(i_l)
+                share * i_l
+                    + buck.quiescent_current_a
+                    + buck.switching_current_a(i_l)
+                    + buck.core_current_a(v_in)
+            } else {
+                0.0
+            };
+            let overhead_w = if switching {
+                buck.overhead.power_w(v_in)
             } else {
                 0.0
             };
             let ib = term.current_at(v_o);
             let loss = v_in * i_in - v_o * i_l - i_l * buck.inductance_h * di_l;
-            let p = averaged_point(src, i_a, v_in, d, dcm, ib, v_o, loss);
+            let p = averaged_point(src, i_a, v_in, d, dcm, ib, v_o, (loss, overhead_w));
             let r = FastRates {
                 armature: di_a,
                 input: (i_a - i_in) / k.input_capacitance_f,
@@ -246,14 +256,22 @@ fn buck_boost(
         (0.0, 0.0)
     };
     let i_in = if d > 0.0 {
-        share_in * i_l + bb.quiescent_current_a + bb.switching_fraction() * i_l
+        share_in * i_l
+            + bb.quiescent_current_a
+            + bb.switching_fraction() * i_l
+            + bb.core_current_a(v_in)
+    } else {
+        0.0
+    };
+    let overhead_w = if d > 0.0 {
+        bb.overhead.power_w(v_in)
     } else {
         0.0
     };
     let i_out = share_out * i_l;
     let ib = term.current_at(v_o);
     let loss = v_in * i_in - v_o * i_out - i_l * bb.inductance_h * di_l;
-    let p = averaged_point(src, i_a, v_in, d, dcm, ib, v_o, loss);
+    let p = averaged_point(src, i_a, v_in, d, dcm, ib, v_o, (loss, overhead_w));
     let r = FastRates {
         armature: di_a,
         input: (i_a - i_in) / k.input_capacitance_f,
@@ -299,7 +317,8 @@ fn inductor_rate(
 }
 
 /// Operating point of an averaged switching stage; its losses are the power balance
-/// v_in·i_in − (power to the output) − (inductor energy rate), booked as one figure.
+/// v_in·i_in − (power to the output) − (inductor energy rate), booked as one figure but for the
+/// gate-drive and core loss (`overhead_w`, part of it), booked apart.
 #[allow(clippy::too_many_arguments)]
 fn averaged_point(
     src: &Source,
@@ -309,7 +328,7 @@ fn averaged_point(
     dcm: bool,
     ib: f64,
     v_o: f64,
-    loss_w: f64,
+    (loss_w, overhead_w): (f64, f64),
 ) -> NetworkPoint {
     NetworkPoint {
         generator_current_a: i_a,
@@ -323,7 +342,8 @@ fn averaged_point(
         diode_v: src.diode.forward_v(i_a),
         brush_v: src.generator.brush_drop(i_a),
         losses: ConverterLosses {
-            switch_w: loss_w,
+            switch_w: loss_w - overhead_w,
+            overhead_w,
             ..Default::default()
         },
     }

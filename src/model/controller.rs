@@ -82,7 +82,7 @@ pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> Contr
     let e_i = current_ref - x.inductor_a;
     let den = x.input_v - buck.switch_drop_v + buck.catch_drop_v;
     let d_ff = if den > 0.0 {
-        ((x.output_v + buck.catch_drop_v) / den).clamp(0.0, buck.max_duty)
+        ((buck.cell_v(x.output_v) + buck.catch_drop_v) / den).clamp(0.0, buck.max_duty)
     } else {
         buck.max_duty
     };

@@ -1,13 +1,23 @@
-//! Permanent-magnet DC generator: E = k_e·ω, τ = k_t·i with k_t = k_e in SI, copper R(T).
+//! Permanent-magnet DC generator: E = k_e·ω, τ = k_t·i with k_t = k_e in SI, copper R(T), magnets
+//! weakening with temperature, brush drop, iron loss and cogging.
 
 use crate::scenario::setup::Generator;
-use crate::units::v_per_krpm_to_v_s_per_rad;
+use crate::units::{rpm_to_rad_s, v_per_krpm_to_v_s_per_rad};
 
 /// Temperature coefficient of annealed copper at 20 °C, 1/K (Dellinger 1911).
 pub const COPPER_ALPHA_PER_K: f64 = 0.00393;
 
-/// Current scale below which the brush drop is smoothed to zero, A.
-const BRUSH_SMOOTH_A: f64 = 0.02;
+/// Current scale of the brush drop's rise, A: V_b·tanh(i/i_s). A carbon brush's contact drop grows
+/// about in proportion to the current at low current density and levels off towards its full
+/// value (from memory: brush makers' V–I curves flatten at a few A/cm²); 0.2 A is about a tenth
+/// of a small machine's full load. (A sharper knee, 20 mA, made the drop an 80-Ω slope at light
+/// load and cost the implicit solver thousands of Newton failures a session.)
+const BRUSH_SMOOTH_A: f64 = 0.2;
+/// Speed scale below which the hysteresis drag is smoothed to zero (as the drive's Coulomb
+/// friction), rad/s.
+const IRON_SMOOTH_RAD_S: f64 = 0.5;
+/// Temperature at which the back-EMF constant is given, °C.
+pub const KE_REFERENCE_C: f64 = 20.0;
 
 /// Generator parameters in SI.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -22,6 +32,16 @@ pub struct GeneratorModel {
     pub inertia_kg_m2: f64,
     /// Brush drop at full current, V.
     pub brush_drop_v: f64,
+    /// Hysteresis loss per 1000 rpm, W.
+    pub hysteresis_loss_w_per_krpm: f64,
+    /// Eddy-current loss per (1000 rpm)², W.
+    pub eddy_loss_w_per_krpm2: f64,
+    /// Relative change of k_e per kelvin of magnet temperature, 1/K (negative).
+    pub ke_tempco_per_k: f64,
+    /// Peak cogging torque, N·m.
+    pub cogging_torque_n_m: f64,
+    /// Cogging periods per rotor revolution.
+    pub cogging_periods: f64,
     /// Winding heat capacity, J/K.
     pub winding_heat_capacity_j_per_k: f64,
     /// Winding-to-ambient conductance, W/K.
@@ -37,19 +57,61 @@ impl GeneratorModel {
             inductance_h: g.inductance_h,
             inertia_kg_m2: g.inertia_kg_m2,
             brush_drop_v: g.brush_drop_v,
+            hysteresis_loss_w_per_krpm: g.hysteresis_loss_w_per_krpm,
+            eddy_loss_w_per_krpm2: g.eddy_loss_w_per_krpm2,
+            ke_tempco_per_k: g.back_emf_tempco_pct_per_k / 100.0,
+            cogging_torque_n_m: g.cogging_torque_n_m,
+            cogging_periods: f64::from(g.cogging_periods_per_rev),
             winding_heat_capacity_j_per_k: g.winding_heat_capacity_j_per_k,
             winding_to_ambient_w_per_k: g.winding_to_ambient_w_per_k,
         }
     }
 
-    /// Back-EMF E = k_e·ω, V (negative when cranked backwards).
+    /// Back-EMF E = k_e·ω at 20 °C, V (negative when cranked backwards).
     pub fn emf_v(&self, omega_rad_s: f64) -> f64 {
         self.ke_v_s_per_rad * omega_rad_s
     }
 
-    /// Electromagnetic torque τ = k_t·i with k_t = k_e (E·i = τ·ω), N·m.
+    /// Electromagnetic torque τ = k_t·i with k_t = k_e (E·i = τ·ω) at 20 °C, N·m.
     pub fn torque_n_m(&self, current_a: f64) -> f64 {
         self.ke_v_s_per_rad * current_a
+    }
+
+    /// Back-EMF (= torque) constant with the magnets at `magnet_c`:
+    /// k_e·(1 + c·(T − 20 °C)), V·s/rad (never below zero). Both E and τ use it, so E·i = τ·ω holds.
+    pub fn ke_at(&self, magnet_c: f64) -> f64 {
+        (self.ke_v_s_per_rad * (1.0 + self.ke_tempco_per_k * (magnet_c - KE_REFERENCE_C))).max(0.0)
+    }
+
+    /// Iron-loss drag torque at shaft speed ω, N·m: P_fe = k_h·(n/n_1) + k_e·(n/n_1)² with
+    /// n_1 = 1000 rpm (hysteresis loss grows with frequency, eddy loss with its square; Steinmetz
+    /// at fixed flux), so τ = P_fe/ω = k_h/ω_1·tanh(ω/ω_s) + k_e·ω/ω_1² (hysteresis smoothed through
+    /// zero speed like dry friction). Its power τ·ω is never negative.
+    pub fn iron_loss_torque_n_m(&self, omega_rad_s: f64) -> f64 {
+        if self.hysteresis_loss_w_per_krpm == 0.0 && self.eddy_loss_w_per_krpm2 == 0.0 {
+            return 0.0;
+        }
+        let w1 = rpm_to_rad_s(1000.0);
+        self.hysteresis_loss_w_per_krpm / w1 * (omega_rad_s / IRON_SMOOTH_RAD_S).tanh()
+            + self.eddy_loss_w_per_krpm2 * omega_rad_s / (w1 * w1)
+    }
+
+    /// Cogging torque opposing rotation at rotor angle θ, N·m: T_c·sin(n·θ) = dU/dθ with the
+    /// potential U(θ) = (T_c/n)·(1 − cos(n·θ)) ([`Self::cogging_energy_j`]).
+    pub fn cogging_torque_n_m(&self, rotor_angle_rad: f64) -> f64 {
+        if self.cogging_torque_n_m == 0.0 {
+            return 0.0;
+        }
+        self.cogging_torque_n_m * (self.cogging_periods * rotor_angle_rad).sin()
+    }
+
+    /// Cogging potential energy at rotor angle θ, J: U = (T_c/n)·(1 − cos(n·θ)).
+    pub fn cogging_energy_j(&self, rotor_angle_rad: f64) -> f64 {
+        if self.cogging_torque_n_m == 0.0 {
+            return 0.0;
+        }
+        self.cogging_torque_n_m / self.cogging_periods
+            * (1.0 - (self.cogging_periods * rotor_angle_rad).cos())
     }
 
     /// Winding resistance R(T) = R20·(1 + α·(T − 20)), Ω.

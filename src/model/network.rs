@@ -7,7 +7,9 @@
 //! open circuit. Regulated and dropout branches meet continuously at the dropout edge.
 
 use crate::model::battery::Terminal;
-use crate::model::converter::{BuckBoostModel, BuckModel, ConverterLosses, LinearModel};
+use crate::model::converter::{
+    BuckBoostModel, BuckModel, ConverterLosses, LinearModel, CORE_LOSS_MIN_V,
+};
 use crate::model::diode::DiodeModel;
 use crate::model::generator::GeneratorModel;
 use crate::model::roots::{newton_bracketed, root_in};
@@ -213,7 +215,9 @@ fn dropout_current(buck: &BuckModel, term: &Terminal, v: f64, cap: f64) -> (f64,
     match term {
         Terminal::Linear { rest_v, r_ohm } => {
             let den = (r_conv + r_ohm).max(1e-12);
-            let i = (d * (v - buck.switch_drop_v + buck.catch_drop_v) - buck.catch_drop_v - rest_v)
+            let i = (d * (v - buck.switch_drop_v + buck.catch_drop_v)
+                - buck.catch_drop_v
+                - buck.cell_v(*rest_v))
                 / den;
             if i <= 0.0 {
                 (0.0, 0.0)
@@ -239,18 +243,22 @@ fn dropout_current(buck: &BuckModel, term: &Terminal, v: f64, cap: f64) -> (f64,
 fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> NetworkPoint {
     let vo_target = term.v(target).0;
     let v_edge = buck.dropout_input_v(vo_target, target);
-    let i_cap = buck.input_current_a(buck.max_duty, target);
+    // An upper bound of the input current in dropout (the core-loss current is at most
+    // P_core/CORE_LOSS_MIN_V).
+    let i_cap = buck.input_current_a(buck.max_duty, target, CORE_LOSS_MIN_V);
     let r = src.resistance_ohm.max(1e-9);
+    let oh = &buck.overhead;
 
-    // Regulated branch: d(v) = num/(v − c) for the target current.
-    let num = vo_target + buck.catch_drop_v + target * buck.inductor_resistance_ohm;
+    // Regulated branch: d(v) = num/(v − c) for the target current; the input also carries the
+    // fixed currents and the core loss P_core/v.
+    let num = buck.cell_v(vo_target) + buck.catch_drop_v + target * buck.inductor_resistance_ohm;
     let c = buck.switch_drop_v + target * buck.switch_resistance_ohm - buck.catch_drop_v;
     let fixed = buck.quiescent_current_a + buck.switching_current_a(target);
     let g_reg = |i: f64| {
-        let v = src.node_v(i);
+        let (v, slope) = src.node(i);
         let den = (v - c).max(1e-12);
-        let g = i - (target * num / den + fixed);
-        let dg = 1.0 - target * num / (den * den) * src.node_slope(i);
+        let g = i - (target * num / den + fixed + oh.core_current_a(v));
+        let dg = 1.0 - target * num / (den * den) * slope + oh.core_current_slope(v) * slope;
         (g, dg)
     };
 
@@ -260,7 +268,8 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     // The source is nearly linear (copper and a logarithmic diode), so this converges in two or
     // three source evaluations. It is accepted only on a stable (g' > 0) root inside the
     // regulated region, with the Newton step of g below the tolerance there (so the node voltage
-    // found at that iterate is reused); otherwise the bracketed search below decides.
+    // found at that iterate is reused); otherwise the bracketed search below decides. The small
+    // core-loss current is taken at each iterate's node voltage (lagged one iterate).
     if src.emf_v > v_edge {
         let p = target * num;
         let mut x = (p / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
@@ -270,8 +279,9 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
             if den <= 0.0 {
                 break;
             }
+            let fixed = fixed + oh.core_current_a(v);
             let g = x - (p / den + fixed);
-            let dg = 1.0 - p / (den * den) * slope;
+            let dg = 1.0 - p / (den * den) * slope + oh.core_current_slope(v) * slope;
             if dg.is_nan() || dg <= 0.0 {
                 break;
             }
@@ -337,10 +347,13 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     // Dropout branch: duty at D_max, the converter passes what the input allows.
     let k_in = buck.max_duty + buck.switching_current_a(1.0);
     let g_drop = |i: f64| {
-        let v = src.node_v(i);
+        let (v, slope) = src.node(i);
         let (ib, dib) = dropout_current(buck, term, v, target);
-        let g = i - (k_in * ib + buck.quiescent_current_a);
-        (g, 1.0 + k_in * dib * src.node_slope(i))
+        let g = i - (k_in * ib + buck.quiescent_current_a + oh.core_current_a(v));
+        (
+            g,
+            1.0 + k_in * dib * slope + oh.core_current_slope(v) * slope,
+        )
     };
     let i = root_in(i_edge, i_cap.max(i_edge), i_edge, CURRENT_TOL_A, g_drop);
     let v = src.node_v(i);
@@ -437,28 +450,31 @@ fn buck_boost_point(
 ) -> NetworkPoint {
     let s = bb.switching_fraction();
     let iq = bb.quiescent_current_a;
+    let oh = &bb.overhead;
+    // Fixed input currents at generator current `i`: I_q and the core loss at the node there.
+    let fixed_at = |i: f64| iq + oh.core_current_a(src.node_v(i));
     if target <= 0.0 {
-        let v = src.node_v(iq);
-        return bb_report(src, bb, iq, v, 0.0, 0.0, term.v(0.0).0, false);
+        let i = fixed_at(fixed_at(iq));
+        let v = src.node_v(i);
+        return bb_report(src, bb, i, v, 0.0, 0.0, term.v(0.0).0, false);
     }
     let vo = term.v(target).0;
     let b = bb.off_v(vo);
-    let inductor = |i: f64| (i + target - iq) / (1.0 + s);
     let g_reg = |i: f64| {
-        let il = inductor(i).max(target);
+        let (v, slope) = src.node(i);
+        let il = ((i + target - iq - oh.core_current_a(v)) / (1.0 + s)).max(target);
         let d = 1.0 - target / il;
-        let v = src.node_v(i);
         let x = v - 2.0 * bb.switch_drop_v - 2.0 * il * bb.switch_resistance_ohm + b;
         let g = d * x - b - il * bb.inductor_resistance_ohm;
-        let dil = 1.0 / (1.0 + s);
+        let dil = (1.0 + oh.core_current_slope(v) * slope) / (1.0 + s);
         let dd = target / (il * il) * dil;
-        let dg = dd * x + d * (-src.node_slope(i) - 2.0 * bb.switch_resistance_ohm * dil)
+        let dg = dd * x + d * (-slope - 2.0 * bb.switch_resistance_ohm * dil)
             - bb.inductor_resistance_ohm * dil;
         (g, dg)
     };
     let d_max = bb.max_duty;
-    let i_min = iq + s * target;
-    let i_top = (d_max + s) * target / (1.0 - d_max) + iq;
+    let i_min = fixed_at(iq + s * target) + s * target;
+    let i_top = (d_max + s) * target / (1.0 - d_max) + fixed_at(iq);
     let bracket = if g_reg(i_top).0 >= 0.0 {
         Some((i_min, i_top))
     } else {
@@ -470,27 +486,29 @@ fn buck_boost_point(
     };
     if let Some((lo, hi)) = bracket {
         let i = root_in(lo, hi, lo, CURRENT_TOL_A, g_reg);
-        let il = inductor(i).max(target);
-        let d = (1.0 - target / il).clamp(0.0, d_max);
         let v = src.node_v(i);
+        let il = ((i + target - iq - oh.core_current_a(v)) / (1.0 + s)).max(target);
+        let d = (1.0 - target / il).clamp(0.0, d_max);
         return bb_report(src, bb, i, v, d, target, vo, false);
     }
 
-    // Dropout: duty at D_max; generator current i = (D + s)/(1 − D)·I_b + I_q.
+    // Dropout: duty at D_max; generator current i = (D + s)/(1 − D)·I_b + I_q + P_core/v.
     let k_in = (d_max + s) / (1.0 - d_max);
     let g_drop = |i: f64| {
-        let v = src.node_v(i);
+        let (v, slope) = src.node(i);
         let ib = bb_dropout_current(bb, term, v, target);
         // Slope by a secant in v (the inner solve has no closed form for curved terminals).
         let h = 1e-6;
         let ib2 = bb_dropout_current(bb, term, v - h, target);
         let dib_dv = (ib - ib2) / h;
         (
-            i - (k_in * ib + iq),
-            1.0 + k_in * dib_dv * src.node_slope(i),
+            i - (k_in * ib + iq + oh.core_current_a(v)),
+            1.0 + k_in * dib_dv * slope + oh.core_current_slope(v) * slope,
         )
     };
-    let i = root_in(i_min.min(iq), i_top, i_top, CURRENT_TOL_A, g_drop);
+    // An upper bound: the core-loss current is at most P_core/CORE_LOSS_MIN_V.
+    let i_hi = k_in * target + iq + oh.core_current_a(CORE_LOSS_MIN_V);
+    let i = root_in(i_min.min(iq), i_hi, i_top.min(i_hi), CURRENT_TOL_A, g_drop);
     let v = src.node_v(i);
     let ib = bb_dropout_current(bb, term, v, target);
     let vo = term.v(ib).0;
@@ -592,12 +610,12 @@ fn floored_point(
             Topology::BuckBoost => {
                 let bb = conv.buck_boost;
                 let d = bb.ccm_duty(floor_v, vo, ib);
-                (d <= bb.max_duty).then(|| (d, bb.input_current_a(d, ib), vo))
+                (d <= bb.max_duty).then(|| (d, bb.input_current_a(d, ib, floor_v), vo))
             }
             _ => {
                 let b = conv.buck;
                 let d = b.ccm_duty(floor_v, vo, ib);
-                (d <= b.max_duty).then(|| (d, b.input_current_a(d, ib), vo))
+                (d <= b.max_duty).then(|| (d, b.input_current_a(d, ib, floor_v), vo))
             }
         }
     };
@@ -632,8 +650,8 @@ fn floored_point(
     };
     // Close the input balance exactly at the trimmed current (the bisection leaves ≤ 1e-11 A).
     p.generator_current_a = match conv.topology {
-        Topology::BuckBoost => conv.buck_boost.input_current_a(d, ib),
-        _ => conv.buck.input_current_a(d, ib),
+        Topology::BuckBoost => conv.buck_boost.input_current_a(d, ib, floor_v),
+        _ => conv.buck.input_current_a(d, ib, floor_v),
     };
     p.input_v = src.node_v(p.generator_current_a);
     p.diode_v = src.diode.forward_v(p.generator_current_a);

@@ -2,7 +2,9 @@
 //!
 //! Envelope: Hill-type force–velocity line τ_max(ω) = τ0·(1 − ω/ω_max) and a power cap from the
 //! critical-power model (Monod & Scherrer 1965) whose reserve W′ follows the differential W′-balance
-//! of Skiba et al.: dW′/dt = −(P − CP) above CP, (W′0 − W′)·(CP − P)/W′0 below.
+//! of Skiba et al.: dW′/dt = −(P − CP) above CP, (W′0 − W′)·(CP − P)/W′0 below. P is the power
+//! averaged over a crank revolution (the model is fitted to mean power; the plant passes the
+//! un-rippled torque times the crank speed), never the rippled instantaneous power.
 
 use crate::scenario::profile::Operator;
 use crate::units::RAD_S_PER_RPM;

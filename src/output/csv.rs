@@ -92,6 +92,8 @@ fn trace_record(r: &TraceRow) -> [Cell; TRACE_COLUMNS.len()] {
         Word(if r.in_regulation { "1" } else { "0" }),
         Num(r.bus_v, 6),
         Num(r.bus_current_a, 6),
+        Num(r.operator_mean_power_w, 4),
+        Num(r.junction_temp_c, 4),
     ]
 }
 

@@ -769,7 +769,8 @@ fn alert_panel(kind: EventKind) -> Option<usize> {
         | EventKind::InputOvervoltage
         | EventKind::Lockout
         | EventKind::DeviceCutoff
-        | EventKind::ModelRange => Some(1),
+        | EventKind::ModelRange
+        | EventKind::ThermalFoldback => Some(1),
         EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => Some(2),
         EventKind::OperatorOverload => Some(3),
         EventKind::RegulationLoss | EventKind::ChargeComplete => None,
@@ -788,6 +789,7 @@ fn alert_label(kind: EventKind) -> &'static str {
         EventKind::ChargeComplete => "charge complete",
         EventKind::DeviceCutoff => "device cut off",
         EventKind::ModelRange => "model range",
+        EventKind::ThermalFoldback => "thermal foldback",
     }
 }
 
@@ -803,6 +805,7 @@ fn alert_color(kind: EventKind) -> RGBColor {
         EventKind::ChargeComplete => OLIVE,
         EventKind::DeviceCutoff => RGBColor(20, 140, 120),
         EventKind::ModelRange => RGBColor(120, 120, 120),
+        EventKind::ThermalFoldback => RGBColor(168, 84, 20),
     }
 }
 
@@ -1538,6 +1541,8 @@ mod tests {
             in_regulation: true,
             bus_v: 12.6 + t / 2000.0,
             bus_current_a: 1.5 + 0.3 * (t / 25.0).cos(),
+            operator_mean_power_w: 45.0,
+            junction_temp_c: 20.0,
         }
     }
 

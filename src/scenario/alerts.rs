@@ -42,6 +42,8 @@ pub struct Alerts {
     /// The battery model runs outside the range its laws were fitted to (lead-acid: charge
     /// current above 1.5·I10); informational.
     pub model_range: EpisodeTiming,
+    /// A linear charger's pass element hot enough to fold its current back; informational.
+    pub thermal_foldback: EpisodeTiming,
 }
 
 impl Default for Alerts {
@@ -71,6 +73,10 @@ impl Default for Alerts {
                 merge_gap_s: 0.0,
             },
             model_range: EpisodeTiming {
+                dwell_s: 1.0,
+                merge_gap_s: 10.0,
+            },
+            thermal_foldback: EpisodeTiming {
                 dwell_s: 1.0,
                 merge_gap_s: 10.0,
             },

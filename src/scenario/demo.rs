@@ -34,4 +34,5 @@ pub const PROFILES: &[Embedded] = &[
     embed!("tiring", "cranking"),
     embed!("sprint-and-rest", "cranking"),
     embed!("uneven", "cranking"),
+    embed!("overreach", "cranking"),
 ];

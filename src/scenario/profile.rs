@@ -106,10 +106,14 @@ pub struct Jitter {
     pub wander_rpm: f64,
     /// Correlation time of the wander, s (0.5 … 600).
     pub wander_time_s: f64,
-    /// Torque ripple amplitude a in 1 + a·cos(2θ + φ) (0 … 1).
+    /// Torque ripple amplitude a in 1 + a·cos(k·θ + φ) (0 … 1).
     pub ripple_fraction: f64,
     /// Ripple phase φ, rad.
     pub ripple_phase_rad: f64,
+    /// Torque peaks per crank revolution k in 1 + a·cos(k·θ + φ) (1 … 4); default 2, the two
+    /// power phases of a turn with both hands or a two-handled crank (push and pull); 1 for one
+    /// arm on a single-arm crank, whose stroke has one strong phase a turn.
+    pub ripple_peaks_per_rev: u32,
     /// Mean interval between rests and hand changes (Poisson), s (0 = none; else 5 … 1e5).
     pub rest_interval_s: f64,
     /// Mean length of a rest (exponential), s (0 … 600).
@@ -124,6 +128,7 @@ impl Default for Jitter {
             wander_time_s: 4.0,
             ripple_fraction: 0.3,
             ripple_phase_rad: 0.0,
+            ripple_peaks_per_rev: 2,
             rest_interval_s: 150.0,
             rest_length_s: 3.0,
         }

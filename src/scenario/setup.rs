@@ -83,9 +83,34 @@ pub struct Generator {
     pub inductance_h: f64,
     /// Rotor inertia, kg·m² (0 … 0.1).
     pub inertia_kg_m2: f64,
-    /// Total brush voltage drop at full current, V (0 … 3); small precious-metal brushes ≈ 0.
+    /// Total brush voltage drop at full current, V (0 … 3); default 0. Carbon brushes drop about
+    /// 1.6–2 V in all (Hawkins Electrical Guide), metal-graphite about 0.6 V, small precious-metal
+    /// brushes far less (REFERENCES §4).
     #[serde(default)]
     pub brush_drop_v: f64,
+    /// Hysteresis part of the iron (core) loss, W per 1000 rpm of shaft speed (0 … 50):
+    /// P_h = k_h·(n/1000 rpm), a drag torque independent of speed. Default 0 (not modelled).
+    #[serde(default)]
+    pub hysteresis_loss_w_per_krpm: f64,
+    /// Eddy-current part of the iron loss, W per (1000 rpm)² (0 … 50): P_e = k_e·(n/1000 rpm)²,
+    /// a drag torque proportional to speed. Default 0 (not modelled).
+    #[serde(default)]
+    pub eddy_loss_w_per_krpm2: f64,
+    /// Change of the back-EMF (and torque) constant with magnet temperature, % per K (−1 … 0),
+    /// about 20 °C: k_e(T) = k_e·(1 + c·(T − 20)/100). Default −0.2, ferrite magnets, the usual
+    /// ones in small PMDC machines (NdFeB ≈ −0.12, SmCo ≈ −0.04; magnet makers' remanence
+    /// coefficients, from memory). The winding's lumped temperature stands in for the magnets'.
+    #[serde(default = "default_back_emf_tempco")]
+    pub back_emf_tempco_pct_per_k: f64,
+    /// Peak cogging torque at the generator shaft, N·m (0 … 1); default 0 (none). Cogging is
+    /// conservative: τ = −T_c·sin(n·θ_rotor), the slope of a potential, so it stores and returns
+    /// energy within each period and does no work over one.
+    #[serde(default)]
+    pub cogging_torque_n_m: f64,
+    /// Cogging periods per rotor revolution n, the least common multiple of slot and pole
+    /// counts (1 … 200); default 10 (five slots, two poles, a common small PMDC layout).
+    #[serde(default = "default_cogging_periods")]
+    pub cogging_periods_per_rev: u32,
     /// Heat capacity of the winding, J/K (0.1 … 10 000).
     #[serde(default = "default_winding_heat_capacity")]
     pub winding_heat_capacity_j_per_k: f64,
@@ -96,6 +121,12 @@ pub struct Generator {
 
 fn default_inductance() -> f64 {
     1e-3
+}
+fn default_back_emf_tempco() -> f64 {
+    -0.2
+}
+fn default_cogging_periods() -> u32 {
+    10
 }
 fn default_winding_heat_capacity() -> f64 {
     60.0
@@ -202,6 +233,27 @@ pub struct Converter {
     /// Linear charger: headroom V_in − V_o needed at the charge current, V (0.01 … 5); default 0.3.
     #[serde(default)]
     pub dropout_v: Option<f64>,
+    /// Linear charger: thermal resistance from the pass element's junction to ambient, K/W
+    /// (0.1 … 500). Default 62.5, a TO-220 package in free air (from memory: the R_θJA that
+    /// power-transistor datasheets give for it); on a heatsink, junction-to-case plus interface
+    /// plus heatsink, a few K/W.
+    #[serde(default = "default_pass_theta_ja")]
+    pub pass_theta_ja_k_per_w: f64,
+    /// Linear charger: heat capacity of the pass element with whatever it is mounted on, J/K
+    /// (0.01 … 10 000). Default 1, a TO-220 package alone (about 2 g of copper tab and moulding;
+    /// from memory); add a heatsink's mass × specific heat (aluminium ≈ 0.9 J/(g·K)).
+    #[serde(default = "default_pass_heat_capacity")]
+    pub pass_heat_capacity_j_per_k: f64,
+    /// Linear charger: junction temperature at which thermal foldback starts to cut the charge
+    /// current, °C (40 … 200). Default 120 (common practice: linear charger ICs regulate their die
+    /// near 105–125 °C).
+    #[serde(default = "default_pass_foldback")]
+    pub pass_foldback_c: f64,
+    /// Linear charger: junction temperature at which foldback has cut the current to zero, °C
+    /// (above `pass_foldback_c`, at most 250). Default 150 (common practice: thermal shutdown of
+    /// regulator and charger ICs near 150–165 °C).
+    #[serde(default = "default_pass_shutdown")]
+    pub pass_shutdown_c: f64,
     /// Freewheel (catch) diode drop, V (0 … 2); the buck-boost has two such diodes.
     #[serde(default = "default_catch_drop")]
     pub catch_diode_drop_v: f64,
@@ -220,6 +272,23 @@ pub struct Converter {
     /// Controller quiescent current from the input, A (0 … 0.5).
     #[serde(default)]
     pub quiescent_current_a: f64,
+    /// Switching chargers: total gate charge of each switching transistor, C (0 … 1e-6); the
+    /// driver, fed from the input, draws Q_g·f_sw per transistor (two for the buck-boost, one in
+    /// its buck mode). Default 0 (not modelled; a bipolar switch has no gate charge — its base
+    /// drive is not modelled). Small power MOSFETs: about 5–30 nC (common practice).
+    #[serde(default)]
+    pub gate_charge_c: f64,
+    /// Switching chargers: inductor core loss while switching, W (0 … 10), held at its value at
+    /// the design ripple and taken from the input. Default 0 (not modelled).
+    #[serde(default)]
+    pub core_loss_w: f64,
+    /// Buck-boost: it runs as a buck (output switch held off, its diode conducting) while the
+    /// buck duty it needs stays at or below this, switches both switches above it, and returns to
+    /// buck mode once that duty falls 0.05 below it. 0 keeps it switching both. Range 0 or
+    /// 0.2 … max_duty − 0.01; default the lower of 0.8 and max_duty − 0.05 (from memory: such
+    /// controllers leave buck mode as the buck duty nears its limit, typically 0.8–0.9).
+    #[serde(default)]
+    pub buck_mode_max_duty: Option<f64>,
     /// UVLO: converter enables when the input rises to this, V (0 … 200).
     #[serde(default)]
     pub uvlo_on_v: f64,
@@ -262,6 +331,18 @@ pub struct Converter {
 
 fn default_charge_current() -> f64 {
     1.0
+}
+fn default_pass_theta_ja() -> f64 {
+    62.5
+}
+fn default_pass_heat_capacity() -> f64 {
+    1.0
+}
+fn default_pass_foldback() -> f64 {
+    120.0
+}
+fn default_pass_shutdown() -> f64 {
+    150.0
 }
 fn default_max_duty() -> f64 {
     0.95

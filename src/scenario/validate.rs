@@ -230,6 +230,36 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
     c.range("generator.inertia_kg_m2", g.inertia_kg_m2, 1e-7, 0.1);
     c.range("generator.brush_drop_v", g.brush_drop_v, 0.0, 3.0);
     c.range(
+        "generator.hysteresis_loss_w_per_krpm",
+        g.hysteresis_loss_w_per_krpm,
+        0.0,
+        50.0,
+    );
+    c.range(
+        "generator.eddy_loss_w_per_krpm2",
+        g.eddy_loss_w_per_krpm2,
+        0.0,
+        50.0,
+    );
+    c.range(
+        "generator.back_emf_tempco_pct_per_k",
+        g.back_emf_tempco_pct_per_k,
+        -1.0,
+        0.0,
+    );
+    c.range(
+        "generator.cogging_torque_n_m",
+        g.cogging_torque_n_m,
+        0.0,
+        1.0,
+    );
+    c.rule(
+        (1..=200).contains(&g.cogging_periods_per_rev),
+        "generator.cogging_periods_per_rev",
+        g.cogging_periods_per_rev.to_string(),
+        "1 ..= 200",
+    );
+    c.range(
         "generator.winding_heat_capacity_j_per_k",
         g.winding_heat_capacity_j_per_k,
         0.1,
@@ -327,6 +357,25 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         }
         if cv.topology == Topology::Linear {
             c.opt_range("converter.dropout_v", cv.dropout_v, 0.01, 5.0);
+            c.range(
+                "converter.pass_theta_ja_k_per_w",
+                cv.pass_theta_ja_k_per_w,
+                0.1,
+                500.0,
+            );
+            c.range(
+                "converter.pass_heat_capacity_j_per_k",
+                cv.pass_heat_capacity_j_per_k,
+                0.01,
+                10_000.0,
+            );
+            c.range("converter.pass_foldback_c", cv.pass_foldback_c, 40.0, 200.0);
+            c.above(
+                "converter.pass_shutdown_c",
+                cv.pass_shutdown_c,
+                cv.pass_foldback_c,
+                250.0,
+            );
             c.rule(
                 cv.input_floor_v.is_none(),
                 "converter.input_floor_v",
@@ -379,6 +428,25 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
             0.0,
             0.5,
         );
+        c.range("converter.gate_charge_c", cv.gate_charge_c, 0.0, 1e-6);
+        c.range("converter.core_loss_w", cv.core_loss_w, 0.0, 10.0);
+        if let Some(b) = cv.buck_mode_max_duty {
+            c.rule(
+                b == 0.0 || (b.is_finite() && b >= 0.2 && b <= cv.max_duty - 0.01),
+                "converter.buck_mode_max_duty",
+                format!("{b}"),
+                &format!(
+                    "0 (never in buck mode) or 0.2 ..= max_duty − 0.01 = {}",
+                    cv.max_duty - 0.01
+                ),
+            );
+            c.rule(
+                cv.topology == Topology::BuckBoost,
+                "converter.buck_mode_max_duty",
+                format!("{b}"),
+                "only on a buck_boost charger",
+            );
+        }
         c.range("converter.uvlo_on_v", cv.uvlo_on_v, 0.0, 200.0);
         c.range(
             "converter.uvlo_off_v",
@@ -854,6 +922,12 @@ pub fn profile(p: &Profile) -> Vec<Violation> {
     c.range("jitter.wander_time_s", j.wander_time_s, 0.5, 600.0);
     c.range("jitter.ripple_fraction", j.ripple_fraction, 0.0, 1.0);
     c.range("jitter.ripple_phase_rad", j.ripple_phase_rad, -10.0, 10.0);
+    c.rule(
+        (1..=4).contains(&j.ripple_peaks_per_rev),
+        "jitter.ripple_peaks_per_rev",
+        j.ripple_peaks_per_rev.to_string(),
+        "1 ..= 4",
+    );
     c.rule(
         j.rest_interval_s == 0.0 || (5.0..=1e5).contains(&j.rest_interval_s),
         "jitter.rest_interval_s",

@@ -199,6 +199,15 @@ pub struct Ledger {
     pub device_loss_j: f64,
     /// Lead-acid: chemical energy that left as gas, J (0 for Li-ion).
     pub gas_j: f64,
+    /// Generator iron loss, J.
+    pub iron_loss_j: f64,
+    /// Work done against the generator's cogging torque, J: the change of its potential energy
+    /// (it does no work over a period: it only stores and returns).
+    pub cogging_change_j: f64,
+    /// Gate-drive and inductor-core loss of a switching charger, J.
+    pub overhead_loss_j: f64,
+    /// Heat in a linear charger's pass element, J.
+    pub pass_heat_j: f64,
 }
 
 impl Ledger {
@@ -222,7 +231,11 @@ impl Ledger {
             + self.rc_change_j
             + self.field_change_j
             + self.device_loss_j
-            + self.gas_j;
+            + self.gas_j
+            + self.iron_loss_j
+            + self.cogging_change_j
+            + self.overhead_loss_j
+            + self.pass_heat_j;
         self.operator_work_j - out
     }
 }
@@ -365,6 +378,7 @@ pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> Stat
     y[SOC] = soc_start;
     y[BATTERY_TEMP] = battery_temp_c;
     y[WINDING_TEMP] = plant.ambient_c;
+    y[JUNCTION_TEMP] = plant.ambient_c;
     if plant.fidelity == Fidelity::Detailed {
         let rest = plant.battery.terminal(&Plant::battery_state(&y)).v(0.0).0;
         y[OUTPUT_V] = rest;
@@ -373,6 +387,26 @@ pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> Stat
         }
     }
     y
+}
+
+/// Mode at the start of a session from state `y0` (before any transition is applied).
+pub fn initial_discrete(plant: &Plant, y0: &State) -> Discrete {
+    Discrete {
+        enabled: !plant.has_converter(),
+        ov_shutdown: false,
+        stage: Stage::Charging,
+        absorption_since_s: 0.0,
+        band: plant.band(y0[BATTERY_TEMP]),
+        resting: plant.jitter.resting(0.0),
+        engaged: true,
+        soft_done: plant.charger.soft_start_s <= 0.0,
+        buck_mode: false,
+        disabled_at_s: f64::NEG_INFINITY,
+        device_on: false,
+        device_off_at_s: f64::NEG_INFINITY,
+        device_on_at_s: f64::NEG_INFINITY,
+        device_cutoffs: 0,
+    }
 }
 
 /// Runs one session.
@@ -397,21 +431,7 @@ pub fn simulate_watched(
     time_events.sort_by(f64::total_cmp);
     time_events.dedup();
 
-    let mut disc = Discrete {
-        enabled: !plant.has_converter(),
-        ov_shutdown: false,
-        stage: Stage::Charging,
-        absorption_since_s: 0.0,
-        band: plant.band(y0[BATTERY_TEMP]),
-        resting: plant.jitter.resting(0.0),
-        engaged: true,
-        soft_done: plant.charger.soft_start_s <= 0.0,
-        disabled_at_s: f64::NEG_INFINITY,
-        device_on: false,
-        device_off_at_s: f64::NEG_INFINITY,
-        device_on_at_s: f64::NEG_INFINITY,
-        device_cutoffs: 0,
-    };
+    let mut disc = initial_discrete(plant, &y0);
     let mut y = y0;
     let mut t = 0.0;
     let mut stats = SolverStats {
@@ -425,7 +445,12 @@ pub fn simulate_watched(
     cascade(plant, t, &mut y, &mut disc, &mut stats, None)?;
     let p0 = plant.eval(t, &y, &disc);
     let open = observer.current();
-    observer.set(t, &codes(plant, &p0, &y, &disc, &open), plant, &p0, &y);
+    observer.set(
+        t,
+        &codes(plant, &p0, &y, &disc, &open),
+        plant,
+        (&p0, &y, &disc),
+    );
     let mut h_guess: f64 = 0.0;
     let mut next_event = 0usize;
     let mut rec = Recorder::default();
@@ -515,8 +540,12 @@ pub fn simulate_watched(
         cascade(plant, t, &mut y, &mut disc, &mut stats, end.located)?;
         let p = plant.eval(t, &y, &disc);
         let open = run.observer.current();
-        run.observer
-            .set(t, &codes(plant, &p, &y, &disc, &open), plant, &p, &y);
+        run.observer.set(
+            t,
+            &codes(plant, &p, &y, &disc, &open),
+            plant,
+            (&p, &y, &disc),
+        );
     }
     let Walk {
         mut sampler,
@@ -604,7 +633,7 @@ impl Walk<'_> {
                     watch(plant, disc, observer, a, tq, &yq, &pq, dense);
                     a = tq;
                 }
-                observer.touch(plant, &pq, &yq);
+                observer.touch(plant, &pq, &yq, disc);
                 row(plant, &pq, &yq, disc)
             });
             let (yb, pb) = if b < end.t {
@@ -616,7 +645,7 @@ impl Walk<'_> {
             if b > a {
                 watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
             }
-            self.observer.touch(plant, &pb, &yb);
+            self.observer.touch(plant, &pb, &yb, disc);
         }
         stop
     }
@@ -638,7 +667,7 @@ fn explicit_segment(
 ) -> Result<SegmentEnd, SimError> {
     let plant = run.plant;
     let (t, y, t_stop) = (seg.t, seg.y, seg.t_stop);
-    let mut model = ContinuousOutputModel::default();
+    let mut model = ContinuousOutputModel::new();
     let result = {
         let rhs = Rhs {
             plant,
@@ -771,7 +800,7 @@ fn implicit_segment(
     enum Halt {
         Failed(SimError),
         /// Too many rejections in a row at this time and state.
-        Stalled(f64, State),
+        Stalled(f64, Box<State>),
     }
     use Halt::{Failed, Stalled};
     let mut solver = stiff::Segment::start(method, &rhs, seg.t, &seg.y, seg.t_stop, &limits)
@@ -800,13 +829,13 @@ fn implicit_segment(
             Ok(a) => a,
             // The crate's own guards (step-size underflow, singular matrices) also end in a
             // bridge: an explicit method may pass where Newton cannot.
-            Err(_) => break Err(Stalled(solver.t(), y_last)),
+            Err(_) => break Err(Stalled(solver.t(), Box::new(y_last))),
         };
         let Attempt::Accepted { t_prev, t } = attempt else {
             stats.rejected_steps += 1;
             rejected_in_a_row += 1;
             if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
-                break Err(Stalled(solver.t(), y_last));
+                break Err(Stalled(solver.t(), Box::new(y_last)));
             }
             continue;
         };
@@ -828,7 +857,7 @@ fn implicit_segment(
             stats.rejected_steps += 1;
             rejected_in_a_row += 1;
             if rejected_in_a_row >= IMPLICIT_BRIDGE_AFTER_REJECTIONS {
-                break Err(Stalled(t_prev, y_last));
+                break Err(Stalled(t_prev, Box::new(y_last)));
             }
             add_counts(stats, &solver.counts);
             let retry = Limits {
@@ -838,7 +867,7 @@ fn implicit_segment(
             };
             match stiff::Segment::start(method, &rhs, t_prev, &y_last, seg.t_stop, &retry) {
                 Ok(s) => solver = s,
-                Err(_) => break Err(Stalled(t_prev, y_last)),
+                Err(_) => break Err(Stalled(t_prev, Box::new(y_last))),
             }
             continue;
         }
@@ -870,6 +899,7 @@ fn implicit_segment(
         }),
         Err(Failed(e)) => Err(e),
         Err(Stalled(t, y)) => {
+            let y = *y;
             // Hand over to Dopri5 for a short stretch; the next segment is implicit again.
             let t_stop = (t + BRIDGE_S).min(seg.t_stop);
             if t_stop - t <= 1e-12 * t.abs().max(1.0) {
@@ -918,7 +948,7 @@ fn unphysical(y: &State) -> Option<&'static str> {
     if !all_finite(y) {
         return Some("a state is not finite");
     }
-    let checks: [(usize, f64, f64, &'static str); 9] = [
+    let checks: [(usize, f64, f64, &'static str); 10] = [
         (CRANK_SPEED, -1e4, 1e4, "crank speed beyond ±10 000 rad/s"),
         (GEN_SPEED, -1e6, 1e6, "generator speed beyond ±1e6 rad/s"),
         (SOC, -0.5, 1.5, "state of charge outside −0.5 … 1.5"),
@@ -933,6 +963,12 @@ fn unphysical(y: &State) -> Option<&'static str> {
             -150.0,
             1000.0,
             "winding temperature outside −150 … 1000 °C",
+        ),
+        (
+            JUNCTION_TEMP,
+            -150.0,
+            1000.0,
+            "junction temperature outside −150 … 1000 °C",
         ),
         (ARMATURE_I, -1e4, 1e4, "armature current beyond ±10 kA"),
         (INPUT_V, -1e4, 1e4, "input voltage beyond ±10 kV"),
@@ -1068,7 +1104,12 @@ fn watch(
         });
         let yc = dense(tc);
         let pc = plant.eval(tc, &yc, disc);
-        observer.set(tc, &codes(plant, &pc, &yc, disc, &now), plant, &pc, &yc);
+        observer.set(
+            tc,
+            &codes(plant, &pc, &yc, disc, &now),
+            plant,
+            (&pc, &yc, disc),
+        );
         lo = tc;
     }
 }
@@ -1183,6 +1224,8 @@ fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
         in_regulation: p.in_regulation,
         bus_v: p.bus.bus_v,
         bus_current_a: p.bus.bus_current_a,
+        operator_mean_power_w: p.operator_mean_power_w,
+        junction_temp_c: y[JUNCTION_TEMP],
     }
 }
 
@@ -1208,6 +1251,10 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         charge_as: y[Q_BATTERY],
         device_loss_j: y[E_DEVICE],
         gas_j: y[E_GAS],
+        iron_loss_j: y[E_IRON],
+        cogging_change_j: plant.cogging_j(y) - plant.cogging_j(y0),
+        overhead_loss_j: y[E_OVERHEAD],
+        pass_heat_j: y[E_PASS],
     }
 }
 

@@ -15,7 +15,7 @@ use super::transitions::SLEEP_HYSTERESIS_V;
 use super::usb_port::device_cut_off;
 
 /// The watched conditions, in a fixed order.
-pub const WATCHED: [EventKind; 10] = [
+pub const WATCHED: [EventKind; 11] = [
     EventKind::RegulationLoss,
     EventKind::Lockout,
     EventKind::Overcharge,
@@ -26,6 +26,7 @@ pub const WATCHED: [EventKind; 10] = [
     EventKind::DeviceCutoff,
     EventKind::ChargeComplete,
     EventKind::ModelRange,
+    EventKind::ThermalFoldback,
 ];
 
 /// Codes of every watched condition at one point (0 = not present).
@@ -150,6 +151,7 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
                 .fit_limit_a()
                 .is_some_and(|limit| p.net.battery_current_a > limit),
         ),
+        u8::from(conv && d.enabled && !d.ov_shutdown && plant.foldback(y) < 1.0),
     ]
 }
 
@@ -204,9 +206,9 @@ impl Reading {
 }
 
 /// Input voltage at which the charger would hold its target at this point, V.
-fn regulation_input_v(plant: &Plant, p: &Point) -> f64 {
+fn regulation_input_v(plant: &Plant, p: &Point, d: &Discrete) -> f64 {
     plant
-        .converters()
+        .converters(d)
         .regulation_input_v(p.net.battery_v, p.target_current_a.max(0.0))
 }
 
@@ -222,7 +224,14 @@ fn restart_input_v(plant: &Plant, p: &Point) -> f64 {
 }
 
 /// The reading a run of `kind` with cause `code` takes at a point.
-fn reading(kind: EventKind, code: u8, plant: &Plant, p: &Point, y: &State) -> Reading {
+fn reading(
+    kind: EventKind,
+    code: u8,
+    plant: &Plant,
+    p: &Point,
+    y: &State,
+    d: &Discrete,
+) -> Reading {
     let bus = |threshold| Reading::of("bus_v", "V", p.bus.bus_v, threshold);
     let input = |threshold| Reading::of("input_v", "V", p.net.input_v, threshold);
     let temp = |threshold| Reading::of("battery_temp_c", "degC", y[BATTERY_TEMP], threshold);
@@ -232,7 +241,7 @@ fn reading(kind: EventKind, code: u8, plant: &Plant, p: &Point, y: &State) -> Re
             (Some(u), 5) => bus(u.band_low_v).below(),
             (Some(u), 6) => bus(u.cutoff_v).below(),
             (_, 2) => input(restart_input_v(plant, p)).below(),
-            _ => input(regulation_input_v(plant, p)).below(),
+            _ => input(regulation_input_v(plant, p, d)).below(),
         },
         EventKind::Lockout => input(restart_input_v(plant, p)).below(),
         EventKind::Overcharge => Reading::of(
@@ -273,6 +282,12 @@ fn reading(kind: EventKind, code: u8, plant: &Plant, p: &Point, y: &State) -> Re
             "A",
             p.net.battery_current_a,
             plant.battery.fit_limit_a().unwrap_or(f64::NAN),
+        ),
+        EventKind::ThermalFoldback => Reading::of(
+            "junction_temp_c",
+            "degC",
+            y[JUNCTION_TEMP],
+            plant.linear.thermal.foldback_c,
         ),
     }
 }
@@ -382,6 +397,14 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             "charge current above {:.2} A (1.5·I10): the lead-acid charge laws are extrapolated, the gas branch holds the voltage",
             plant.battery.fit_limit_a().unwrap_or(f64::INFINITY)
         ),
+        EventKind::ThermalFoldback => {
+            let t = &plant.linear.thermal;
+            format!(
+                "pass element junction above {:.0} degC: charge current folded back (to zero at \
+                 {:.0} degC)",
+                t.foldback_c, t.shutdown_c
+            )
+        }
     }
 }
 
@@ -412,10 +435,10 @@ impl Observer {
     }
 
     /// Updates the worst readings of open runs with a point inside them.
-    pub fn touch(&mut self, plant: &Plant, p: &Point, y: &State) {
+    pub fn touch(&mut self, plant: &Plant, p: &Point, y: &State, d: &Discrete) {
         for (k, slot) in self.open.iter_mut().enumerate() {
             if let Some(o) = slot {
-                let r = reading(WATCHED[k], o.code, plant, p, y);
+                let r = reading(WATCHED[k], o.code, plant, p, y, d);
                 // A finite reading also replaces a NaN one.
                 if r.excess() > o.worst.excess() || o.worst.excess().is_nan() {
                     o.worst = r;
@@ -425,7 +448,13 @@ impl Observer {
     }
 
     /// Applies the codes at time `t` (the located change time or a step end).
-    pub fn set(&mut self, t: f64, codes: &Codes, plant: &Plant, p: &Point, y: &State) {
+    pub fn set(
+        &mut self,
+        t: f64,
+        codes: &Codes,
+        plant: &Plant,
+        (p, y, d): (&Point, &State, &Discrete),
+    ) {
         for (k, &code) in codes.iter().enumerate() {
             let current = self.open[k].as_ref().map_or(0, |o| o.code);
             if current == code {
@@ -438,7 +467,7 @@ impl Observer {
                 self.open[k] = Some(Open {
                     code,
                     start_s: t,
-                    worst: reading(WATCHED[k], code, plant, p, y),
+                    worst: reading(WATCHED[k], code, plant, p, y, d),
                     detail: detail_of(WATCHED[k], code, p, plant),
                 });
             }

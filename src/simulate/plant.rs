@@ -60,6 +60,8 @@ pub struct Discrete {
     pub engaged: bool,
     /// Soft-start ramp finished.
     pub soft_done: bool,
+    /// Buck-boost running as a buck (output switch held off).
+    pub buck_mode: bool,
     /// When the converter last locked out or went to sleep, s (−∞ before the first time).
     pub disabled_at_s: f64,
     /// USB port: the device is attached and draws from the bus.
@@ -90,10 +92,16 @@ pub struct Charger {
     /// The charger sleeps while its input is below the battery (buck, linear); a buck-boost
     /// charges from there too.
     pub sleeps_below_battery: bool,
+    /// How far above the battery the input must be before a sleeping charger can pass current, V:
+    /// a buck's switch drop (below V_o + V_sw no duty pushes current into the inductor), 0 for a
+    /// linear charger.
+    pub sleep_margin_v: f64,
     /// Switching chargers: the input-voltage floor they hold by trimming their current, V.
     pub input_floor_v: Option<f64>,
     /// Least off-time after a lock-out before a restart, s.
     pub restart_delay_s: f64,
+    /// Buck-boost: buck mode while the buck duty stays at or below this (0: never).
+    pub buck_mode_max_duty: f64,
 }
 
 /// One target-cadence segment in absolute time.
@@ -116,6 +124,8 @@ pub struct Plant {
     pub buck: BuckModel,
     /// Buck-boost model (used when the topology is `buck_boost`).
     pub buck_boost: BuckBoostModel,
+    /// The buck-boost's power stage run as a buck (its buck mode).
+    pub buck_boost_as_buck: BuckModel,
     /// Linear charger model (used when the topology is `linear`).
     pub linear: LinearModel,
     pub charger: Charger,
@@ -133,6 +143,8 @@ pub struct Plant {
     pub spin_up_s: f64,
     pub ripple_fraction: f64,
     pub ripple_phase_rad: f64,
+    /// Torque peaks per crank revolution k of the ripple 1 + a·cos(k·θ + φ).
+    pub ripple_peaks_per_rev: f64,
     pub alerts: Alerts,
     /// Detailed fidelity: circuit constants and loop gains.
     pub circuit: CircuitConstants,
@@ -176,12 +188,19 @@ pub struct Point {
     pub charge_limit_v: f64,
     pub operator_torque_n_m: f64,
     pub operator_command_n_m: f64,
+    /// Instantaneous operator power τ·ω, ripple included, W.
     pub operator_power_w: f64,
+    /// Operator power averaged over a crank revolution, W (see [`Plant::eval`]).
+    pub operator_mean_power_w: f64,
     pub crank_accel: f64,
     pub gen_accel: f64,
     pub belt_torque_n_m: f64,
     pub drive_loss_w: f64,
     pub friction_w: f64,
+    /// Generator iron loss, W.
+    pub iron_w: f64,
+    /// Power into the cogging potential (negative while it gives energy back), W.
+    pub cogging_w: f64,
     pub copper_w: f64,
     pub winding_ohm: f64,
     pub battery_powers: BatteryPowers,
@@ -242,9 +261,22 @@ impl Plant {
             input_overvoltage_v: c.input_overvoltage_v,
             overvoltage_shutdown: c.overvoltage_shutdown,
             sleeps_below_battery: c.topology != Topology::BuckBoost,
+            sleep_margin_v: if c.topology == Topology::Buck && setup.usb.is_none() {
+                c.switch_drop_v
+            } else {
+                0.0
+            },
             input_floor_v: match c.topology {
                 Topology::Buck | Topology::BuckBoost => c.input_floor_v,
                 _ => None,
+            },
+            buck_mode_max_duty: match c.topology {
+                // A USB bus keeps the buck-boost switching both switches (not modelled in buck
+                // mode there).
+                Topology::BuckBoost if setup.usb.is_none() => {
+                    c.buck_mode_max_duty.unwrap_or((c.max_duty - 0.05).min(0.8))
+                }
+                _ => 0.0,
             },
         };
         let mut segments = Vec::with_capacity(profile.segments.len());
@@ -320,6 +352,7 @@ impl Plant {
             diode,
             drive,
             buck,
+            buck_boost_as_buck: buck_boost.as_buck(),
             buck_boost,
             linear,
             charger,
@@ -337,6 +370,7 @@ impl Plant {
             spin_up_s: profile.operator.spin_up_s,
             ripple_fraction,
             ripple_phase_rad,
+            ripple_peaks_per_rev: f64::from(profile.jitter.ripple_peaks_per_rev),
             alerts: setup.alerts.clone(),
         })
     }
@@ -349,16 +383,6 @@ impl Plant {
     /// Whether the charger is a converter with UVLO and stages (not direct).
     pub fn has_converter(&self) -> bool {
         self.charger.topology != Topology::Direct
-    }
-
-    /// The converter models of the design, the topology selecting one.
-    pub fn converters(&self) -> network::Converters<'_> {
-        network::Converters {
-            topology: self.charger.topology,
-            buck: &self.buck,
-            buck_boost: &self.buck_boost,
-            linear: &self.linear,
-        }
     }
 
     /// Planned target cadence (segments × scale + offset), rpm, and its slope, rpm/s; no wander.
@@ -456,8 +480,10 @@ impl Plant {
             0.0
         };
 
-        // Electrical network.
-        let emf = self.generator.emf_v(omega_g);
+        // Electrical network. The magnets sit at the machine's one lumped temperature (the
+        // winding's): E and τ share k_e(T).
+        let ke = self.generator.ke_at(y[WINDING_TEMP]);
+        let emf = ke * omega_g;
         let r_w = self.generator.resistance_ohm(y[WINDING_TEMP]);
         let src = Source {
             generator: &self.generator,
@@ -468,7 +494,7 @@ impl Plant {
         let band = self.band(bs.temp_c);
         let frozen = self.battery.freeze(&bs);
         let term = frozen.terminal();
-        let request = self.request(d, bs.temp_c, band, y[SOFT_START]);
+        let request = self.request(d, y, band);
         let usb_eval = self.usb.as_ref().map(|u| {
             // The device's charger asks for current whether or not the converter runs (it
             // cannot tell until the bus runs down): its request as if the converter were on.
@@ -477,13 +503,13 @@ impl Plant {
                 ov_shutdown: false,
                 ..*d
             };
-            let device_request = self.request(&device, bs.temp_c, band, y[SOFT_START]);
+            let device_request = self.request(&device, y, band);
             self.usb_network(u, &src, (t, request, device_request), &term, y, d)
         });
         let (net, target_current, cv_active, fast_rates, ctrl_rates) = match self.fidelity {
             _ if self.usb.is_some() => usb_eval.map_or_else(Default::default, |u| u.electrical),
             Fidelity::Fast => {
-                let (load, target, cv) = self.fast_load(request, &term);
+                let (load, target, cv) = self.fast_load(request, &term, d);
                 (
                     network::solve(&src, load, &term),
                     target,
@@ -492,7 +518,7 @@ impl Plant {
                     (0.0, 0.0),
                 )
             }
-            Fidelity::Detailed => self.detailed_network(&src, request, &term, y),
+            Fidelity::Detailed => self.detailed_network(&src, request, &term, y, d),
         };
         let bus = usb_eval.map_or_else(
             || BusPoint::battery(net.battery_v, net.battery_current_a),
@@ -500,16 +526,27 @@ impl Plant {
         );
         let charge_limit_v = self.battery.charge_limit_v(bs.temp_c);
         let idle_input_v = match (request, self.fidelity) {
-            (Request::Off, Fidelity::Fast) => src.node_v(self.buck.quiescent_current_a),
+            (Request::Off, Fidelity::Fast) => self.idle_input_v(&src, d),
             _ => net.input_v,
         };
 
         // Mechanics.
-        let tau_em = self.generator.torque_n_m(net.generator_current_a);
+        let tau_em = ke * net.generator_current_a;
         let tau_fric = self.drive.friction_n_m(omega_g);
+        // Iron loss and cogging act on the rotor like friction, but are booked on their own.
+        let tau_iron = self.generator.iron_loss_torque_n_m(omega_g);
+        let tau_cog = self.generator.cogging_torque_n_m(y[ROTOR_ANGLE]);
+        let tau_load = tau_em + tau_fric + tau_iron + tau_cog;
         let bearing = CRANK_BEARING_N_M * (omega_c / CRANK_BEARING_SMOOTH).tanh();
         let omega_t = rpm_to_rad_s(target_rpm);
-        let (tau_op, tau_cmd) = if cranking {
+        // The ripple factor 1 + a·cos(k·θ + φ) averages to one over a revolution, so the power
+        // averaged over a turn is the un-rippled torque times the crank speed (exact up to the
+        // change of speed and command within the turn). The power cap of the envelope acts on
+        // it, and it drives the W′ balance: the published W′-balance model (Skiba et al., Med Sci
+        // Sports Exerc 44(8):1526–1532, 2012) is fitted to mean power, and driving it with the
+        // rippled power would drain W′ at a mean power equal to CP (the asymmetric recovery
+        // books the ripple's peaks as work above CP but pays back its troughs slowly).
+        let (tau_op, tau_cmd, tau_mean) = if cranking {
             let j_eff = self.drive.crank_inertia_kg_m2
                 + self.drive.ratio * self.drive.ratio * self.drive.shaft_inertia_kg_m2
                     / self.drive.efficiency;
@@ -524,16 +561,15 @@ impl Plant {
                 .command_n_m(omega_t, omega_c, y[OP_INTEGRATOR], ff);
             let env = self.operator.envelope_n_m(omega_c, y[W_PRIME]);
             let sat = cmd.clamp(0.0, env);
-            let ripple =
-                1.0 + self.ripple_fraction * (2.0 * y[CRANK_ANGLE] + self.ripple_phase_rad).cos();
-            (sat * ripple, cmd)
+            let ripple = 1.0
+                + self.ripple_fraction
+                    * (self.ripple_peaks_per_rev * y[CRANK_ANGLE] + self.ripple_phase_rad).cos();
+            (sat * ripple, cmd, sat)
         } else {
-            (0.0, 0.0)
+            (0.0, 0.0, 0.0)
         };
         let (crank_accel, gen_accel, belt, drive_loss) = if d.engaged {
-            let c = self
-                .drive
-                .coupled(tau_op - bearing, tau_em + tau_fric, omega_c);
+            let c = self.drive.coupled(tau_op - bearing, tau_load, omega_c);
             (
                 c.crank_accel,
                 c.crank_accel * self.drive.ratio,
@@ -543,7 +579,7 @@ impl Plant {
         } else {
             let jc = self.drive.crank_inertia_kg_m2.max(1e-9);
             let js = self.drive.shaft_inertia_kg_m2.max(1e-12);
-            ((tau_op - bearing) / jc, -(tau_em + tau_fric) / js, 0.0, 0.0)
+            ((tau_op - bearing) / jc, -tau_load / js, 0.0, 0.0)
         };
 
         let (powers, rates) = frozen.flows(net.battery_current_a, net.battery_v);
@@ -573,11 +609,14 @@ impl Plant {
             operator_torque_n_m: tau_op,
             operator_command_n_m: tau_cmd,
             operator_power_w: tau_op * omega_c,
+            operator_mean_power_w: tau_mean * omega_c,
             crank_accel,
             gen_accel,
             belt_torque_n_m: belt,
             drive_loss_w: drive_loss,
             friction_w: tau_fric * omega_g + bearing * omega_c,
+            iron_w: tau_iron * omega_g,
+            cogging_w: tau_cog * omega_g,
             copper_w: net.generator_current_a * net.generator_current_a * r_w,
             winding_ohm: r_w,
             battery_powers: powers,
@@ -592,8 +631,48 @@ impl Plant {
         }
     }
 
+    /// The power stage in mode `d`: the topology as it switches now and the buck model it uses
+    /// (a buck-boost in buck mode works as a buck with an always-on output diode).
+    pub fn stage(&self, d: &Discrete) -> (Topology, &BuckModel) {
+        if self.charger.topology == Topology::BuckBoost && d.buck_mode {
+            (Topology::Buck, &self.buck_boost_as_buck)
+        } else {
+            (self.charger.topology, &self.buck)
+        }
+    }
+
+    /// Input voltage with the converter enabled but passing nothing (fast fidelity): the source
+    /// carrying the stage's quiescent and gate-drive current and its core loss, i = I_q + P_core/v(i)
+    /// (a few fixed-point steps; the core current is small and varies slowly with v).
+    fn idle_input_v(&self, src: &Source, d: &Discrete) -> f64 {
+        let (iq, oh) = match self.stage(d) {
+            (Topology::BuckBoost, _) => (
+                self.buck_boost.quiescent_current_a,
+                self.buck_boost.overhead,
+            ),
+            (Topology::Linear, _) => (self.linear.quiescent_current_a, Default::default()),
+            (_, b) => (b.quiescent_current_a, b.overhead),
+        };
+        let mut i = iq;
+        for _ in 0..3 {
+            i = iq + oh.core_current_a(src.node_v(i));
+        }
+        src.node_v(i)
+    }
+
+    /// The converter models as the network sees them in mode `d`.
+    pub fn converters(&self, d: &Discrete) -> network::Converters<'_> {
+        let (topology, buck) = self.stage(d);
+        network::Converters {
+            topology,
+            buck,
+            buck_boost: &self.buck_boost,
+            linear: &self.linear,
+        }
+    }
+
     /// Fast fidelity: the ideal controller holds min(CC limit, the CV current) at once.
-    fn fast_load(&self, r: Request, term: &Terminal) -> (Load<'_>, f64, bool) {
+    fn fast_load(&self, r: Request, term: &Terminal, d: &Discrete) -> (Load<'_>, f64, bool) {
         match r {
             Request::Off => (Load::Off, 0.0, false),
             Request::Direct => (Load::Direct, 0.0, false),
@@ -603,7 +682,7 @@ impl Plant {
                 ramp,
                 hold,
             } => {
-                let conv = self.converters();
+                let conv = self.converters(d);
                 if hold {
                     return (conv.charging(0.0), 0.0, false);
                 }
@@ -630,7 +709,9 @@ impl Plant {
         r: Request,
         term: &Terminal,
         y: &State,
+        d: &Discrete,
     ) -> (NetworkPoint, f64, bool, FastRates, (f64, f64)) {
+        let (topology, buck) = self.stage(d);
         let x = FastStates {
             armature_a: y[ARMATURE_I],
             input_v: y[INPUT_V],
@@ -644,7 +725,7 @@ impl Plant {
                 (p, 0.0, false, rates, (0.0, 0.0))
             }
             Request::Off => {
-                let drive = match self.charger.topology {
+                let drive = match topology {
                     Topology::BuckBoost => circuit::Drive::BuckBoost {
                         model: &self.buck_boost,
                         duty: 0.0,
@@ -654,7 +735,7 @@ impl Plant {
                         current_a: 0.0,
                         on: false,
                     },
-                    _ => circuit::Drive::Off(&self.buck),
+                    _ => circuit::Drive::Off(buck),
                 };
                 let (p, rates) = circuit::evaluate(src, &self.circuit, term, drive, &x);
                 (p, 0.0, false, rates, (0.0, 0.0))
@@ -676,7 +757,7 @@ impl Plant {
                     current_integrator: y[CTRL_I],
                     input_floor_v: self.charger.input_floor_v,
                 };
-                let (out, drive) = match self.charger.topology {
+                let (out, drive) = match topology {
                     Topology::BuckBoost => {
                         let out =
                             controller::control_buck_boost(&self.gains, &self.buck_boost, &input);
@@ -696,9 +777,9 @@ impl Plant {
                         (out, drive)
                     }
                     _ => {
-                        let out = controller::control(&self.gains, &self.buck, &input);
+                        let out = controller::control(&self.gains, buck, &input);
                         let drive = circuit::Drive::Switching {
-                            buck: &self.buck,
+                            buck,
                             duty: out.duty,
                         };
                         (out, drive)
@@ -717,8 +798,18 @@ impl Plant {
         }
     }
 
-    /// What the charger asks for in mode `d` at battery temperature `temp_c`.
-    fn request(&self, d: &Discrete, temp_c: f64, band: TempBand, soft: f64) -> Request {
+    /// A linear charger's thermal foldback: the fraction of its current limit its pass element's
+    /// junction temperature allows (1 for the other topologies).
+    pub fn foldback(&self, y: &State) -> f64 {
+        if self.charger.topology == Topology::Linear {
+            self.linear.thermal.foldback(y[JUNCTION_TEMP])
+        } else {
+            1.0
+        }
+    }
+
+    /// What the charger asks for in mode `d` at state `y` (battery temperature in `band`).
+    fn request(&self, d: &Discrete, y: &State, band: TempBand) -> Request {
         if !self.has_converter() {
             return Request::Direct;
         }
@@ -731,12 +822,12 @@ impl Plant {
             _ => 1.0,
         };
         Request::Charge {
-            cc_limit_a: self.charger.charge_current_a * fraction,
-            v_set: self.voltage_setpoint_v(d, temp_c),
+            cc_limit_a: self.charger.charge_current_a * fraction * self.foldback(y),
+            v_set: self.voltage_setpoint_v(d, y[BATTERY_TEMP]),
             ramp: if d.soft_done {
                 1.0
             } else {
-                soft.clamp(0.0, 1.0)
+                y[SOFT_START].clamp(0.0, 1.0)
             },
             hold,
         }
@@ -763,7 +854,7 @@ impl Plant {
         };
         dy[W_PRIME] = self
             .operator
-            .w_prime_rate(p.operator_power_w.max(0.0), y[W_PRIME]);
+            .w_prime_rate(p.operator_mean_power_w.max(0.0), y[W_PRIME]);
         dy[SOC] = p.battery_rates.soc;
         dy[V_RC] = p.battery_rates.v_rc;
         dy[GAS_PROGRESS] = p.battery_rates.progress;
@@ -788,7 +879,8 @@ impl Plant {
         dy[E_COPPER] = p.copper_w;
         dy[E_BRUSH] = p.net.brush_v * ig;
         dy[E_DIODE] = p.net.diode_v * ig;
-        dy[E_CONVERTER] = p.net.losses.total_w();
+        let losses = &p.net.losses;
+        dy[E_CONVERTER] = losses.total_w() - losses.overhead_w - losses.pass_w;
         dy[E_BATTERY_TERMINAL] = p.net.battery_v * ib;
         dy[E_BATTERY_OHMIC] = p.battery_powers.ohmic_w;
         dy[E_BATTERY_COULOMBIC] = p.battery_powers.coulombic_loss_w;
@@ -802,6 +894,15 @@ impl Plant {
         dy[CTRL_I] = p.ctrl_rates.1;
         dy[E_DEVICE] = p.bus.device_loss_w;
         dy[E_GAS] = p.battery_powers.gas_w;
+        dy[ROTOR_ANGLE] = y[GEN_SPEED];
+        dy[JUNCTION_TEMP] =
+            self.linear
+                .thermal
+                .rate_k_per_s(losses.pass_w, y[JUNCTION_TEMP], self.ambient_c);
+        dy[E_IRON] = p.iron_w;
+        dy[E_OVERHEAD] = losses.overhead_w;
+        dy[E_PASS] = losses.pass_w;
+        dy[E_COGGING] = p.cogging_w;
     }
 
     /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.
@@ -819,6 +920,11 @@ impl Plant {
                 },
             ),
         }
+    }
+
+    /// Potential energy of the generator's cogging, J.
+    pub fn cogging_j(&self, y: &State) -> f64 {
+        self.generator.cogging_energy_j(y[ROTOR_ANGLE])
     }
 
     /// Kinetic energy of crank and shaft, J.

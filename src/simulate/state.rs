@@ -3,12 +3,12 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 31;
+pub const N_STATES: usize = 37;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
 
-/// Crank angle θ, rad (for the two-phase torque ripple).
+/// Crank angle θ, rad (for the per-turn torque ripple).
 pub const CRANK_ANGLE: usize = 0;
 /// Crank speed, rad/s.
 pub const CRANK_SPEED: usize = 1;
@@ -65,6 +65,24 @@ pub const GAS_PROGRESS: usize = 29;
 /// current that escapes), J.
 pub const E_GAS: usize = 30;
 
+/// Generator rotor angle, rad (for the cogging torque; it runs on its own while the freewheel
+/// lets the shaft overrun).
+pub const ROTOR_ANGLE: usize = 31;
+/// Junction temperature of a linear charger's pass element, °C (ambient for the other
+/// topologies).
+pub const JUNCTION_TEMP: usize = 32;
+/// Energy ledger: generator iron loss, J.
+pub const E_IRON: usize = 33;
+/// Energy ledger: switching chargers' gate-drive and inductor-core loss, J.
+pub const E_OVERHEAD: usize = 34;
+/// Energy ledger: heat in a linear charger's pass element, J.
+pub const E_PASS: usize = 35;
+/// Work done against the generator's cogging torque, J: for an exact solution the change of the
+/// cogging potential (within ±2·T_c/n), which the ledger takes from the rotor angle itself. Kept
+/// as a quadrature so that Dopri5's step-size control resolves the cogging period (a step over
+/// several periods misses this integral by far more than the tolerance).
+pub const E_COGGING: usize = 36;
+
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
     y.iter().all(|v| v.is_finite())
@@ -103,4 +121,10 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "e_device_j",
     "gassing_progress",
     "e_gas_j",
+    "rotor_angle_rad",
+    "junction_temp_c",
+    "e_iron_j",
+    "e_overhead_j",
+    "e_pass_j",
+    "e_cogging_j",
 ];

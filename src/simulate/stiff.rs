@@ -21,7 +21,10 @@ use super::state::*;
 
 /// Whether state `k` is an energy-ledger quadrature (read by nothing that feeds back).
 pub const fn is_ledger(k: usize) -> bool {
-    (k >= E_OPERATOR && k <= Q_BATTERY) || k == E_DEVICE || k == E_GAS
+    (k >= E_OPERATOR && k <= Q_BATTERY)
+        || k == E_DEVICE
+        || k == E_GAS
+        || (k >= E_IRON && k <= E_COGGING)
 }
 
 const fn ledger_count() -> usize {
@@ -451,9 +454,15 @@ mod tests {
             *v = k as f64 + 0.5;
         }
         let f = flat_of(&y);
-        // The ledger: operator work through charge, the USB device's loss and the lead-acid gas.
+        // The ledger: operator work through charge, the USB device's loss, the lead-acid gas,
+        // iron, gate-drive and core, pass-element losses and the cogging work.
         let expected: Vec<f64> = (0..N_STATES)
-            .filter(|k| !(E_OPERATOR..=Q_BATTERY).contains(k) && *k != E_DEVICE && *k != E_GAS)
+            .filter(|k| {
+                !(E_OPERATOR..=Q_BATTERY).contains(k)
+                    && *k != E_DEVICE
+                    && *k != E_GAS
+                    && !(E_IRON..=E_COGGING).contains(k)
+            })
             .map(|k| k as f64 + 0.5)
             .collect();
         assert_eq!(f.to_vec(), expected);
@@ -462,5 +471,8 @@ mod tests {
         let back = state_of(&f, &State::zeros());
         assert_eq!(back[E_OPERATOR], 0.0);
         assert_eq!(back[ARMATURE_I], y[ARMATURE_I]);
+        assert_eq!(back[ROTOR_ANGLE], y[ROTOR_ANGLE]);
+        assert_eq!(back[JUNCTION_TEMP], y[JUNCTION_TEMP]);
+        assert_eq!(back[E_PASS], 0.0);
     }
 }

@@ -38,7 +38,14 @@ pub enum Transition {
     /// USB port: the running converter's bus is back at the device's reconnect voltage and the
     /// device has been off for its delay: it attaches again.
     DeviceReconnect,
+    /// Buck-boost: the buck duty it needs fell low enough to run as a buck.
+    ToBuckMode,
+    /// Buck-boost in buck mode: the buck duty rose past its limit; both switches switch again.
+    ToBuckBoostMode,
 }
+
+/// Hysteresis of the buck-boost's mode change, in buck duty.
+pub const BUCK_MODE_HYSTERESIS: f64 = 0.05;
 
 /// The first transition due at point `p` in mode `d`, if any.
 pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transition> {
@@ -55,15 +62,19 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             if c.overvoltage_shutdown && p.net.input_v > c.input_overvoltage_v {
                 return Some(Transition::OvShutdown);
             }
-            // UVLO, or sleep: an input below the battery cannot charge it.
+            // UVLO, or sleep: an input below the battery (plus a buck's switch drop) cannot
+            // charge it.
             if p.net.input_v < c.uvlo_off_v
-                || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v)
+                || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v + c.sleep_margin_v)
                 || usb_sleeps(plant, p, 0.0)
             {
                 return Some(Transition::Disable);
             }
             if !d.soft_done && y[SOFT_START] >= 1.0 {
                 return Some(Transition::SoftDone);
+            }
+            if let Some(tr) = buck_mode_due(plant, p, d) {
+                return Some(tr);
             }
             let regulating = p.cv_active && !p.net.dropout && d.soft_done;
             match (&plant.battery, d.stage) {
@@ -86,7 +97,8 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 _ => {}
             }
         } else if p.idle_input_v >= c.uvlo_on_v
-            && (!c.sleeps_below_battery || p.idle_input_v >= p.net.battery_v + SLEEP_HYSTERESIS_V)
+            && (!c.sleeps_below_battery
+                || p.idle_input_v >= p.net.battery_v + c.sleep_margin_v + SLEEP_HYSTERESIS_V)
             && !usb_sleeps(plant, p, SLEEP_HYSTERESIS_V)
             && p.t - d.disabled_at_s >= c.restart_delay_s
         {
@@ -111,6 +123,26 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
         }
     }
     None
+}
+
+/// Buck-boost: into buck mode when the buck duty for the present input, battery voltage and
+/// current is at or below the limit less [`BUCK_MODE_HYSTERESIS`]; back to switching both when it
+/// passes the limit or the buck stage is in dropout.
+fn buck_mode_due(plant: &Plant, p: &Point, d: &Discrete) -> Option<Transition> {
+    let limit = plant.charger.buck_mode_max_duty;
+    if limit <= 0.0 {
+        return None;
+    }
+    let duty = plant.buck_boost_as_buck.ccm_duty(
+        p.net.input_v,
+        p.net.battery_v,
+        p.net.battery_current_a.max(0.0),
+    );
+    if d.buck_mode {
+        (duty > limit || p.net.dropout).then_some(Transition::ToBuckBoostMode)
+    } else {
+        (duty <= limit - BUCK_MODE_HYSTERESIS).then_some(Transition::ToBuckMode)
+    }
 }
 
 /// Headroom a buck needs over its USB bus to keep running, V: with less, it sleeps (an input at
@@ -206,6 +238,11 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
         Transition::DeviceReconnect => {
             d.device_on = true;
             d.device_on_at_s = t;
+        }
+        Transition::ToBuckMode | Transition::ToBuckBoostMode => {
+            d.buck_mode = tr == Transition::ToBuckMode;
+            // The current loop's trim corrects the other stage's feed-forward duty.
+            y[CTRL_I] = 0.0;
         }
     }
 }

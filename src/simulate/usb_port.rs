@@ -108,7 +108,7 @@ impl Plant {
                 let (p, bus) = match r {
                     Request::Charge { ramp, .. } => usb_network::solve(
                         src,
-                        &self.converters(),
+                        &self.converters(d),
                         u,
                         (ramp * u.bus_v, u.port_current_a),
                         demand,
@@ -221,10 +221,17 @@ impl Plant {
                     circuit::evaluate_with_sink(src, &self.circuit, drive, &x, sink);
                 if out.duty <= 0.0 {
                     // Skipping every pulse, the running controller still draws its quiescent
-                    // current from the input (the averaged stage books it only while switching).
+                    // current from the input (the averaged stage books it only while switching);
+                    // its gate driver then rests.
                     let iq = match self.charger.topology {
-                        Topology::BuckBoost => self.buck_boost.quiescent_current_a,
-                        _ => self.buck.quiescent_current_a,
+                        Topology::BuckBoost => {
+                            let bb = &self.buck_boost;
+                            bb.quiescent_current_a - bb.overhead.gate_drive_current_a
+                        }
+                        _ => {
+                            let b = &self.buck;
+                            b.quiescent_current_a - b.overhead.gate_drive_current_a
+                        }
                     };
                     rates.input -= iq / self.circuit.input_capacitance_f;
                     p.losses.quiescent_w += x.input_v * iq;

@@ -42,7 +42,7 @@ pub const CONDUCTION_A: f64 = 0.01;
 pub struct CheckArgs {
     /// Setup file (.ron) or shipped name; none checks the embedded demo.
     pub setup: Option<String>,
-    /// Crank profile: a .ron path or a shipped name (steady, tiring, sprint-and-rest, uneven).
+    /// Crank profile: a .ron path or a shipped name (steady, tiring, sprint-and-rest, uneven, overreach).
     #[arg(long, short = 'p')]
     pub profile: Option<String>,
     /// Override a field by its dotted path, e.g. drive.stages.0.ratio=18.
@@ -244,20 +244,21 @@ pub fn run(a: &CheckArgs) -> Result<i32, Failure> {
 /// The static network of a plant: what is needed to solve operating points at a cadence.
 pub(super) struct Statics<'a> {
     pub plant: &'a Plant,
+    /// Armature resistance with the winding at ambient, Ω.
     pub resistance_ohm: f64,
+    /// Back-EMF constant with the magnets at ambient, V·s/rad.
+    pub ke_v_s_per_rad: f64,
 }
 
 impl Statics<'_> {
     /// Open-circuit EMF at a crank cadence, V.
     pub fn emf_v(&self, crank_rpm: f64) -> f64 {
-        self.plant
-            .generator
-            .emf_v(rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio)
+        self.ke_v_s_per_rad * rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio
     }
 
     /// Crank cadence at which the open-circuit EMF equals `v`, rpm.
     pub fn cadence_for_emf(&self, v: f64) -> f64 {
-        rad_s_to_rpm(v / self.plant.generator.ke_v_s_per_rad / self.plant.drive.ratio)
+        rad_s_to_rpm(v / self.ke_v_s_per_rad / self.plant.drive.ratio)
     }
 
     /// The generator side at a crank cadence (winding at ambient).
@@ -270,9 +271,14 @@ impl Statics<'_> {
         }
     }
 
-    /// The design's converter models.
+    /// The design's converter models (a buck-boost switching both sides).
     pub fn converters(&self) -> network::Converters<'_> {
-        self.plant.converters()
+        network::Converters {
+            topology: self.plant.charger.topology,
+            buck: &self.plant.buck,
+            buck_boost: &self.plant.buck_boost,
+            linear: &self.plant.linear,
+        }
     }
 
     pub(super) fn solve(&self, crank_rpm: f64, load: Load, bs: &BatteryState) -> NetworkPoint {
@@ -280,9 +286,31 @@ impl Statics<'_> {
         network::solve(&self.source(crank_rpm), load, &term)
     }
 
+    /// The charger asking for `target_a` at a cadence: a buck-boost as a buck where the buck duty
+    /// this needs stays within its buck-mode limit (as it runs there), else switching both.
+    fn charging(&self, crank_rpm: f64, target_a: f64, bs: &BatteryState) -> NetworkPoint {
+        let limit = self.plant.charger.buck_mode_max_duty;
+        if self.plant.charger.topology == Topology::BuckBoost && limit > 0.0 {
+            let as_buck = network::Converters {
+                topology: Topology::Buck,
+                buck: &self.plant.buck_boost_as_buck,
+                ..self.converters()
+            };
+            let p = self.solve(crank_rpm, self.with_floor(as_buck, target_a), bs);
+            if !p.dropout && p.balance_duty <= limit {
+                return p;
+            }
+        }
+        self.solve(crank_rpm, self.buck(target_a), bs)
+    }
+
     /// The charger asking for `target_a`, trimming it to hold its input floor when it has one.
     pub(super) fn buck(&self, target_a: f64) -> Load<'_> {
-        let conv = self.converters();
+        self.with_floor(self.converters(), target_a)
+    }
+
+    /// `conv` asking for `target_a`, trimming it to hold the input floor when there is one.
+    fn with_floor<'a>(&self, conv: network::Converters<'a>, target_a: f64) -> Load<'a> {
         match self.plant.charger.input_floor_v {
             Some(floor_v) => Load::Floored {
                 conv,
@@ -302,15 +330,20 @@ impl Statics<'_> {
         if oc < c.uvlo_on_v || (c.overvoltage_shutdown && oc > c.input_overvoltage_v) {
             return false;
         }
-        let p = self.solve(crank_rpm, self.buck(target_a), bs);
+        let p = self.charging(crank_rpm, target_a, bs);
         !p.dropout && p.input_v >= c.uvlo_off_v && p.battery_current_a >= target_a * (1.0 - 1e-9)
     }
 
-    /// Steady torque the crank must give at a cadence for a generator current, N·m.
+    /// Steady torque the crank must give at a cadence for a generator current (electromagnetic
+    /// torque, shaft friction and iron loss; cogging averages to zero over a turn), N·m.
     pub(super) fn crank_torque_n_m(&self, crank_rpm: f64, generator_current_a: f64) -> f64 {
         let d = &self.plant.drive;
+        let g = &self.plant.generator;
         let omega_g = rpm_to_rad_s(crank_rpm) * d.ratio;
-        (self.plant.generator.torque_n_m(generator_current_a) + d.friction_n_m(omega_g)) * d.ratio
+        (self.ke_v_s_per_rad * generator_current_a
+            + d.friction_n_m(omega_g)
+            + g.iron_loss_torque_n_m(omega_g))
+            * d.ratio
             / d.efficiency
     }
 }
@@ -382,6 +415,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
     let st = Statics {
         plant,
         resistance_ohm: plant.generator.resistance_ohm(ambient),
+        ke_v_s_per_rad: plant.generator.ke_at(ambient),
     };
     let bs_start = BatteryState::rested(setup.battery.soc_start, temp_start);
     let battery = &plant.battery;
@@ -450,7 +484,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
                 let on =
                     oc >= c.uvlo_on_v && !(c.overvoltage_shutdown && oc > c.input_overvoltage_v);
                 let p = if on {
-                    st.solve(r, st.buck(start_target), &bs_start)
+                    st.charging(r, start_target, &bs_start)
                 } else {
                     st.solve(r, Load::Off, &bs_start)
                 };
@@ -534,6 +568,18 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         }
     } else {
         notes.push("The profile never asks for a cadence above zero.".to_string());
+    }
+    if let (Topology::Linear, Some(at)) = (plant.charger.topology, &at_profile) {
+        // Lumped junction: steady rise P·θ_ja above ambient.
+        let th = &plant.linear.thermal;
+        let p = (at.input_v - at.battery_v).max(0.0) * at.battery_current_a.max(0.0);
+        let tj = ambient + p * th.theta_ja_k_per_w;
+        if tj > th.foldback_c {
+            notes.push(format!(
+                "At the profile's cadence the pass element dissipates {p:.1} W: its junction would settle near {tj:.0} °C (θ_ja {:.1} K/W), past the {:.0} °C foldback, so the charge current will be cut back. A heatsink (lower θ_ja) keeps the full current.",
+                th.theta_ja_k_per_w, th.foldback_c
+            ));
+        }
     }
     if matches!(band, TempBand::Cool | TempBand::Warm) {
         notes.push(format!(

@@ -329,6 +329,7 @@ pub(super) fn statics<'a>(sc: &Scenario, plant: &'a Plant) -> Statics<'a> {
     Statics {
         plant,
         resistance_ohm: plant.generator.resistance_ohm(sc.setup.ambient_c),
+        ke_v_s_per_rad: plant.generator.ke_at(sc.setup.ambient_c),
     }
 }
 

@@ -160,6 +160,8 @@ fn first_non_finite(r: &SimResult) -> Option<f64> {
             row.soc,
             row.battery_temp_c,
             row.operator_power_w,
+            row.operator_mean_power_w,
+            row.junction_temp_c,
             row.charge_limit_v,
             row.operator_torque_n_m,
             row.w_prime_balance_j,
@@ -240,6 +242,7 @@ pub fn timing(a: &Alerts, kind: EventKind) -> Timing {
         }
         EventKind::DeviceCutoff => (a.device_cutoff.dwell_s, a.device_cutoff.merge_gap_s),
         EventKind::ModelRange => (a.model_range.dwell_s, a.model_range.merge_gap_s),
+        EventKind::ThermalFoldback => (a.thermal_foldback.dwell_s, a.thermal_foldback.merge_gap_s),
         // A period from the termination to the session end: every one is a row.
         EventKind::ChargeComplete => (0.0, 0.0),
     };
@@ -422,7 +425,7 @@ fn summarise(
         } else {
             0.0
         },
-        peak_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
+        peak_operator_power_w: fold_max(|r| r.operator_mean_power_w).max(0.0),
         in_regulation_fraction: in_regulation,
         regulation_loss_s: regulated.then_some(regulation_loss),
         overcharge_s,
@@ -473,6 +476,7 @@ fn summarise(
         ledger: *led,
         solver: r.stats,
         usb: usb_summary(sc, r),
+        peak_instant_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
     }
 }
 

@@ -58,7 +58,13 @@ MODEL_CONSTANTS = {
     # Copper temperature coefficient at 20 °C (Dellinger 1911; REFERENCES.md §4).
     "copper_alpha_per_k": (0.00393, "src/model/generator.rs", r"COPPER_ALPHA_PER_K: f64 = " + NUM),
     # Brush drop smoothing current V_b·tanh(i/i_s), A.
-    "brush_smooth_a": (0.02, "src/model/generator.rs", r"BRUSH_SMOOTH_A: f64 = " + NUM),
+    "brush_smooth_a": (0.2, "src/model/generator.rs", r"BRUSH_SMOOTH_A: f64 = " + NUM),
+    # Hysteresis (iron-loss) drag smoothing τ_h·tanh(ω/ω_s), rad/s.
+    "iron_smooth_rad_s": (0.5, "src/model/generator.rs", r"IRON_SMOOTH_RAD_S: f64 = " + NUM),
+    # Temperature at which the back-EMF constant is given, °C.
+    "ke_reference_c": (20.0, "src/model/generator.rs", r"KE_REFERENCE_C: f64 = " + NUM),
+    # The core-loss current P_core/V_in is held at P_core/this below it, V.
+    "core_loss_min_v": (1.0, "src/model/converter.rs", r"CORE_LOSS_MIN_V: f64 = " + NUM),
     # Coulomb friction at the shaft τ_c·tanh(ω/ω_s), rad/s.
     "friction_smooth_rad_s": (0.5, "src/model/drive.rs", r"FRICTION_SMOOTH_RAD_S: f64 = " + NUM),
     # Crank bearing friction τ_b·tanh(ω_c/ω_s), N·m and rad/s.
@@ -191,6 +197,8 @@ SETUP_FIELDS = {
               "freewheel": "false", "stages[].ratio": None, "stages[].efficiency": None},
     "generator": {"back_emf_v_per_krpm": None, "resistance_ohm": None, "inductance_h": 1e-3,
                   "inertia_kg_m2": None, "brush_drop_v": 0.0,
+                  "hysteresis_loss_w_per_krpm": 0.0, "eddy_loss_w_per_krpm2": 0.0,
+                  "back_emf_tempco_pct_per_k": -0.2, "cogging_torque_n_m": 0.0,
                   "winding_heat_capacity_j_per_k": 60.0, "winding_to_ambient_w_per_k": 0.8},
     "diode": {"kind": "(word)", "points[].current_a": None, "points[].forward_v": None,
               "series_resistance_ohm": 0.0},
@@ -198,7 +206,8 @@ SETUP_FIELDS = {
                   "switch_drop_v": 0.0, "switch_resistance_ohm": 0.0,
                   "catch_diode_drop_v": 0.45, "inductor_resistance_ohm": 0.0,
                   "inductance_h": 47e-6, "switching_frequency_hz": 150e3,
-                  "switch_transition_s": 0.0, "quiescent_current_a": 0.0, "uvlo_on_v": 0.0,
+                  "switch_transition_s": 0.0, "quiescent_current_a": 0.0,
+                  "gate_charge_c": 0.0, "core_loss_w": 0.0, "uvlo_on_v": 0.0,
                   "uvlo_off_v": 0.0, "soft_start_s": 0.05, "input_overvoltage_v": 40.0,
                   "input_capacitance_f": 470e-6, "output_capacitance_f": 100e-6,
                   "cv_setpoint_v": "(battery limit)", "termination_current_a": "(C/10)"},
@@ -333,6 +342,12 @@ class Model:
         self.r20 = S["generator.resistance_ohm"]
         self.la = max(S["generator.inductance_h"], 1e-6)
         self.vb = S["generator.brush_drop_v"]
+        # Iron loss P = k_h·(n/1000 rpm) + k_e·(n/1000 rpm)² (hysteresis ∝ f, eddy ∝ f²) as a drag
+        # torque P/ω; magnets: k_e(T) = k_e·(1 + c·(T − 20 °C)/100) with the winding's T.
+        self.k_hyst = S["generator.hysteresis_loss_w_per_krpm"]
+        self.k_eddy = S["generator.eddy_loss_w_per_krpm2"]
+        self.ke_tc = S["generator.back_emf_tempco_pct_per_k"] / 100.0
+        assert S["generator.cogging_torque_n_m"] == 0.0, "cogging is not modelled here"
         self.cw = S["generator.winding_heat_capacity_j_per_k"]
         self.gw = S["generator.winding_to_ambient_w_per_k"]
         # Protection diode from its two datasheet points.
@@ -349,7 +364,10 @@ class Model:
         self.lb = S[k + "inductance_h"]
         self.fs = S[k + "switching_frequency_hz"]
         self.ttr = S[k + "switch_transition_s"]
-        self.iq = S[k + "quiescent_current_a"]
+        # The controller's quiescent draw plus the gate driver's Q_g·f_sw (one switch), and the
+        # inductor's core loss taken from the input while the buck switches.
+        self.iq = S[k + "quiescent_current_a"] + S[k + "gate_charge_c"] * S[k + "switching_frequency_hz"]
+        self.p_core = S[k + "core_loss_w"]
         self.uvlo_on = S[k + "uvlo_on_v"]
         self.uvlo_off = S[k + "uvlo_off_v"]
         self.t_soft = S[k + "soft_start_s"]
@@ -449,7 +467,8 @@ class Model:
         cranking = planned > 0.0
 
         # Generator, protection diode, armature inductance: L·di/dt = E − i·R(T) − V_b − V_D − v_in.
-        emf = self.ke * wg
+        ke = max(self.ke * (1.0 + self.ke_tc * (tw - self.c["ke_reference_c"])), 0.0)
+        emf = ke * wg
         r_w = self.r20 * (1.0 + self.c["copper_alpha_per_k"] * (tw - 20.0))
         i_a = max(i_raw, 0.0)
         brush = self.vb * math.tanh(i_a / self.c["brush_smooth_a"]) if self.vb else 0.0
@@ -503,13 +522,17 @@ class Model:
             di_l = 0.0
         if duty > 0.0:
             share = duty / (duty + d2) if duty + d2 > 0.0 else 1.0
-            i_in = share * il + self.iq + 0.5 * il * self.ttr * self.fs
+            i_in = (share * il + self.iq + 0.5 * il * self.ttr * self.fs
+                    + self.p_core / max(v_in, self.c["core_loss_min_v"]))
         else:
             i_in = 0.0
 
         # Mechanics: operator torque = clamp(PI + feed-forward, 0, envelope).
-        tau_em = self.ke * i_a
+        tau_em = ke * i_a
         tau_fric = self.tau_c * math.tanh(wg / self.c["friction_smooth_rad_s"]) + self.b * wg
+        w1 = 1000.0 * RPM
+        tau_iron = (self.k_hyst / w1 * math.tanh(wg / self.c["iron_smooth_rad_s"])
+                    + self.k_eddy * wg / (w1 * w1))
         bearing = self.c["crank_bearing_n_m"] * math.tanh(wc / self.c["crank_bearing_smooth_rad_s"])
         w_t = target_rpm * RPM
         w_prime = y[self.W_PRIME]
@@ -530,7 +553,7 @@ class Model:
         # Rigid belt: J_c·ω̇_c = τ_op − τ_bearing − τ_belt and J_s·N·ω̇_c = τ_shaft − τ_load, with
         # τ_shaft = η·τ_belt/N when power flows forward (τ_belt ≥ 0), τ_belt/(η·N) when it reverses.
         tau_in = tau_op - bearing
-        load = tau_em + tau_fric
+        load = tau_em + tau_fric + tau_iron
         acc = (tau_in - self.n / self.eta * load) / (self.jc + self.n ** 2 * self.js / self.eta)
         if tau_in - self.jc * acc < 0.0:
             acc = (tau_in - self.n * self.eta * load) / (self.jc + self.n ** 2 * self.js * self.eta)
@@ -647,13 +670,16 @@ def run(m, duration, grid_dt, rtol, atol_all, method="Radau", max_step=0.01, sta
             ev_names.append(name)
 
         # UVLO with hysteresis, and sleep: the charger needs its input at or above uvlo_on_v and
-        # sleep_hysteresis_v above the battery (the output capacitor) to start; it stops when the
-        # input falls below uvlo_off_v or below the battery.
+        # sleep_hysteresis_v above the battery (the output capacitor) plus its switch drop (below
+        # V_o + V_sw no duty pushes current) to start; it stops when the input falls below
+        # uvlo_off_v or below the battery plus the switch drop.
         hyst = m.c["sleep_hysteresis_v"]
         if not enabled:
-            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_on, yy[m.V_O] + hyst), True, 1.0, "enable")
+            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_on, yy[m.V_O] + m.vsw + hyst), True, 1.0,
+                 "enable")
         else:
-            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_off, yy[m.V_O]), True, -1.0, "disable")
+            make(lambda tt, yy: yy[m.V_IN] - max(m.uvlo_off, yy[m.V_O] + m.vsw), True, -1.0,
+                 "disable")
             if not soft_done:
                 make(lambda tt, yy: yy[m.SOFT] - 1.0, True, 1.0, "soft_start_done")
             # Not mode changes, only reported: the duty command meeting and leaving D_max.

@@ -205,12 +205,12 @@ impl LiIonModel {
     }
 }
 
-/// Charge-temperature band after the JEITA-style guideline.
 /// Rate of the Thevenin RC-branch voltage, dV_RC/dt = I/C1 − V_RC/(R1·C1), V/s (Plett 2015, ch. 2).
 pub fn rc_branch_rate(i: f64, v_rc_v: f64, r1_ohm: f64, c1_f: f64) -> f64 {
     i / c1_f - v_rc_v / (r1_ohm * c1_f)
 }
 
+/// Charge-temperature band after the JEITA-style guideline.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum TempBand {
     /// Below the minimum: no charge.
