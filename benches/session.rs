@@ -1,8 +1,9 @@
 //! Session benchmark: wall time (and its equivalent per 10-minute session), steps, right-hand-side
 //! evaluations and ns per evaluation, Jacobians, LU decompositions and real-time factor per
 //! shipped setup, fidelity and integration method, peak memory of long runs, and a whole design
-//! search. Prints five tables; run with `cargo bench --bench session` (`-- --quick` for short
-//! spans, `-- --memory` or `-- --search` for that table alone).
+//! search, and the fidelity matrix of the shipped files. Prints six tables; run with `cargo bench
+//! --bench session` (`-- --quick` for short spans, `-- --memory`, `-- --matrix` or `-- --search`
+//! for that table alone).
 //!
 //! 1. Whole sessions through the engine (events located, trace sampled, ledger), steady profile.
 //! 2. The golden 3-s detailed scenario against the committed scipy Radau reference: worst trace
@@ -13,6 +14,8 @@
 //!    in units of the tolerance (≤ 1 is as asked).
 //! 4. Peak resident memory (VmHWM) and wall time of whole `run` processes (the real binary, fast
 //!    fidelity, no charts) of 8 hours and 7 days, with the machine they ran on.
+//! 6. Every shipped setup with every shipped profile at both fidelities, whole sessions as
+//!    whole processes (median wall time, charge, verdicts); alone with `-- --matrix`.
 //! 5. The README's 3-axis `search` on the demo with 64 operators a point, the whole study (grid,
 //!    refinement, files) as the command runs it; target: under 2 minutes on the 2-core machine.
 //!
@@ -91,14 +94,110 @@ fn main() {
         memory(quick);
         return;
     }
+    if std::env::args().any(|a| a == "--matrix") {
+        matrix(quick);
+        return;
+    }
     // `-- --search` runs the search table alone.
     if !std::env::args().any(|a| a == "--search") {
         sessions(quick);
         accuracy();
         stretch(quick);
         memory(quick);
+        matrix(quick);
     }
     search_study(quick);
+}
+
+/// Table 6: every shipped setup with every shipped crank profile, whole default sessions as a user
+/// runs them (`run --no-plot --quiet`, the real binary): median wall time of 3 processes at each
+/// fidelity, the charge each delivers and the verdicts. The fidelities promise the same verdict
+/// and charge within 0.5 % (README); the detailed fidelity should finish any session within 20 s.
+fn matrix(quick: bool) {
+    let repeats = if quick { 1 } else { 3 };
+    let list = |dir: &str| -> Vec<std::path::PathBuf> {
+        let mut v: Vec<_> = std::fs::read_dir(dir)
+            .expect("shipped files")
+            .filter_map(|e| e.ok().map(|e| e.path()))
+            .filter(|p| p.extension().is_some_and(|x| x == "ron"))
+            .collect();
+        v.sort();
+        v
+    };
+    let root = env!("CARGO_MANIFEST_DIR");
+    let setups = list(&format!("{root}/profiles/setups"));
+    let profiles = list(&format!("{root}/profiles/cranking"));
+    let out = tempfile::tempdir().expect("temp dir");
+    println!();
+    println!(
+        "Fast against detailed, whole default sessions (median of {repeats} whole `run` processes)"
+    );
+    println!("machine: {}", machine());
+    println!(
+        "{:<18} {:<16} {:>9} {:>9} {:>11} {:>11} {:>9}  verdicts",
+        "setup", "profile", "fast [s]", "det. [s]", "fast [Ah]", "det. [Ah]", "diff [%]"
+    );
+    let stem = |p: &std::path::Path| p.file_stem().unwrap().to_string_lossy().into_owned();
+    let mut slowest: f64 = 0.0;
+    for s in &setups {
+        for p in &profiles {
+            let mut row = Vec::new();
+            for fidelity in ["fast", "detailed"] {
+                let dir = out
+                    .path()
+                    .join(format!("{}-{}-{fidelity}", stem(s), stem(p)));
+                let mut walls = Vec::new();
+                for _ in 0..repeats {
+                    let started = Instant::now();
+                    let status = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
+                        .arg("run")
+                        .arg(s)
+                        .arg("--profile")
+                        .arg(p)
+                        .args([
+                            "--fidelity",
+                            fidelity,
+                            "--no-plot",
+                            "--quiet",
+                            "--force",
+                            "--out",
+                        ])
+                        .arg(&dir)
+                        .stdout(std::process::Stdio::null())
+                        .stderr(std::process::Stdio::null())
+                        .status()
+                        .expect("spawn crankcharge");
+                    walls.push(started.elapsed().as_secs_f64());
+                    assert!(status.code().is_some_and(|c| c <= 1), "{dir:?}: {status}");
+                }
+                walls.sort_by(f64::total_cmp);
+                let summary: serde_json::Value = serde_json::from_slice(
+                    &std::fs::read(dir.join("summary.json")).expect("summary.json"),
+                )
+                .expect("json");
+                row.push((
+                    walls[walls.len() / 2],
+                    summary["charge_delivered_ah"].as_f64().unwrap_or(f64::NAN),
+                    summary["verdict"].to_string(),
+                ));
+            }
+            let (f, d) = (&row[0], &row[1]);
+            slowest = slowest.max(d.0);
+            println!(
+                "{:<18} {:<16} {:>9.3} {:>9.3} {:>11.5} {:>11.5} {:>+9.3}  {} / {}",
+                stem(s),
+                stem(p),
+                f.0,
+                d.0,
+                f.1,
+                d.1,
+                100.0 * (f.1 / d.1 - 1.0),
+                f.2,
+                d.2
+            );
+        }
+    }
+    println!("slowest detailed session: {slowest:.2} s (target: 20 s)");
 }
 
 /// Table 4: peak resident memory of whole `run` processes, read from /proc/PID/status (VmHWM)
