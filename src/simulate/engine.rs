@@ -13,6 +13,7 @@ use crate::analysis::events::Event;
 use crate::analysis::trace::{Mode, Trace, TraceRow};
 use crate::units::rad_s_to_rpm;
 
+pub use super::fidelity::Fidelity;
 use super::observe::{codes, Codes, Observer};
 use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
@@ -114,26 +115,6 @@ impl Method {
             (Method::Dopri5, Fidelity::Fast) => MAX_SEGMENT_FAST_S,
             (Method::Dopri5, Fidelity::Detailed) => MAX_SEGMENT_EXPLICIT_DETAILED_S,
             _ => f64::INFINITY,
-        }
-    }
-}
-
-/// Model fidelity.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
-#[serde(rename_all = "snake_case")]
-pub enum Fidelity {
-    /// Fast electrical states solved algebraically (default).
-    Fast,
-    /// Every electrical state integrated.
-    Detailed,
-}
-
-impl Fidelity {
-    /// The word used in summaries.
-    pub fn as_str(self) -> &'static str {
-        match self {
-            Fidelity::Fast => "fast",
-            Fidelity::Detailed => "detailed",
         }
     }
 }

@@ -1,6 +1,7 @@
 //! Time integration of the plant: segments between located events, fixed-grid trace sampling.
 
 pub mod engine;
+pub mod fidelity;
 pub mod observe;
 pub mod plant;
 pub mod progress;

@@ -18,7 +18,7 @@ use crate::scenario::profile::Profile;
 use crate::scenario::setup::{Alerts, Setup, Topology};
 use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
 
-use super::engine::Fidelity;
+use super::fidelity::Fidelity;
 use super::state::*;
 use super::usb_port::{device_charger, usb_gains, usb_in_regulation};
 

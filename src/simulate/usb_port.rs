@@ -12,7 +12,7 @@ use crate::model::usb::{BusPoint, UsbModel};
 use crate::model::usb_network;
 use crate::scenario::setup::{Setup, Topology, UsbPort};
 
-use super::engine::Fidelity;
+use super::fidelity::Fidelity;
 use super::plant::{Charger, Discrete, Plant, Request};
 use super::state::*;
 

@@ -13,7 +13,7 @@ use crate::model::usb_network;
 use crate::simulate::plant::Plant;
 use crate::simulate::transitions::USB_SLEEP_MARGIN_V;
 
-use super::check::{first_cadence, Statics, MAX_SEARCH_RPM};
+use super::statics::{first_cadence, Statics, MAX_SEARCH_RPM};
 
 /// USB port figures. Cadences are crank cadences, rpm, with the converter running (once UVLO has
 /// released it, which `unlock_cadence_rpm` gives); None: not reached below the search limit.

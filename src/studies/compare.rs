@@ -12,17 +12,17 @@ use anyhow::anyhow;
 use clap::Args;
 use rayon::prelude::*;
 
+use super::outcome::{parse_duration, say, Failure, EXIT_OK, EXIT_SIM};
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
-use crate::cli::{parse_duration, say, Failure, EXIT_OK, EXIT_SIM};
 use crate::output::csv::table_csv;
 use crate::output::rundir::Staging;
 use crate::output::{plot, report};
 use crate::scenario::load::Override;
 use crate::scenario::Scenario;
 
+use super::args::{scenario_from, session_or_failure, settings_from, FidelityArg, SessionArgs};
 use super::check::build_plant;
 use super::pages;
-use super::run::{scenario_from, session_or_failure, settings_from, FidelityArg, SessionArgs};
 use super::session::Session;
 
 /// Arguments of `compare`.

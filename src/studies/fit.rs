@@ -13,8 +13,8 @@ use anyhow::anyhow;
 use clap::Args;
 use serde::Serialize;
 
+use super::outcome::{say, Failure, EXIT_OK};
 use crate::analysis::fit::{fit_generator, GeneratorFit, Measurement};
-use crate::cli::{say, Failure, EXIT_OK};
 use crate::model::generator::COPPER_ALPHA_PER_K;
 use crate::text::{excerpt, EXCERPT_CHARS};
 

@@ -10,10 +10,11 @@ use std::path::{Path, PathBuf};
 use anyhow::anyhow;
 use clap::Args;
 
-use crate::cli::{Failure, EXIT_OK};
+use super::outcome::{Failure, EXIT_OK};
 
-use super::search::{open_folder, Settings, Study, POINTS_FILE, SETTINGS_FILE};
-use super::search_finish::{self, journal_cells};
+use super::search::open_folder;
+use super::search_finish;
+use super::search_study::{Settings, Study, POINTS_FILE, SETTINGS_FILE};
 use super::search_table::{self, Journal, Row};
 use super::space::parse_shard;
 
@@ -150,7 +151,7 @@ pub fn run(a: &MergeArgs) -> Result<i32, Failure> {
         &header,
         &rows
             .iter()
-            .map(|r| journal_cells(&study, r))
+            .map(|r| study.journal_cells(r))
             .collect::<Vec<_>>(),
     )
     .map_err(Failure::Other)?;

@@ -20,19 +20,19 @@ use rand_distr::{Distribution, StandardNormal};
 use rayon::prelude::*;
 use serde::Serialize;
 
+use super::outcome::{say, Failure, EXIT_OK};
 use crate::analysis::events::EventKind;
 use crate::analysis::stats;
 use crate::analysis::summary::{fmt, Summary, MARGINAL, SCALAR_KEYS};
-use crate::cli::{say, Failure, EXIT_OK};
 use crate::output::csv::table_csv;
 use crate::output::json::to_json;
 use crate::output::rundir::Staging;
 use crate::output::{plot, report};
 use crate::scenario::Scenario;
 
+use super::args::{scenario_from, session_or_failure, settings_from, SessionArgs};
 use super::check::build_plant;
 use super::pages;
-use super::run::{scenario_from, session_or_failure, settings_from, SessionArgs};
 
 /// Most runs one study may have.
 pub const MAX_RUNS: usize = 100_000;

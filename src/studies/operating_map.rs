@@ -25,8 +25,9 @@ use crate::scenario::Scenario;
 use crate::simulate::plant::Plant;
 use crate::units::rpm_to_rad_s;
 
-use super::check::{Report, Statics, CONDUCTION_A};
+use super::check_report::{CadenceRange, Report, CONDUCTION_A};
 use super::check_usb::{self, UsbStatics};
+use super::statics::Statics;
 
 /// Standard deviations of the population taken into the range (≈ 95 % of operators inside).
 const POPULATION_SIGMAS: f64 = 2.0;
@@ -36,25 +37,6 @@ const WANDER_SAMPLE_S: f64 = 0.25;
 const FATIGUE_STEP_RPM: f64 = 0.25;
 /// Most rows of a map (the step grows for a wide range).
 const MAX_ROWS: usize = 400;
-
-/// The cadence range a profile produces, and where its ends come from.
-#[derive(Debug, Clone, Serialize, PartialEq)]
-pub struct CadenceRange {
-    /// Lowest and highest planned target while cranking (rests left out), rpm.
-    pub planned_low_rpm: f64,
-    pub planned_high_rpm: f64,
-    /// Lowest and highest drawn wander over the session (profile's seed), rpm.
-    pub wander_low_rpm: f64,
-    pub wander_high_rpm: f64,
-    /// The population's cadence offsets taken into the range (±2σ), rpm.
-    pub population_rpm: f64,
-    /// Cadence a weak, tired operator holds (crank power = CP − 2σ), when below the planned
-    /// low end, rpm.
-    pub fatigue_rpm: Option<f64>,
-    /// The range checked, rpm.
-    pub low_rpm: f64,
-    pub high_rpm: f64,
-}
 
 /// One row of `operating_map.csv`.
 #[derive(Debug, Clone, Serialize, PartialEq)]

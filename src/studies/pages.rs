@@ -6,7 +6,7 @@ use crate::analysis::summary::{percent_or_na, Summary};
 use crate::output::report::{Block, Page};
 use crate::scenario::Scenario;
 
-use super::check::cautions;
+use super::cautions::cautions;
 
 /// The line under every page's title: what made it.
 fn made_by(what: &str) -> String {
@@ -191,7 +191,7 @@ pub fn run_page(sc: &Scenario, m: &Summary, svg: Option<&str>) -> Page {
     }
     b.push(Block::Paragraph(format!(
         "Thresholds: {}. A row is a quantity past its threshold for at least the dwell of its kind; rows of one kind closer than the merge gap are one (the setup's alerts section, echoed in summary.json as alert_rules).",
-        super::run::thresholds_digest(m)
+        super::digest::thresholds_digest(m)
     )));
     as_run_and_cautions(sc, &mut b);
     Page {

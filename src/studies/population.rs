@@ -5,15 +5,15 @@
 
 use rayon::prelude::*;
 
+use super::outcome::Failure;
 use crate::analysis::events::EventKind;
 use crate::analysis::stats;
-use crate::cli::Failure;
 use crate::scenario::Scenario;
 use crate::units::v_per_krpm_to_v_s_per_rad;
 
+use super::args::session_or_failure;
 use super::goal::Sense;
 use super::montecarlo::{draw_operator, run_seed, with_draw};
-use super::run::session_or_failure;
 use super::session::RunSettings;
 
 /// The normal quantile of a two-sided 95 % interval.

@@ -17,11 +17,10 @@ use std::collections::HashMap;
 use argmin::core::{CostFunction, Executor};
 use argmin::solver::neldermead::NelderMead;
 
-use crate::cli::Failure;
+use super::outcome::Failure;
 
 use super::progress::CountBar;
-use super::search::Study;
-use super::search_finish::journal_cells;
+use super::search_study::Study;
 use super::search_table::{Journal, Origin, Row};
 use super::space::{Design, QUANTUM};
 
@@ -111,7 +110,7 @@ impl CostFunction for Objective<'_, '_> {
                 values: values.clone(),
                 figures,
             };
-            let cells = journal_cells(self.study, &r);
+            let cells = self.study.journal_cells(&r);
             if let Err(e) = m.journal.add(&cells) {
                 m.error.get_or_insert(Failure::Other(e));
             }

@@ -2,60 +2,16 @@
 
 use std::path::PathBuf;
 
-use anyhow::anyhow;
 use clap::Args;
 
-use crate::analysis::events::{Event, EventKind};
-use crate::analysis::summary::{Summary, MARGINAL};
-use crate::cli::{parse_duration, say, Failure, EXIT_FLAGGED, EXIT_OK};
+use super::outcome::{say, Failure, EXIT_FLAGGED, EXIT_OK};
+use crate::analysis::summary::MARGINAL;
 use crate::output::{csv, json, report, rundir::Staging};
-use crate::scenario::load::{InputKind, Override};
-use crate::scenario::{limits, load_scenario, Scenario, SourceText};
-use crate::simulate::{Fidelity, Method};
+use crate::scenario::Scenario;
 
-use super::session::{run_session, run_session_watched, RunSettings, Session, SessionError};
-
-/// Options shared by every command that runs sessions.
-#[derive(Debug, Clone, Args)]
-pub struct SessionArgs {
-    /// Crank profile: a .ron path or a shipped name (steady, tiring, sprint-and-rest, uneven, overreach).
-    #[arg(long, short = 'p')]
-    pub profile: Option<String>,
-    /// Seed of the operator's jitter (default: the profile's seed).
-    #[arg(long)]
-    pub seed: Option<u64>,
-    /// Session length, e.g. 600, 10min, 2h (default: the profile's segments).
-    #[arg(long, value_parser = parse_duration)]
-    pub duration: Option<f64>,
-    /// Override a field by its dotted path, e.g. drive.stages.0.ratio=18 or profile.cadence_scale=0.8.
-    #[arg(long = "set", value_name = "KEY=VALUE")]
-    pub set: Vec<Override>,
-    /// Model fidelity: fast (default) or detailed.
-    #[arg(long, value_enum, default_value = "fast")]
-    pub fidelity: FidelityArg,
-    /// Replace the output folder even if crankcharge did not write it (its files are lost).
-    #[arg(long)]
-    pub force: bool,
-    /// No progress bar (it is drawn only on a terminal, for work longer than about 2 s).
-    #[arg(long, short = 'q')]
-    pub quiet: bool,
-}
-
-/// Fidelity as a command-line word.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
-pub enum FidelityArg {
-    Fast,
-    Detailed,
-}
-
-impl From<FidelityArg> for Fidelity {
-    fn from(f: FidelityArg) -> Self {
-        match f {
-            FidelityArg::Fast => Fidelity::Fast,
-            FidelityArg::Detailed => Fidelity::Detailed,
-        }
-    }
-}
+use super::args::{scenario_from, session_with_bar, settings_from, SessionArgs};
+use super::digest::{rows_digest, thresholds_digest};
+use super::session::Session;
 
 /// Arguments of `run`.
 #[derive(Debug, Clone, Args)]
@@ -73,55 +29,6 @@ pub struct RunArgs {
     /// Skip the charts (trace, events and summary only).
     #[arg(long)]
     pub no_plot: bool,
-}
-
-/// Loads the scenario named by a setup argument and the shared session options.
-pub fn scenario_from(setup: Option<&str>, s: &SessionArgs) -> Result<Scenario, Failure> {
-    let setup_src =
-        SourceText::resolve(setup, InputKind::Setup).map_err(|e| Failure::Input(e.into()))?;
-    let profile_src = SourceText::resolve(s.profile.as_deref(), InputKind::Profile)
-        .map_err(|e| Failure::Input(e.into()))?;
-    let sc =
-        load_scenario(&setup_src, &profile_src, &s.set).map_err(|e| Failure::Input(e.into()))?;
-    super::progress::warn(limits::check(&sc, s.duration).map_err(|e| Failure::Input(e.into()))?);
-    Ok(sc)
-}
-
-/// Run settings from the shared options.
-pub fn settings_from(s: &SessionArgs) -> RunSettings {
-    RunSettings {
-        duration_s: s.duration,
-        seed: s.seed,
-        fidelity: s.fidelity.into(),
-        cadence_offset_rpm: 0.0,
-    }
-}
-
-/// Runs a session, classifying failures by exit code.
-pub fn session_or_failure(sc: &Scenario, rs: &RunSettings) -> Result<Session, Failure> {
-    classify(sc, run_session(sc, rs))
-}
-
-/// Runs a session with a progress bar (see `progress::with_session_bar`), classifying failures.
-pub fn session_with_bar(sc: &Scenario, rs: &RunSettings, quiet: bool) -> Result<Session, Failure> {
-    let length = rs
-        .duration_s
-        .unwrap_or_else(|| sc.profile.total_duration_s());
-    super::progress::with_session_bar(quiet, length, |p| {
-        classify(
-            sc,
-            run_session_watched(sc, rs, Method::for_fidelity(rs.fidelity), Some(p)),
-        )
-    })
-}
-
-/// Failures by exit code: bad input 2, a failed or law-breaking simulation 3.
-fn classify(sc: &Scenario, r: Result<Session, SessionError>) -> Result<Session, Failure> {
-    r.map_err(|e| match e {
-        SessionError::Setup(m) => Failure::Input(anyhow!("{}: {m}", sc.setup_source.name)),
-        SessionError::Sim(s) => Failure::Sim(anyhow!("simulation failed: {s}")),
-        SessionError::Broken(b) => Failure::Sim(anyhow!("simulation failed: {b}")),
-    })
 }
 
 /// Executes `run`.
@@ -245,50 +152,4 @@ fn report(s: &Session, dir: &std::path::Path) {
         say("    a single operator cannot decide a marginal figure: run `crankcharge montecarlo` on this setup for the spread over operators");
     }
     say(&format!("  wrote {}", dir.display()));
-}
-
-/// One line naming the rows by kind: verdict-affecting alerts first, then informational episodes
-/// with their total time.
-pub fn rows_digest(m: &Summary) -> String {
-    let mut parts = Vec::new();
-    for (rows, verdict) in [(&m.alerts, true), (&m.episodes, false)] {
-        for kind in EventKind::ALL {
-            let of: Vec<&Event> = rows.iter().filter(|e| e.kind == kind).collect();
-            if of.is_empty() {
-                continue;
-            }
-            let total: f64 = of.iter().map(|e| e.duration_s).sum();
-            let name = kind.as_str().replace('_', "-");
-            parts.push(if verdict {
-                format!("{} {name} episode(s), {total:.1} s (verdict)", of.len())
-            } else {
-                format!("{} {name} episode(s), {total:.1} s", of.len())
-            });
-        }
-    }
-    if parts.is_empty() {
-        "no alerts or episodes".to_string()
-    } else {
-        parts.join("; ")
-    }
-}
-
-/// The thresholds the verdict used, in one line.
-pub fn thresholds_digest(m: &Summary) -> String {
-    let a = &m.alert_rules;
-    let mut s = format!(
-        "overcharge above {:.3} V (limit + {:.3} V/cell) for {} s",
-        m.overcharge_threshold_v, a.overcharge.tolerance_v_per_cell, a.overcharge.dwell_s
-    );
-    if m.in_regulation_fraction.is_some() {
-        s.push_str(&format!(
-            "; regulation at least {:.0} % of cranking time",
-            100.0 * a.min_in_regulation_fraction
-        ));
-    }
-    s.push_str(&format!(
-        "; marginal within {:.3} V / {:.3}",
-        a.overcharge_decision_band_v, a.regulation_decision_band
-    ));
-    s
 }

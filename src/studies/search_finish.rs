@@ -11,8 +11,8 @@ use std::path::Path;
 use anyhow::anyhow;
 use serde::Serialize;
 
+use super::outcome::{say, Failure};
 use crate::analysis::pareto::non_dominated;
-use crate::cli::{say, Failure};
 use crate::output::plot::design::{self as charts, AxisPanel, ParetoData, PointsData};
 use crate::scenario::load::PROFILE_PREFIX;
 use crate::scenario::ronpath;
@@ -20,7 +20,7 @@ use crate::scenario::{load_scenario, SourceText};
 
 use super::goal::{Binding, Constraint};
 use super::refine::{self, cost};
-use super::search::{is_profile_key, write_atomic, Study, POINTS_FILE};
+use super::search_study::{is_profile_key, write_atomic, Study, POINTS_FILE};
 use super::search_table::{self, cells, Journal, Origin, Row};
 use super::space::{Axis, AxisKind, Design};
 
@@ -36,15 +36,6 @@ pub const OUTPUT_FILES: [&str; 9] = [
     "pareto.png",
     "pareto.svg",
 ];
-
-/// The cells of a row while the study runs (the Pareto cell is filled at the end).
-pub fn journal_cells(study: &Study, row: &Row) -> Vec<String> {
-    cells(
-        row,
-        study.pareto.as_ref().map(|_| None),
-        study.feasible(row),
-    )
-}
 
 /// A varied key and its value.
 #[derive(Debug, Clone, Serialize, PartialEq)]

@@ -18,7 +18,7 @@ use crate::simulate::{
     simulate_watched, Fidelity, Method, Progress, SimError, SimOptions, SimResult,
 };
 
-use super::check;
+use super::check_report;
 
 /// How to run a session beyond what the files say.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -405,7 +405,7 @@ fn summarise(
     let soc_end = r.final_state[crate::simulate::state::SOC];
     let lowest_cadence = lowest_sustained_cadence_rpm(plant, trace);
     let regulation_cadence = if regulated {
-        check::analyse(sc, plant).regulation_cadence_rpm()
+        check_report::analyse(sc, plant).regulation_cadence_rpm()
     } else {
         None
     };

@@ -19,17 +19,17 @@ use anyhow::{anyhow, Context};
 use clap::{ArgGroup, Args};
 use rayon::prelude::*;
 
+use super::outcome::{say, Failure, EXIT_OK, EXIT_SIM};
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
-use crate::cli::{say, Failure, EXIT_OK, EXIT_SIM};
 use crate::output::plot::{self, SweepSeries};
 use crate::output::{report, rundir};
 use crate::scenario::load::Override;
 use crate::scenario::Scenario;
 
+use super::args::{scenario_from, session_or_failure, settings_from, SessionArgs};
 use super::check::build_plant;
 use super::compare::aligned_table;
 use super::pages;
-use super::run::{scenario_from, session_or_failure, settings_from, SessionArgs};
 use super::session::Session;
 
 /// Most values one sweep may have.

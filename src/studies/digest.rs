@@ -1,0 +1,50 @@
+//! The digest lines a run prints and its report repeats: the rows by kind, the thresholds used.
+
+use crate::analysis::events::{Event, EventKind};
+use crate::analysis::summary::Summary;
+
+/// One line naming the rows by kind: verdict-affecting alerts first, then informational episodes
+/// with their total time.
+pub fn rows_digest(m: &Summary) -> String {
+    let mut parts = Vec::new();
+    for (rows, verdict) in [(&m.alerts, true), (&m.episodes, false)] {
+        for kind in EventKind::ALL {
+            let of: Vec<&Event> = rows.iter().filter(|e| e.kind == kind).collect();
+            if of.is_empty() {
+                continue;
+            }
+            let total: f64 = of.iter().map(|e| e.duration_s).sum();
+            let name = kind.as_str().replace('_', "-");
+            parts.push(if verdict {
+                format!("{} {name} episode(s), {total:.1} s (verdict)", of.len())
+            } else {
+                format!("{} {name} episode(s), {total:.1} s", of.len())
+            });
+        }
+    }
+    if parts.is_empty() {
+        "no alerts or episodes".to_string()
+    } else {
+        parts.join("; ")
+    }
+}
+
+/// The thresholds the verdict used, in one line.
+pub fn thresholds_digest(m: &Summary) -> String {
+    let a = &m.alert_rules;
+    let mut s = format!(
+        "overcharge above {:.3} V (limit + {:.3} V/cell) for {} s",
+        m.overcharge_threshold_v, a.overcharge.tolerance_v_per_cell, a.overcharge.dwell_s
+    );
+    if m.in_regulation_fraction.is_some() {
+        s.push_str(&format!(
+            "; regulation at least {:.0} % of cranking time",
+            100.0 * a.min_in_regulation_fraction
+        ));
+    }
+    s.push_str(&format!(
+        "; marginal within {:.3} V / {:.3}",
+        a.overcharge_decision_band_v, a.regulation_decision_band
+    ));
+    s
+}
