@@ -329,12 +329,16 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
     let mut charts = Vec::new();
     if !a.no_plot {
         let mut panels: Vec<(&str, &str, &[f64])> = vec![("charge delivered", "Ah", &charge)];
+        let mut marks = vec![None];
         if regulated {
             panels.push(("in-regulation fraction", "1", &reg));
+            marks.push(Some(sc.setup.alerts.min_in_regulation_fraction));
         }
         panels.push(("operator work", "J", &work));
-        let chart = plot::histogram_chart(
+        marks.push(None);
+        let chart = plot::histogram_chart_marked(
             &panels,
+            &marks,
             &format!("{} operators: {} / {}", n, report.setup, report.profile),
         )
         .map_err(|e| other(&e))?;

@@ -63,7 +63,13 @@ pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> 
     let mut svg = None;
     if plots {
         let title = format!("{} / {}", s.summary.setup, s.summary.profile);
-        let chart = crate::output::plot::session_chart(&s.result.trace, &events, &title)?;
+        let op = &sc.profile.operator;
+        let marks = crate::output::plot::SessionMarks {
+            critical_power_w: Some(op.critical_power_w),
+            w_prime_j: (op.w_prime_j > 0.0).then_some(op.w_prime_j),
+        };
+        let chart =
+            crate::output::plot::session_chart_with(&s.result.trace, &events, &title, &marks)?;
         staging.write("session.png", &chart.png)?;
         staging.write("session.svg", chart.svg.as_bytes())?;
         svg = Some(chart.svg);

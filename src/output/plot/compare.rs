@@ -1,9 +1,14 @@
-//! The comparison chart: SOC and crank cadence of several runs overlaid.
+//! The comparison chart: SOC and crank cadence of several runs overlaid. SOC is drawn as the
+//! points gained since each run's start, so runs of batteries at different charge levels still
+//! show their slopes side by side rather than flat lines far apart.
 
 use super::*;
 
 // ---------------------------------------------------------------------------------------------
 // Comparison chart.
+
+/// Width of the comparison's legend, px.
+const COMPARE_LEGEND_W: u32 = 300;
 
 pub(super) struct CompareFig<'a> {
     pub(super) runs: &'a [(String, &'a Trace)],
@@ -12,7 +17,7 @@ pub(super) struct CompareFig<'a> {
 
 impl Figure for CompareFig<'_> {
     fn size(&self) -> (u32, u32) {
-        (1000, 700)
+        (1200, 760)
     }
 
     fn draw<DB: DrawingBackend>(
@@ -23,14 +28,22 @@ impl Figure for CompareFig<'_> {
         root.fill(&WHITE).map_err(de)?;
         let body = draw_title(root, self.title)?;
         let (w, _) = body.dim_in_pixel();
-        let (charts, legend_area) = body.split_horizontally(w - LEGEND_W);
+        // A wide legend: run labels name a setup and a profile.
+        let (charts, legend_area) = body.split_horizontally(w - COMPARE_LEGEND_W);
 
         let all_rows = || self.runs.iter().flat_map(|(_, tr)| tr.rows.iter());
         let time = TimeAxis::of(all_rows().map(|r| r.time_s));
         let (x, div, x_desc) = (time.range, time.div, time.desc);
-        let mut s_soc = Span::of(all_rows().map(|r| r.soc * 100.0));
+        let gained =
+            |tr: &Trace, r: &TraceRow| 100.0 * (r.soc - tr.rows.first().map_or(r.soc, |f| f.soc));
+        let mut s_soc = Span::of(
+            self.runs
+                .iter()
+                .flat_map(|(_, tr)| tr.rows.iter().map(move |r| gained(tr, r))),
+        );
         s_soc.add(0.0);
-        s_soc.add(100.0);
+        // At least a one-point span, so a run that barely charges is not a flat line at an edge.
+        s_soc.add(1.0);
         let mut s_rpm = Span::of(all_rows().map(|r| r.crank_rpm));
         s_rpm.add(0.0);
 
@@ -38,12 +51,12 @@ impl Figure for CompareFig<'_> {
         let specs = [
             (
                 PanelText {
-                    caption: "State of charge",
-                    y_desc: "SOC [%]",
+                    caption: "State of charge gained since the start",
+                    y_desc: "SOC gained [%-points]",
                     x_desc: None,
                     y2_desc: None,
                 },
-                s_soc.axis(0.0, (0.0, 100.0)),
+                s_soc.axis(0.06, (0.0, 1.0)),
             ),
             (
                 PanelText {
@@ -69,7 +82,13 @@ impl Figure for CompareFig<'_> {
             for (i, (_, tr)) in self.runs.iter().enumerate() {
                 let color = RUN_CYCLE[i % RUN_CYCLE.len()];
                 let dashed = (i / RUN_CYCLE.len()) % 2 == 1;
-                let value = |r: &TraceRow| if p == 0 { r.soc * 100.0 } else { r.crank_rpm };
+                let value = |r: &TraceRow| {
+                    if p == 0 {
+                        gained(tr, r)
+                    } else {
+                        r.crank_rpm
+                    }
+                };
                 pen.line(
                     area,
                     tr.rows.iter().map(|r| (r.time_s / div, value(r))),

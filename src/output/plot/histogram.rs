@@ -7,17 +7,40 @@ use super::*;
 
 pub(super) struct HistogramFig<'a> {
     pub(super) metrics: &'a [(&'a str, &'a str, &'a [f64])],
+    /// A threshold to mark on each metric's histogram (e.g. the regulation the verdict asks for).
+    pub(super) thresholds: &'a [Option<f64>],
     pub(super) title: &'a str,
 }
 
-/// Histogram of the finite samples: (x range of the bins, bin counts).
+/// Whether a unit word means "no unit" (a fraction, a count).
+fn dimensionless(unit: &str) -> bool {
+    matches!(unit.trim(), "" | "-" | "1")
+}
+
+/// Histogram of the finite samples: (x range of the bins, bin counts). The bin width follows
+/// Freedman and Diaconis (1981), 2·IQR·n^(−1/3), which adapts to skewed Monte Carlo figures;
+/// never fewer bins than Sturges' rule, log2(n) + 1, nor more than 60.
 pub(super) fn bin_samples(finite: &[f64]) -> Option<((f64, f64), Vec<u32>)> {
     if finite.is_empty() {
         return None;
     }
     let span = Span::of(finite.iter().copied());
     let n = finite.len();
-    let mut k = ((n as f64).log2().ceil() as usize + 1).clamp(1, 50);
+    let sturges = (n as f64).log2().ceil() as usize + 1;
+    let iqr = match (
+        crate::analysis::stats::percentile(finite, 75.0),
+        crate::analysis::stats::percentile(finite, 25.0),
+    ) {
+        (Some(q3), Some(q1)) => q3 - q1,
+        _ => 0.0,
+    };
+    let fd_width = 2.0 * iqr / (n as f64).cbrt();
+    let fd = if fd_width > 0.0 && fd_width.is_finite() {
+        ((span.hi - span.lo) / fd_width).ceil() as usize
+    } else {
+        0
+    };
+    let mut k = fd.max(sturges).clamp(1, 60);
     let degenerate = span.hi - span.lo <= span.lo.abs().max(span.hi.abs()) * 1e-9;
     if degenerate {
         k = k.max(5) | 1; // odd, so the single value sits in a narrow middle bin
@@ -72,7 +95,10 @@ impl Figure for HistogramFig<'_> {
             let chart = build_panel(&cells[0], &text, &ax)?;
             draw_note(chart.plotting_area(), "nothing to show")?;
         }
-        for (cell, &(name, unit, samples)) in cells.iter().zip(self.metrics.iter()) {
+        let mut any_threshold = false;
+        for (k, (cell, &(name, unit, samples))) in cells.iter().zip(self.metrics.iter()).enumerate()
+        {
+            let threshold = self.thresholds.get(k).copied().flatten();
             let finite: Vec<f64> = samples
                 .iter()
                 .copied()
@@ -89,7 +115,7 @@ impl Figure for HistogramFig<'_> {
             let mut caption = format!("{name}: n = {}", finite.len());
             if mean.is_finite() {
                 caption.push_str(&format!(", mean {}", fmt_value(mean)));
-                if !unit.trim().is_empty() && unit != "-" {
+                if !dimensionless(unit) {
                     caption.push_str(&format!(" {unit}"));
                 }
             }
@@ -99,6 +125,11 @@ impl Figure for HistogramFig<'_> {
             let x_desc = with_unit(name, unit);
             let (x, max_count) = match &bins {
                 Some(((lo, hi), counts)) => {
+                    // The threshold stays in view even when every run lies on one side of it.
+                    let (lo, hi) = match threshold {
+                        Some(t) if t.is_finite() => (lo.min(t), hi.max(t)),
+                        _ => (*lo, *hi),
+                    };
                     let pad = (hi - lo) * 0.03;
                     ((lo - pad, hi + pad), *counts.iter().max().unwrap_or(&1))
                 }
@@ -144,14 +175,25 @@ impl Figure for HistogramFig<'_> {
                         ))
                         .map_err(de)?;
                     }
+                    if let Some(t) = threshold.filter(|t| t.is_finite()) {
+                        area.draw(&PathElement::new(
+                            vec![(t, 0.0), (t, y.1)],
+                            SLATE.stroke_width(2),
+                        ))
+                        .map_err(de)?;
+                        any_threshold = true;
+                    }
                 }
                 None => draw_note(area, "no finite samples")?,
             }
         }
-        let items = [
+        let mut items = vec![
             item("runs per bin", Glyph::Band(TEAL, 0.78)),
             item("mean", Glyph::Dashed(BRICK)),
         ];
+        if any_threshold {
+            items.push(item("threshold", Glyph::Line(SLATE)));
+        }
         draw_legend(&legend_area, &items, 26)
     }
 }

@@ -78,16 +78,16 @@ const LANE_TRACK: RGBColor = RGBColor(236, 235, 230);
 const BAND: RGBColor = RGBColor(112, 112, 118);
 const BAND_ALPHA: f64 = 0.20;
 
-const TEAL: RGBColor = RGBColor(16, 100, 110);
-const AMBER: RGBColor = RGBColor(204, 132, 10);
-const SLATE: RGBColor = RGBColor(70, 84, 104);
-const BRICK: RGBColor = RGBColor(160, 56, 40);
-const OLIVE: RGBColor = RGBColor(104, 122, 34);
-const PLUM: RGBColor = RGBColor(118, 68, 126);
-const COBALT: RGBColor = RGBColor(42, 90, 158);
-const UMBER: RGBColor = RGBColor(126, 86, 50);
-
-/// Colours given to overlaid runs, in order.
+// Series colours: the Okabe–Ito palette ("Color Universal Design", Okabe & Ito 2008), chosen to
+// stay apart for the common colour-vision deficiencies; yellow is left out (too pale on white).
+const TEAL: RGBColor = RGBColor(0, 114, 178); // blue
+const AMBER: RGBColor = RGBColor(230, 159, 0); // orange
+const SLATE: RGBColor = RGBColor(40, 40, 40); // black
+const BRICK: RGBColor = RGBColor(213, 94, 0); // vermillion
+const OLIVE: RGBColor = RGBColor(0, 158, 115); // bluish green
+const PLUM: RGBColor = RGBColor(204, 121, 167); // reddish purple
+const COBALT: RGBColor = RGBColor(86, 180, 233); // sky blue
+const UMBER: RGBColor = RGBColor(150, 120, 40); // dark yellow
 const RUN_CYCLE: [RGBColor; 8] = [TEAL, BRICK, OLIVE, AMBER, PLUM, COBALT, SLATE, UMBER];
 
 /// At most this many points are drawn per series (long traces are thinned).
@@ -111,10 +111,30 @@ type Chart<'a, DB> = DualCoordChartContext<'a, DB, Cart, Cart>;
 /// SOC on a right-hand axis, and operator power. Regulation-loss periods are shaded across all
 /// panels; alerts are drawn as coloured lanes along the top of the panel they concern.
 pub fn session_chart(trace: &Trace, events: &[Event], title: &str) -> Result<Rendered, PlotError> {
+    session_chart_with(trace, events, title, &SessionMarks::default())
+}
+
+/// Reference lines of the session chart, where known.
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct SessionMarks {
+    /// The operator's critical power, W (a dashed line on the power panel).
+    pub critical_power_w: Option<f64>,
+    /// The operator's full W′, J (the W′ balance is drawn against it on the right axis).
+    pub w_prime_j: Option<f64>,
+}
+
+/// As [`session_chart`], with the operator's critical power and W′ balance on the power panel.
+pub fn session_chart_with(
+    trace: &Trace,
+    events: &[Event],
+    title: &str,
+    marks: &SessionMarks,
+) -> Result<Rendered, PlotError> {
     render(&SessionFig {
         trace,
         events,
         title,
+        marks: *marks,
     })
 }
 
@@ -146,12 +166,27 @@ pub fn sweep_chart_categories(
     })
 }
 
-/// One histogram per metric given as `(name, unit, samples)`; the bin count follows Sturges' rule.
+/// One histogram per metric given as `(name, unit, samples)`, with its mean (bins: see
+/// `histogram::bin_samples`).
 pub fn histogram_chart(
     metrics: &[(&str, &str, &[f64])],
     title: &str,
 ) -> Result<Rendered, PlotError> {
-    render(&HistogramFig { metrics, title })
+    histogram_chart_marked(metrics, &[], title)
+}
+
+/// As [`histogram_chart`], with a threshold marked on the metrics that have one (`thresholds[k]`
+/// for metric k).
+pub fn histogram_chart_marked(
+    metrics: &[(&str, &str, &[f64])],
+    thresholds: &[Option<f64>],
+    title: &str,
+) -> Result<Rendered, PlotError> {
+    render(&HistogramFig {
+        metrics,
+        thresholds,
+        title,
+    })
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -1064,18 +1099,163 @@ mod tests {
     }
 
     #[test]
-    fn event_intervals_are_clipped_and_visible() {
+    fn event_intervals_are_clipped_and_at_least_one_trace_interval_wide() {
         let x = (0.0, 100.0);
-        let iv = |s, e| event_interval(&event(EventKind::Overcharge, s, e), 1.0, x);
+        let iv = |s, e| event_interval(&event(EventKind::Overcharge, s, e), 1.0, x, 0.1);
         assert_eq!(iv(10.0, 20.0), Some((10.0, 20.0)));
         assert_eq!(iv(50.0, f64::INFINITY), Some((50.0, 100.0)));
         assert_eq!(iv(f64::NAN, 5.0), None);
         assert_eq!(iv(200.0, 300.0), None);
         assert_eq!(iv(-50.0, 1e9), Some((0.0, 100.0)));
         let (a, b) = iv(100.0, 100.0).unwrap();
-        assert!(b - a > 0.3 && b <= 100.0);
+        assert!((b - a - 0.1).abs() < 1e-12 && b <= 100.0);
         let (a, b) = iv(30.0, f64::NAN).unwrap();
-        assert!(a < 30.0 && b > 30.0);
+        assert!(a < 30.0 && b > 30.0 && b - a <= 0.1 + 1e-12);
+    }
+
+    /// x-extents, px, of the SVG rectangles filled with `fill` (e.g. `#707076`).
+    fn svg_rects(svg: &str, fill: &str) -> Vec<(f64, f64)> {
+        let attr = |r: &str, name: &str| -> f64 {
+            let k = r.find(&format!(" {name}=\"")).expect("attribute") + name.len() + 3;
+            r[k..].split('"').next().unwrap().parse().expect("number")
+        };
+        svg.split("<rect")
+            .skip(1)
+            .map(|r| r.split('>').next().unwrap_or(""))
+            .filter(|r| r.contains(&format!("fill=\"{fill}\"")))
+            .map(|r| (attr(r, "x"), attr(r, "x") + attr(r, "width")))
+            .collect()
+    }
+
+    #[test]
+    fn regulation_bands_cover_their_periods_within_one_trace_interval() {
+        // A one-minute trace on a 0.1-s grid, a 50-ms dropout and a 15-s one.
+        let tr = trace(601, 0.1);
+        let events = [
+            event(EventKind::RegulationLoss, 10.0, 10.05),
+            event(EventKind::RegulationLoss, 20.0, 35.0),
+        ];
+        let r = session_chart(&tr, &events, "Bands").unwrap();
+        // The top panel's plotting area maps 0 … 60 s onto its background rectangle.
+        let bg = svg_rects(&r.svg, "#FBFAF6")[0];
+        let px = |t: f64| bg.0 + t / 60.0 * (bg.1 - bg.0);
+        let per_interval = px(0.1) - px(0.0);
+        let bands: Vec<(f64, f64)> = svg_rects(&r.svg, "#707076")
+            .into_iter()
+            .filter(|&(a, b)| a >= bg.0 - 0.5 && b <= bg.1 + 0.5)
+            .collect();
+        for (start, end) in [(10.0_f64, 10.05_f64), (20.0, 35.0)] {
+            // Each panel draws it; every copy within a trace interval (and the SVG's whole-pixel
+            // rounding) of the period, never the old fixed sliver of the axis.
+            let copies: Vec<&(f64, f64)> = bands
+                .iter()
+                .filter(|(a, b)| (a - px(start)).abs() <= per_interval + 1.0 && *b > *a)
+                .collect();
+            assert_eq!(copies.len(), 4, "{start} … {end} s: {bands:?}");
+            for (a, b) in copies {
+                assert!(
+                    (a - px(start)).abs() <= per_interval + 1.0,
+                    "{a} vs {}",
+                    px(start)
+                );
+                assert!(
+                    (b - px(end.max(start + 0.1))).abs() <= per_interval + 1.0,
+                    "{b} vs {}",
+                    px(end)
+                );
+            }
+        }
+    }
+
+    #[test]
+    fn the_session_chart_shows_the_charger_state_critical_power_and_w_prime() {
+        let mut tr = trace(600, 1.0);
+        for r in tr.rows.iter_mut().skip(300) {
+            r.mode = Mode::Cv;
+        }
+        let marks = SessionMarks {
+            critical_power_w: Some(48.0),
+            w_prime_j: Some(15000.0),
+        };
+        let r = session_chart_with(&tr, &[], "Marks", &marks).unwrap();
+        let texts = svg_texts(&r.svg);
+        for want in [
+            "state: CC",
+            "state: CV / absorption",
+            "critical power 48 W",
+            "W′ balance [kJ]",
+            "W′ balance (right axis)",
+        ] {
+            assert!(texts.iter().any(|t| t == want), "{want} missing: {texts:?}");
+        }
+        // The state strip: both states' colours on the bitmap.
+        assert!(count_near(&r.png, OLIVE, 2) > 100);
+        // Without marks: no line and no right axis for them.
+        let plain = session_chart(&tr, &[], "Plain").unwrap();
+        assert!(!plain.svg.contains("critical power") && !plain.svg.contains("W′"));
+    }
+
+    #[test]
+    fn histograms_use_enough_bins_and_mark_their_threshold() {
+        // A Monte Carlo figure's usual shape: most runs in a narrow cluster, a few far below it.
+        // Freedman–Diaconis bins follow the cluster's width (Sturges' rule would give 9 bins
+        // over the whole range, all the cluster in one).
+        let v: Vec<f64> = (0..200)
+            .map(|i| {
+                if i < 190 {
+                    0.95 + 0.01 * (i as f64).sin()
+                } else {
+                    0.1 + 0.07 * (i - 190) as f64
+                }
+            })
+            .collect();
+        let (_, counts) = bin_samples(&v).unwrap();
+        assert!(counts.len() > 9, "{} bins", counts.len());
+        assert_eq!(counts.iter().sum::<u32>(), 200);
+        let m: Vec<(&str, &str, &[f64])> = vec![("in-regulation fraction", "1", &v)];
+        let r = histogram_chart_marked(&m, &[Some(0.9)], "Marked").unwrap();
+        let texts = svg_texts(&r.svg);
+        assert!(texts.iter().any(|t| t == "threshold"), "{texts:?}");
+        // A fraction has no unit: the caption does not end in "1".
+        assert!(
+            texts
+                .iter()
+                .any(|t| t.starts_with("in-regulation fraction: n = 200, mean")
+                    && !t.ends_with(" 1")),
+            "{texts:?}"
+        );
+    }
+
+    #[test]
+    fn the_soc_axis_follows_the_data() {
+        // 30 % → 36 % (the row helper's SOC rises 1 % every 40 s): the axis spans about those
+        // 6 points, not 0 … 100 %.
+        let tr = trace(2401, 0.1);
+        let r = session_chart(&tr, &[], "SOC").unwrap();
+        let texts = svg_texts(&r.svg);
+        let ticks: Vec<f64> = texts.iter().filter_map(|t| t.parse::<f64>().ok()).collect();
+        // The right axis's ticks, in order: 30, 32, 34, 36 (a 0 … 100 % axis would tick 0, 20,
+        // 40 …).
+        assert!(
+            ticks.windows(4).any(|w| w == [30.0, 32.0, 34.0, 36.0]),
+            "{ticks:?}"
+        );
+        // A flat SOC still gets a readable span (at least 5 points around it).
+        let mut flat = trace(100, 1.0);
+        for r in &mut flat.rows {
+            r.soc = 0.5;
+        }
+        let r = session_chart(&flat, &[], "Flat SOC").unwrap();
+        let ticks: Vec<f64> = svg_texts(&r.svg)
+            .iter()
+            .filter_map(|t| t.parse::<f64>().ok())
+            .collect();
+        assert!(
+            ticks
+                .windows(3)
+                .any(|w| w[0] < w[1] && w[1] < w[2] && w[0] >= 47.0 && w[2] <= 53.0),
+            "{ticks:?}"
+        );
     }
 
     #[test]
@@ -1087,7 +1267,7 @@ mod tests {
             ("sprint".to_string(), &b),
         ];
         let r = compare_chart(&runs, "Cadence plans").unwrap();
-        check(&r, 1000, 700, "Cadence plans");
+        check(&r, 1200, 760, "Cadence plans");
         assert!(r.svg.contains("steady 70 rpm") && r.svg.contains("sprint"));
         assert!(
             count_near(&r.png, BRICK, 12) > 200,
@@ -1095,12 +1275,12 @@ mod tests {
         );
 
         let empty = Trace::default();
-        check(&compare_chart(&[], "None").unwrap(), 1000, 700, "None");
+        check(&compare_chart(&[], "None").unwrap(), 1200, 760, "None");
         let runs = vec![("void".to_string(), &empty)];
-        check(&compare_chart(&runs, "Void").unwrap(), 1000, 700, "Void");
+        check(&compare_chart(&runs, "Void").unwrap(), 1200, 760, "Void");
         let many: Vec<(String, &Trace)> = (0..40).map(|i| (format!("run {i}"), &a)).collect();
         let r = compare_chart(&many, "Many").unwrap();
-        check(&r, 1000, 700, "Many");
+        check(&r, 1200, 760, "Many");
         assert!(r.svg.contains("more"));
     }
 

@@ -2,6 +2,7 @@
 //! power, with the alert lanes and the regulation-loss bands.
 
 use super::*;
+use crate::analysis::trace::Mode;
 
 // ---------------------------------------------------------------------------------------------
 // Session chart.
@@ -10,6 +11,40 @@ pub(super) struct SessionFig<'a> {
     pub(super) trace: &'a Trace,
     pub(super) events: &'a [Event],
     pub(super) title: &'a str,
+    pub(super) marks: SessionMarks,
+}
+
+/// Least span of the SOC axis, percentage points: a short session's few points of charge still
+/// show as a slope, not a step.
+const SOC_MIN_SPAN: f64 = 5.0;
+
+/// Colour and label of a charger state in the state strip.
+fn mode_style(m: Mode) -> (RGBColor, &'static str) {
+    match m {
+        Mode::Lockout => (RGBColor(90, 90, 90), "locked out"),
+        Mode::SoftStart => (COBALT, "soft-start"),
+        Mode::Cc => (TEAL, "CC"),
+        Mode::Cv => (OLIVE, "CV / absorption"),
+        Mode::Float => (PLUM, "float"),
+        Mode::Dropout => (BRICK, "dropout"),
+        Mode::Done => (AMBER, "done"),
+        Mode::TempHold => (UMBER, "temperature hold"),
+        Mode::Direct => (SLATE, "direct"),
+        Mode::DeviceOff => (RGBColor(170, 170, 170), "device off"),
+    }
+}
+
+/// Runs of one charger state on the trace: (start, end, state), in axis units.
+fn mode_runs(rows: &[TraceRow], div: f64, dt: f64) -> Vec<(f64, f64, Mode)> {
+    let mut out: Vec<(f64, f64, Mode)> = Vec::new();
+    for r in rows {
+        let t = r.time_s / div;
+        match out.last_mut() {
+            Some(last) if last.2 == r.mode => last.1 = t + dt / div,
+            _ => out.push((t, t + dt / div, r.mode)),
+        }
+    }
+    out
 }
 
 /// Panel (0-based, top to bottom) on whose top edge an alert kind is drawn.
@@ -59,8 +94,10 @@ pub(super) fn alert_color(kind: EventKind) -> RGBColor {
     }
 }
 
-/// Time interval of an event in axis units, clipped to the x range and at least a sliver wide.
-pub(super) fn event_interval(e: &Event, div: f64, x: (f64, f64)) -> Option<(f64, f64)> {
+/// Time interval of an event in axis units, clipped to the x range and at least `min_w` wide
+/// (one trace interval: a band is never wider than its event by more than the trace's own
+/// resolution).
+pub(super) fn event_interval(e: &Event, div: f64, x: (f64, f64), min_w: f64) -> Option<(f64, f64)> {
     if !e.start_s.is_finite() {
         return None;
     }
@@ -76,7 +113,6 @@ pub(super) fn event_interval(e: &Event, div: f64, x: (f64, f64)) -> Option<(f64,
     if t < x.0 || s > x.1 {
         return None;
     }
-    let min_w = (x.1 - x.0) * 0.004;
     if t - s < min_w {
         let c = 0.5 * (s + t);
         s = c - 0.5 * min_w;
@@ -123,13 +159,22 @@ impl Figure for SessionFig<'_> {
         let time = TimeAxis::of(rows.iter().map(|r| r.time_s));
         let (x, div, x_desc) = (time.range, time.div, time.desc);
         let t = |r: &TraceRow| r.time_s / div;
+        // The trace's grid, s (the narrowest a band is drawn).
+        let dt = rows
+            .windows(2)
+            .map(|w| w[1].time_s - w[0].time_s)
+            .find(|d| d.is_finite() && *d > 0.0)
+            .unwrap_or(0.1);
+        let min_w = dt / div;
+        let interval = |e: &Event| event_interval(e, div, x, min_w);
+        let states = mode_runs(rows, div, dt);
 
         // Alert lanes per panel.
         let mut lanes: [Vec<EventKind>; 4] = Default::default();
         let kinds: BTreeSet<EventKind> = self
             .events
             .iter()
-            .filter(|e| event_interval(e, div, x).is_some())
+            .filter(|e| interval(e).is_some())
             .map(|e| e.kind)
             .collect();
         for k in kinds {
@@ -141,13 +186,13 @@ impl Figure for SessionFig<'_> {
             .events
             .iter()
             .filter(|e| e.kind == EventKind::RegulationLoss)
-            .filter_map(|e| event_interval(e, div, x))
+            .filter_map(interval)
             .collect();
         let completes: Vec<f64> = self
             .events
             .iter()
             .filter(|e| e.kind == EventKind::ChargeComplete)
-            .filter_map(|e| event_interval(e, div, x).map(|(a, _)| a))
+            .filter_map(|e| interval(e).map(|(a, _)| a))
             .collect();
 
         // Data ranges.
@@ -159,18 +204,33 @@ impl Figure for SessionFig<'_> {
         );
         let mut s_amp = Span::of(rows.iter().map(|r| r.battery_current_a));
         s_amp.add(0.0);
-        let mut s_soc = Span::of(rows.iter().map(|r| r.soc * 100.0));
-        s_soc.add(0.0);
-        s_soc.add(100.0);
+        // SOC: the data's own range, at least SOC_MIN_SPAN wide, inside 0 … 100 %.
+        let s_soc = Span::of(rows.iter().map(|r| r.soc * 100.0));
         let mut s_pow = Span::of(rows.iter().map(|r| r.operator_power_w));
         s_pow.add(0.0);
+        if let Some(cp) = self.marks.critical_power_w {
+            s_pow.add(cp);
+        }
         let base_y = [
             s_rpm.axis(0.06, (0.0, 1.0)),
             s_volt.axis(0.06, (0.0, 1.0)),
             s_amp.axis(0.08, (0.0, 1.0)),
             s_pow.axis(0.06, (0.0, 1.0)),
         ];
-        let soc_base = s_soc.axis(0.0, (0.0, 100.0));
+        let soc_base = {
+            let (lo, hi) = if s_soc.is_empty() {
+                (0.0, 100.0)
+            } else {
+                (s_soc.lo, s_soc.hi)
+            };
+            let mid = 0.5 * (lo + hi);
+            let half = (0.5 * (hi - lo) * 1.1).max(0.5 * SOC_MIN_SPAN);
+            let (a, b) = (mid - half, mid + half);
+            // Slide the window inside 0 … 100 rather than cut it.
+            let shift = (-a).max(0.0) - (b - 100.0).max(0.0);
+            ((a + shift).max(0.0), (b + shift).min(100.0))
+        };
+        let w_prime_kj = self.marks.w_prime_j.map(|w| w / 1000.0);
 
         let texts = [
             PanelText {
@@ -195,7 +255,7 @@ impl Figure for SessionFig<'_> {
                 caption: "Operator power",
                 y_desc: "power [W]",
                 x_desc: Some(x_desc),
-                y2_desc: None,
+                y2_desc: w_prime_kj.map(|_| "W′ balance [kJ]"),
             },
         ];
 
@@ -203,11 +263,13 @@ impl Figure for SessionFig<'_> {
         let panels = body.split_evenly((4, 1));
         for (p, panel) in panels.iter().enumerate() {
             let (plot_area, legend_area) = panel.split_horizontally(w - LEGEND_W);
-            let (y, lane_h) = with_lanes(base_y[p], lanes[p].len());
-            let y2 = if p == 2 {
-                stretch(soc_base, base_y[p], y)
-            } else {
-                y
+            // The current panel carries the charger-state strip as its first lane.
+            let strip = usize::from(p == 2 && !states.is_empty());
+            let (y, lane_h) = with_lanes(base_y[p], lanes[p].len() + strip);
+            let y2 = match (p, w_prime_kj) {
+                (2, _) => stretch(soc_base, base_y[p], y),
+                (3, Some(w)) => stretch((0.0, w * 1.05), base_y[p], y),
+                _ => y,
             };
             let ax = PanelAxes {
                 x,
@@ -226,10 +288,27 @@ impl Figure for SessionFig<'_> {
                 let top = y.1 - lane_h * i as f64;
                 (top - lane_h * 0.85, top - lane_h * 0.15)
             };
-            for i in 0..lanes[p].len() {
+            for i in 0..lanes[p].len() + strip {
                 let (lo, hi) = lane_box(i);
                 area.draw(&Rectangle::new([(x.0, lo), (x.1, hi)], LANE_TRACK.filled()))
                     .map_err(de)?;
+            }
+            let mut shown_states: Vec<Mode> = Vec::new();
+            if strip == 1 {
+                let (lo, hi) = lane_box(0);
+                for &(a, b, m) in &states {
+                    let (a, b) = (a.max(x.0), b.min(x.1));
+                    if b > a {
+                        area.draw(&Rectangle::new(
+                            [(a, lo), (b, hi)],
+                            mode_style(m).0.filled(),
+                        ))
+                        .map_err(de)?;
+                    }
+                    if !shown_states.contains(&m) {
+                        shown_states.push(m);
+                    }
+                }
             }
             for &(a, b) in &reg_bands {
                 area.draw(&Rectangle::new(
@@ -239,9 +318,9 @@ impl Figure for SessionFig<'_> {
                 .map_err(de)?;
             }
             for (i, &k) in lanes[p].iter().enumerate() {
-                let (lo, hi) = lane_box(i);
+                let (lo, hi) = lane_box(i + strip);
                 for e in self.events.iter().filter(|e| e.kind == k) {
-                    if let Some((a, b)) = event_interval(e, div, x) {
+                    if let Some((a, b)) = interval(e) {
                         area.draw(&Rectangle::new([(a, lo), (b, hi)], alert_color(k).filled()))
                             .map_err(de)?;
                     }
@@ -313,6 +392,10 @@ impl Figure for SessionFig<'_> {
                     }
                     legend.push(item("current (left axis)", Glyph::Line(TEAL)));
                     legend.push(item("SOC (right axis)", Glyph::Line(AMBER)));
+                    for &m in &shown_states {
+                        let (c, label) = mode_style(m);
+                        legend.push(item(format!("state: {label}"), Glyph::Lane(c)));
+                    }
                     if !completes.is_empty() {
                         legend.push(item(
                             "charge complete",
@@ -321,6 +404,8 @@ impl Figure for SessionFig<'_> {
                     }
                 }
                 _ => {
+                    // The instantaneous power (the per-turn ripple) as a light fill, the power
+                    // averaged over a revolution (what W′ and the power cap act on) as the line.
                     let base = 0.0_f64.clamp(y.0, y.1);
                     draw_fill(
                         area,
@@ -330,11 +415,34 @@ impl Figure for SessionFig<'_> {
                     )?;
                     pen.line(
                         area,
-                        rows.iter().map(|r| (t(r), r.operator_power_w)),
+                        rows.iter().map(|r| (t(r), r.operator_mean_power_w)),
                         PLUM,
                         false,
                     )?;
-                    legend.push(item("operator power", Glyph::Line(PLUM)));
+                    legend.push(item("power, per turn", Glyph::Line(PLUM)));
+                    legend.push(item("power, instant", Glyph::Band(PLUM, 0.25)));
+                    if let Some(cp) = self.marks.critical_power_w {
+                        area.draw(&DashedPathElement::new(
+                            [(x.0, cp), (x.1, cp)],
+                            6,
+                            4,
+                            BRICK.stroke_width(2),
+                        ))
+                        .map_err(de)?;
+                        legend.push(item(
+                            format!("critical power {cp:.0} W"),
+                            Glyph::Dashed(BRICK),
+                        ));
+                    }
+                    if w_prime_kj.is_some() {
+                        pen.line(
+                            chart.secondary_plotting_area(),
+                            rows.iter().map(|r| (t(r), r.w_prime_balance_j / 1000.0)),
+                            SLATE,
+                            false,
+                        )?;
+                        legend.push(item("W′ balance (right axis)", Glyph::Line(SLATE)));
+                    }
                 }
             }
             for &k in &lanes[p] {
