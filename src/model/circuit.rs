@@ -100,11 +100,8 @@ pub fn evaluate(
             let p = NetworkPoint {
                 generator_current_a: i_a,
                 input_v: v_in,
-                duty: if v_in > 0.0 {
-                    (v_o / v_in).clamp(0.0, 1.0)
-                } else {
-                    1.0
-                },
+                // A linear charger does not switch: no duty to report.
+                duty: 0.0,
                 balance_duty: if v_in > 0.0 {
                     (v_o / v_in).clamp(0.0, 1.0)
                 } else {

@@ -563,11 +563,8 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
     NetworkPoint {
         generator_current_a: i,
         input_v: v,
-        duty: if v > 0.0 {
-            (vo / v).clamp(0.0, 1.0)
-        } else {
-            1.0
-        },
+        // A linear charger does not switch: no duty to report.
+        duty: 0.0,
         balance_duty: if v > 0.0 {
             (vo / v).clamp(0.0, 1.0)
         } else {
