@@ -56,7 +56,7 @@ impl DriveModel {
 
     /// Friction torque at the generator shaft: τ_c·tanh(ω/ω_s) + b·ω, N·m.
     pub fn friction_n_m(&self, omega_gen: f64) -> f64 {
-        self.coulomb_friction_n_m * (omega_gen / FRICTION_SMOOTH_RAD_S).tanh()
+        self.coulomb_friction_n_m * super::smooth::sign(omega_gen / FRICTION_SMOOTH_RAD_S)
             + self.viscous_friction_n_m_s * omega_gen
     }
 

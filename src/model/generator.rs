@@ -1,6 +1,8 @@
 //! Permanent-magnet DC generator: E = k_e·ω, τ = k_t·i with k_t = k_e in SI, copper R(T), magnets
 //! weakening with temperature, brush drop, iron loss and cogging.
 
+use super::smooth;
+
 use crate::scenario::setup::Generator;
 use crate::units::{rpm_to_rad_s, v_per_krpm_to_v_s_per_rad};
 
@@ -92,7 +94,7 @@ impl GeneratorModel {
             return 0.0;
         }
         let w1 = rpm_to_rad_s(1000.0);
-        self.hysteresis_loss_w_per_krpm / w1 * (omega_rad_s / IRON_SMOOTH_RAD_S).tanh()
+        self.hysteresis_loss_w_per_krpm / w1 * smooth::sign(omega_rad_s / IRON_SMOOTH_RAD_S)
             + self.eddy_loss_w_per_krpm2 * omega_rad_s / (w1 * w1)
     }
 
@@ -121,19 +123,24 @@ impl GeneratorModel {
 
     /// Brush drop, smoothed through zero current: V_b·tanh(i/i_s), V.
     pub fn brush_drop(&self, current_a: f64) -> f64 {
-        if self.brush_drop_v == 0.0 {
-            return 0.0;
-        }
-        self.brush_drop_v * (current_a / BRUSH_SMOOTH_A).tanh()
+        self.brush(current_a).0
     }
 
     /// Derivative of [`Self::brush_drop`] with respect to current, Ω.
     pub fn brush_drop_slope(&self, current_a: f64) -> f64 {
+        self.brush(current_a).1
+    }
+
+    /// Brush drop and its slope together, V and Ω.
+    pub fn brush(&self, current_a: f64) -> (f64, f64) {
         if self.brush_drop_v == 0.0 {
-            return 0.0;
+            return (0.0, 0.0);
         }
-        let t = (current_a / BRUSH_SMOOTH_A).tanh();
-        self.brush_drop_v * (1.0 - t * t) / BRUSH_SMOOTH_A
+        let (s, ds) = smooth::sign_and_slope(current_a / BRUSH_SMOOTH_A);
+        (
+            self.brush_drop_v * s,
+            self.brush_drop_v * ds / BRUSH_SMOOTH_A,
+        )
     }
 }
 

@@ -12,6 +12,7 @@ pub mod jitter;
 pub mod network;
 pub mod operator;
 pub mod roots;
+pub mod smooth;
 pub mod thermal;
 pub mod usb;
 pub mod usb_network;

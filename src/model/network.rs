@@ -117,7 +117,11 @@ impl Source<'_> {
 
     /// Node voltage and its slope −d(node_v)/di together, V and Ω.
     pub fn node(&self, i: f64) -> (f64, f64) {
-        (self.node_v(i), self.node_slope(i))
+        let (brush_v, brush_slope) = self.generator.brush(i);
+        (
+            self.emf_v - i * self.resistance_ohm - brush_v - self.diode.forward_v(i),
+            self.resistance_ohm + brush_slope + self.diode.slope(i),
+        )
     }
 }
 

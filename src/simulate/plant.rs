@@ -12,6 +12,7 @@ use crate::model::generator::GeneratorModel;
 use crate::model::jitter::JitterTrack;
 use crate::model::network::{self, Load, NetworkPoint, Source};
 use crate::model::operator::OperatorModel;
+use crate::model::smooth;
 use crate::model::thermal::Lumped;
 use crate::model::usb::{BusPoint, UsbModel};
 use crate::scenario::profile::Profile;
@@ -537,7 +538,7 @@ impl Plant {
         let tau_iron = self.generator.iron_loss_torque_n_m(omega_g);
         let tau_cog = self.generator.cogging_torque_n_m(y[ROTOR_ANGLE]);
         let tau_load = tau_em + tau_fric + tau_iron + tau_cog;
-        let bearing = CRANK_BEARING_N_M * (omega_c / CRANK_BEARING_SMOOTH).tanh();
+        let bearing = CRANK_BEARING_N_M * smooth::sign(omega_c / CRANK_BEARING_SMOOTH);
         let omega_t = rpm_to_rad_s(target_rpm);
         // The ripple factor 1 + a·cos(k·θ + φ) averages to one over a revolution, so the power
         // averaged over a turn is the un-rippled torque times the crank speed (exact up to the
