@@ -4,6 +4,7 @@ pub mod engine;
 pub mod observe;
 pub mod plant;
 pub mod progress;
+pub mod replay;
 pub mod state;
 pub mod stiff;
 pub mod transitions;
