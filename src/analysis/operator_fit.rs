@@ -6,7 +6,8 @@
 //! The cadence is cut into whole crank revolutions (the crank angle is the trapezoidal integral of
 //! the cadence): a revolution's mean cadence is free of any ripple that repeats each turn. Only
 //! the stretches with the hands on count, less [`SETTLE_S`] after each start (spin-up) and
-//! [`END_MARGIN_S`] before each end; each log's linear trend is taken as its plan.
+//! [`END_MARGIN_S`] before each end; each log's linear trend is taken as its plan. The wander is
+//! read from means over boxes of a few whole revolutions ([`WANDER_BOX_S`]).
 
 use serde::Serialize;
 
@@ -18,10 +19,15 @@ use crate::units::rad_s_to_rpm;
 pub const SETTLE_S: f64 = 3.0;
 /// Seconds left out before each rest (without torque a rest is seen late, in the coast-down).
 pub const END_MARGIN_S: f64 = 1.0;
+/// The wander is read from means over boxes of whole revolutions lasting about this long, s: the
+/// crank's own answer to the operator's loop (the ripple, lock-outs of the charger, tracking
+/// overshoot) lives at shorter time scales and averages out, while a wander whose correlation time
+/// is a few seconds or more still shows. Correlation times well under this are not resolved.
+pub const WANDER_BOX_S: f64 = 2.5;
 /// Blocks of the delete-one-block jackknife.
 const JACKKNIFE_BLOCKS: usize = 10;
-/// Fewest revolutions for a wander estimate.
-const MIN_REVOLUTIONS: usize = 40;
+/// Fewest boxes for a wander estimate.
+const MIN_BOXES: usize = 40;
 /// Durations of the power–duration fit, s (2 to 20 minutes, as exhaustive trials for critical
 /// power are usually chosen).
 pub const CP_DURATIONS_S: [f64; 7] = [120.0, 180.0, 300.0, 420.0, 600.0, 900.0, 1200.0];
@@ -67,8 +73,8 @@ pub struct RippleFit {
     pub peaks_per_rev: u32,
     /// Amplitude of the cadence ripple at k per revolution, rpm.
     pub cadence_amplitude_rpm: Estimate,
-    /// Torque ripple a in τ = τ̄·(1 + a·cos(kθ + φ)) (logs with torque), the operator's tracking
-    /// loop's reaction to the speed ripple taken out.
+    /// Torque ripple a in τ = τ̄·(1 + a·cos(kθ + φ)) (logs with torque), with the tracking loop's
+    /// answer to the speed ripple added back (see `ripple_of`).
     pub torque_fraction: Option<Estimate>,
     /// Stretches the figures are averaged over.
     pub stretches: usize,
@@ -203,6 +209,7 @@ fn windows(r: &Recording, th: &[f64]) -> Vec<Window> {
 #[derive(Debug, Clone, Copy, Default)]
 struct Sums {
     revs: f64,
+    boxes: f64,
     duration: f64,
     lag1: f64,
     n1: f64,
@@ -213,6 +220,7 @@ struct Sums {
 impl Sums {
     fn add(&mut self, o: &Sums) {
         self.revs += o.revs;
+        self.boxes += o.boxes;
         self.duration += o.duration;
         self.lag1 += o.lag1;
         self.n1 += o.n1;
@@ -223,6 +231,7 @@ impl Sums {
     fn sub(&self, o: &Sums) -> Sums {
         Sums {
             revs: self.revs - o.revs,
+            boxes: self.boxes - o.boxes,
             duration: self.duration - o.duration,
             lag1: self.lag1 - o.lag1,
             n1: self.n1 - o.n1,
@@ -237,15 +246,15 @@ impl Sums {
     }
 
     /// OU strength σ (rpm) and correlation time τ (s) from the lag-1 and lag-2 autocovariances
-    /// of the revolution means (see [`ou_from_box_means`]).
+    /// of the box means (see [`ou_from_box_means`]).
     fn ou(&self) -> Option<(f64, f64)> {
-        if self.n1 < 2.0 || self.n2 < 2.0 || self.revs < 1.0 {
+        if self.n1 < 2.0 || self.n2 < 2.0 || self.boxes < 1.0 {
             return None;
         }
         ou_from_box_means(
             self.lag1 / self.n1,
             self.lag2 / self.n2,
-            self.duration / self.revs,
+            self.duration / self.boxes,
         )
     }
 }
@@ -351,12 +360,21 @@ fn weighted(values: &[(f64, f64)]) -> Option<Estimate> {
 }
 
 /// Ripple amplitudes of one stretch at k per revolution: cadence (rpm) and, with torque, the
-/// torque fraction a (regressing τ/τ̄ − 1 on cos kθ, sin kθ and the speed deviation over τ̄: the
-/// operator's loop answers the speed ripple with −K_p·δω).
-fn ripple_of(r: &Recording, th: &[f64], w: &Window, k: f64) -> (f64, Option<f64>) {
+/// operator's own torque ripple a. The operator's tracking loop answers the speed ripple δω that
+/// the torque ripple causes with −K_p·δω, which shrinks the torque ripple seen in a log; that
+/// answer is added back before (τ + K_p·δω)/τ̄ − 1 is regressed on cos kθ and sin kθ, so that a
+/// profile with this a and gain K_p gives the logged ripple again. (K_p cannot be fitted with a:
+/// δω is itself a sinusoid in kθ.)
+fn ripple_of(
+    r: &Recording,
+    th: &[f64],
+    w: &Window,
+    k: f64,
+    kp_n_m_s: f64,
+) -> (f64, Option<f64>) {
     let mut rows2 = Vec::new();
     let mut y2 = Vec::new();
-    let mut rows3 = Vec::new();
+    let mut rows_q = Vec::new();
     let mut y3 = Vec::new();
     for rev in &w.revs {
         if rev.hi <= rev.lo {
@@ -373,14 +391,14 @@ fn ripple_of(r: &Recording, th: &[f64], w: &Window, k: f64) -> (f64, Option<f64>
             y2.push(rad_s_to_rpm(dw));
             if let (Some(q), Some(mq)) = (&r.torque_n_m, mean_q) {
                 if mq > 0.0 {
-                    rows3.push([c, s, dw / mq]);
-                    y3.push(q[i] / mq - 1.0);
+                    rows_q.push([c, s]);
+                    y3.push((q[i] + kp_n_m_s * dw) / mq - 1.0);
                 }
             }
         }
     }
     let cadence = least_squares(&rows2, &y2).map_or(f64::NAN, |c| c[0].hypot(c[1]));
-    let torque = least_squares(&rows3, &y3).map(|c| c[0].hypot(c[1]));
+    let torque = least_squares(&rows_q, &y3).map(|c| c[0].hypot(c[1]));
     (cadence, torque)
 }
 
@@ -465,18 +483,36 @@ fn power_fit(logs: &[&Recording]) -> Option<PowerFit> {
     })
 }
 
-/// Fits the operator to the logs.
-pub fn fit(logs: &[&Recording]) -> OperatorFit {
+/// Fits the operator to the logs; `tracking_gain_n_m_per_rpm` is the operator's tracking gain
+/// K_p the torque ripple is read with (see [`ripple_of`]).
+pub fn fit(logs: &[&Recording], tracking_gain_n_m_per_rpm: f64) -> OperatorFit {
+    let kp_n_m_s = tracking_gain_n_m_per_rpm / crate::units::RAD_S_PER_RPM;
     let mut notes = Vec::new();
     let mut facts = Vec::new();
     // Revolution means, detrended per log, in log order; and the stretches for the ripple.
-    let mut series: Vec<Vec<(f64, f64)>> = Vec::new(); // per window: (duration, residual rpm)
+    // Per window: boxes of `per_box` whole revolutions as (revolutions, duration, residual rpm).
+    let mut series: Vec<Vec<(f64, f64, f64)>> = Vec::new();
     let mut ripple_in: Vec<(usize, Window)> = Vec::new();
     let mut angles_of = Vec::new();
     let (mut rest_count, mut hands_on, mut rest_lengths) = (0usize, 0.0, Vec::new());
-    for (li, r) in logs.iter().enumerate() {
-        let th = angles(r);
-        let ws = windows(r, &th);
+    let all_windows: Vec<(Vec<f64>, Vec<Window>)> = logs
+        .iter()
+        .map(|r| {
+            let th = angles(r);
+            let ws = windows(r, &th);
+            (th, ws)
+        })
+        .collect();
+    let (n_revs, rev_time) = all_windows
+        .iter()
+        .flat_map(|(_, ws)| ws.iter().flat_map(|w| w.revs.iter()))
+        .fold((0usize, 0.0), |(n, d), v| (n + 1, d + v.duration));
+    let per_box = if n_revs > 0 {
+        ((WANDER_BOX_S / (rev_time / n_revs as f64)).round() as usize).max(1)
+    } else {
+        1
+    };
+    for ((li, r), (th, ws)) in logs.iter().enumerate().zip(all_windows) {
         let stretches = r.stretches();
         let n_st = stretches.len();
         let mut rests = 0;
@@ -513,8 +549,14 @@ pub fn fit(logs: &[&Recording]) -> OperatorFit {
             for w in &ws {
                 series.push(
                     w.revs
-                        .iter()
-                        .map(|v| (v.duration, 60.0 / v.duration - a - b * v.t_mid))
+                        .chunks(per_box)
+                        .filter(|c| c.len() == per_box)
+                        .map(|c| {
+                            let d: f64 = c.iter().map(|v| v.duration).sum();
+                            let mid = 0.5 * (c[0].t_mid + c[c.len() - 1].t_mid);
+                            let n = c.len() as f64;
+                            (n, d, 60.0 * n / d - a - b * mid)
+                        })
                         .collect(),
                 );
             }
@@ -522,22 +564,24 @@ pub fn fit(logs: &[&Recording]) -> OperatorFit {
         angles_of.push(th);
         ripple_in.extend(ws.into_iter().map(|w| (li, w)));
     }
-    let revolutions: usize = series.iter().map(Vec::len).sum();
+    let boxes: usize = series.iter().map(Vec::len).sum();
+    let revolutions = boxes * per_box;
 
-    // Jackknife blocks over the revolutions in order; a lag pair belongs to its first revolution.
-    let blocks_n = JACKKNIFE_BLOCKS.min(revolutions / 10).max(1);
+    // Jackknife blocks over the boxes in order; a lag pair belongs to its first box.
+    let blocks_n = JACKKNIFE_BLOCKS.min(boxes / 10).max(1);
     let mut blocks = vec![Sums::default(); blocks_n];
     let mut idx = 0usize;
     for w in &series {
-        for (k, &(dur, x)) in w.iter().enumerate() {
-            let b = &mut blocks[(idx * blocks_n / revolutions.max(1)).min(blocks_n - 1)];
-            b.revs += 1.0;
+        for (k, &(n, dur, x)) in w.iter().enumerate() {
+            let b = &mut blocks[(idx * blocks_n / boxes.max(1)).min(blocks_n - 1)];
+            b.revs += n;
+            b.boxes += 1.0;
             b.duration += dur;
-            if let Some(&(_, x1)) = w.get(k + 1) {
+            if let Some(&(_, _, x1)) = w.get(k + 1) {
                 b.lag1 += x * x1;
                 b.n1 += 1.0;
             }
-            if let Some(&(_, x2)) = w.get(k + 2) {
+            if let Some(&(_, _, x2)) = w.get(k + 2) {
                 b.lag2 += x * x2;
                 b.n2 += 1.0;
             }
@@ -555,9 +599,9 @@ pub fn fit(logs: &[&Recording]) -> OperatorFit {
         )
     });
     let (mut wander, mut wander_time) = (None, None);
-    if revolutions < MIN_REVOLUTIONS {
+    if boxes < MIN_BOXES {
         notes.push(format!(
-            "{revolutions} whole revolutions with the hands on (at least {MIN_REVOLUTIONS} are needed for the wander)"
+            "{boxes} boxes of {per_box} whole revolution(s) with the hands on (at least {MIN_BOXES} are needed for the wander)"
         ));
     } else if let Some((sigma, tau)) = total.ou() {
         wander = Some(Estimate::new(sigma, jackknife(&blocks, |s| s.ou().map(|o| o.0))));
@@ -589,7 +633,7 @@ pub fn fit(logs: &[&Recording]) -> OperatorFit {
             let mut tq = Vec::new();
             for (li, w) in &ripple_in {
                 let n = w.revs.iter().map(|v| v.hi - v.lo).sum::<usize>() as f64;
-                let (c, q) = ripple_of(logs[*li], &angles_of[*li], w, f64::from(k));
+                let (c, q) = ripple_of(logs[*li], &angles_of[*li], w, f64::from(k), kp_n_m_s);
                 if c.is_finite() {
                     cad.push((c, n));
                 }

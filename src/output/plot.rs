@@ -13,6 +13,7 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 use super::font;
 
 pub mod design;
+pub mod measured;
 use crate::analysis::events::{Event, EventKind};
 use crate::analysis::trace::{Trace, TraceRow};
 

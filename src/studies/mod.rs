@@ -4,7 +4,9 @@
 pub mod check;
 pub mod check_usb;
 pub mod compare;
+pub mod compare_measured;
 pub mod fit;
+pub mod fit_operator;
 pub mod goal;
 pub mod merge;
 pub mod montecarlo;
