@@ -149,7 +149,10 @@ fn angles(r: &Recording) -> Vec<f64> {
 
 /// Angle at time t by linear interpolation between samples.
 fn angle_at(r: &Recording, th: &[f64], t: f64) -> f64 {
-    let k = r.time_s.partition_point(|&s| s <= t).clamp(1, r.time_s.len() - 1);
+    let k = r
+        .time_s
+        .partition_point(|&s| s <= t)
+        .clamp(1, r.time_s.len() - 1);
     let (t0, t1) = (r.time_s[k - 1], r.time_s[k]);
     let f = ((t - t0) / (t1 - t0)).clamp(0.0, 1.0);
     th[k - 1] + f * (th[k] - th[k - 1])
@@ -182,7 +185,8 @@ fn windows(r: &Recording, th: &[f64]) -> Vec<Window> {
         let mut start = a;
         let mut start_angle = angle_at(r, th, a);
         let mut k = r.time_s.partition_point(|&t| t < a).max(1);
-        while let Some((end, k_end)) = time_of_angle(r, th, k, start_angle + std::f64::consts::TAU) {
+        while let Some((end, k_end)) = time_of_angle(r, th, k, start_angle + std::f64::consts::TAU)
+        {
             if end > b {
                 break;
             }
@@ -351,7 +355,11 @@ fn weighted(values: &[(f64, f64)]) -> Option<Estimate> {
     let mean = values.iter().map(|(v, k)| v * k).sum::<f64>() / w;
     let n = values.len() as f64;
     let se = if values.len() >= 2 {
-        let var = values.iter().map(|(v, k)| k * (v - mean).powi(2)).sum::<f64>() / w;
+        let var = values
+            .iter()
+            .map(|(v, k)| k * (v - mean).powi(2))
+            .sum::<f64>()
+            / w;
         (var * n / (n - 1.0)).sqrt() / n.sqrt()
     } else {
         f64::NAN
@@ -365,13 +373,7 @@ fn weighted(values: &[(f64, f64)]) -> Option<Estimate> {
 /// answer is added back before (τ + K_p·δω)/τ̄ − 1 is regressed on cos kθ and sin kθ, so that a
 /// profile with this a and gain K_p gives the logged ripple again. (K_p cannot be fitted with a:
 /// δω is itself a sinusoid in kθ.)
-fn ripple_of(
-    r: &Recording,
-    th: &[f64],
-    w: &Window,
-    k: f64,
-    kp_n_m_s: f64,
-) -> (f64, Option<f64>) {
+fn ripple_of(r: &Recording, th: &[f64], w: &Window, k: f64, kp_n_m_s: f64) -> (f64, Option<f64>) {
     let mut rows2 = Vec::new();
     let mut y2 = Vec::new();
     let mut rows_q = Vec::new();
@@ -381,9 +383,10 @@ fn ripple_of(
             continue;
         }
         let mean_w = std::f64::consts::TAU / rev.duration;
-        let mean_q = r.torque_n_m.as_ref().map(|q| {
-            q[rev.lo..rev.hi].iter().sum::<f64>() / (rev.hi - rev.lo) as f64
-        });
+        let mean_q = r
+            .torque_n_m
+            .as_ref()
+            .map(|q| q[rev.lo..rev.hi].iter().sum::<f64>() / (rev.hi - rev.lo) as f64);
         for i in rev.lo..rev.hi {
             let (c, s) = ((k * th[i]).cos(), (k * th[i]).sin());
             let dw = r.crank_rad_s[i] - mean_w;
@@ -540,7 +543,10 @@ pub fn fit(logs: &[&Recording], tracking_gain_n_m_per_rpm: f64) -> OperatorFit {
             revolutions: revs,
         });
         if revs >= 3 {
-            let x: Vec<f64> = ws.iter().flat_map(|w| w.revs.iter().map(|v| v.t_mid)).collect();
+            let x: Vec<f64> = ws
+                .iter()
+                .flat_map(|w| w.revs.iter().map(|v| v.t_mid))
+                .collect();
             let y: Vec<f64> = ws
                 .iter()
                 .flat_map(|w| w.revs.iter().map(|v| 60.0 / v.duration))
@@ -604,8 +610,14 @@ pub fn fit(logs: &[&Recording], tracking_gain_n_m_per_rpm: f64) -> OperatorFit {
             "{boxes} boxes of {per_box} whole revolution(s) with the hands on (at least {MIN_BOXES} are needed for the wander)"
         ));
     } else if let Some((sigma, tau)) = total.ou() {
-        wander = Some(Estimate::new(sigma, jackknife(&blocks, |s| s.ou().map(|o| o.0))));
-        wander_time = Some(Estimate::new(tau, jackknife(&blocks, |s| s.ou().map(|o| o.1))));
+        wander = Some(Estimate::new(
+            sigma,
+            jackknife(&blocks, |s| s.ou().map(|o| o.0)),
+        ));
+        wander_time = Some(Estimate::new(
+            tau,
+            jackknife(&blocks, |s| s.ou().map(|o| o.1)),
+        ));
     } else {
         notes.push("the cadence wander is not identified: the revolution means show no decaying correlation (lag-2 over lag-1 autocovariance outside 0 … 1)".into());
     }
@@ -673,7 +685,8 @@ pub fn fit(logs: &[&Recording], tracking_gain_n_m_per_rpm: f64) -> OperatorFit {
         let l = floored_exponential_mean(m, MIN_REST_S);
         let n = rest_lengths.len() as f64;
         let se_mean = if n >= 2.0 {
-            (rest_lengths.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt() / n.sqrt()
+            (rest_lengths.iter().map(|v| (v - m).powi(2)).sum::<f64>() / (n - 1.0)).sqrt()
+                / n.sqrt()
         } else {
             f64::NAN
         };
@@ -760,7 +773,10 @@ mod tests {
         let m = means.iter().sum::<f64>() / means.len() as f64;
         let cov = |lag: usize| {
             let n = means.len() - lag;
-            (0..n).map(|k| (means[k] - m) * (means[k + lag] - m)).sum::<f64>() / n as f64
+            (0..n)
+                .map(|k| (means[k] - m) * (means[k + lag] - m))
+                .sum::<f64>()
+                / n as f64
         };
         let (s, t) = ou_from_box_means(cov(1), cov(2), per_box as f64 * dt).expect("identified");
         assert!((s - sigma).abs() < 0.05 * sigma, "sigma {s}");

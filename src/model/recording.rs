@@ -140,10 +140,7 @@ impl Recording {
             None => (self.crank_rad_s.as_slice(), CADENCE_OFF_FRACTION),
         };
         let threshold = fraction * median(values.iter().copied().filter(|v| *v > 0.0));
-        values
-            .iter()
-            .map(|&v| v > 0.0 && v > threshold)
-            .collect()
+        values.iter().map(|&v| v > 0.0 && v > threshold).collect()
     }
 
     /// The recording split into stretches with the hands on and off (see
@@ -217,7 +214,12 @@ mod tests {
     use super::*;
 
     fn rec(t: &[f64], w: &[f64], q: Option<&[f64]>) -> Recording {
-        Recording::new("r.csv".into(), t.to_vec(), w.to_vec(), q.map(<[f64]>::to_vec))
+        Recording::new(
+            "r.csv".into(),
+            t.to_vec(),
+            w.to_vec(),
+            q.map(<[f64]>::to_vec),
+        )
     }
 
     #[test]

@@ -210,15 +210,15 @@ fn replay_profile(
     };
     let (mut p, text) = parse_with::<Profile>(&outline, ovs)?;
     if p.replay.follow == Follow::Torque && rec.torque_n_m.is_none() {
-        let place = ovs
-            .iter()
-            .find(|(_, k)| k.starts_with("replay"))
-            .map_or(Place::FileOnly { file: src.name.clone() }, |(o, _)| {
-                Place::Override {
-                    key: o.key.clone(),
-                    value: o.value.clone(),
-                }
-            });
+        let place = ovs.iter().find(|(_, k)| k.starts_with("replay")).map_or(
+            Place::FileOnly {
+                file: src.name.clone(),
+            },
+            |(o, _)| Place::Override {
+                key: o.key.clone(),
+                value: o.value.clone(),
+            },
+        );
         return Err(InputError::Range {
             place,
             path: format!("{PROFILE_PREFIX}replay.follow"),

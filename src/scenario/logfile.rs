@@ -134,7 +134,10 @@ enum Claim {
 fn claim(header: &str, ch: &Channel) -> Claim {
     let find = |token: &str| {
         let t = normalise_unit(token);
-        ch.units.iter().find(|u| u.names.contains(&t.as_str())).copied()
+        ch.units
+            .iter()
+            .find(|u| u.names.contains(&t.as_str()))
+            .copied()
     };
     if let Some((stem, unit)) = bracketed(header) {
         if ch.stems.contains(&stem.as_str()) {
@@ -153,10 +156,7 @@ fn claim(header: &str, ch: &Channel) -> Claim {
                 Some(u) => Claim::Unit(u),
                 None => Claim::NoUnit,
             }
-        } else if let Some(token) = h
-            .strip_prefix(stem)
-            .and_then(|rest| rest.strip_prefix('_'))
-        {
+        } else if let Some(token) = h.strip_prefix(stem).and_then(|rest| rest.strip_prefix('_')) {
             match find(token) {
                 Some(u) => Claim::Unit(u),
                 None => Claim::NearMiss,
@@ -387,7 +387,12 @@ pub fn read(
         .headers()
         .map_err(|e| {
             let line = e.position().map_or(1, |p| p.line() as usize);
-            err(file, line, None, format!("could not read the header line: {e}"))
+            err(
+                file,
+                line,
+                None,
+                format!("could not read the header line: {e}"),
+            )
         })?
         .clone();
     let header_line = headers.position().map_or(1, |p| p.line() as usize);
@@ -399,10 +404,8 @@ pub fn read(
     };
     let mut time_s = Vec::new();
     let mut lines = Vec::new();
-    let mut values: Vec<Option<Vec<f64>>> = found[1..]
-        .iter()
-        .map(|f| f.map(|_| Vec::new()))
-        .collect();
+    let mut values: Vec<Option<Vec<f64>>> =
+        found[1..].iter().map(|f| f.map(|_| Vec::new())).collect();
     for rec in rdr.records() {
         let rec = rec.map_err(|e| {
             let line = e.position().map_or(0, |p| p.line() as usize);
@@ -539,8 +542,10 @@ mod tests {
 
     #[test]
     fn units_in_either_form_convert_to_si_and_other_columns_are_ignored() {
-        let t = read_v("# made up\ntime (ms), battery_temp_c, battery [mV]\n0, 20, 12000\n500, 21, 12500\n")
-            .expect("read");
+        let t = read_v(
+            "# made up\ntime (ms), battery_temp_c, battery [mV]\n0, 20, 12000\n500, 21, 12500\n",
+        )
+        .expect("read");
         assert_eq!(t.time_s, vec![0.0, 0.5]);
         assert_eq!(t.values[0].as_deref(), Some(&[12.0, 12.5][..]));
         assert_eq!(t.columns[0].as_deref(), Some("battery [mV]"));
@@ -552,11 +557,20 @@ mod tests {
     #[test]
     fn each_bad_case_names_line_column_and_rule() {
         let e = read_v("time_s,battery_v\n0,12\n1,NaN\n").unwrap_err();
-        assert!(e.starts_with("b.csv:3: column `battery_v`: 'NaN' is not a value"), "{e}");
+        assert!(
+            e.starts_with("b.csv:3: column `battery_v`: 'NaN' is not a value"),
+            "{e}"
+        );
         let e = read_v("time_s,battery_v\n0,12\n2,12\n1,12\n").unwrap_err();
-        assert!(e.contains("b.csv:4: column `time_s`: 1 s comes after 2 s (line 3)"), "{e}");
+        assert!(
+            e.contains("b.csv:4: column `time_s`: 1 s comes after 2 s (line 3)"),
+            "{e}"
+        );
         let e = read_v("time_s,battery_v\n0,12\n0,12\n").unwrap_err();
-        assert!(e.contains("b.csv:3: column `time_s`: 0 s repeats the time of line 2"), "{e}");
+        assert!(
+            e.contains("b.csv:3: column `time_s`: 0 s repeats the time of line 2"),
+            "{e}"
+        );
         let e = read_v("time_s,battery_v\n0,12\n30,12\n").unwrap_err();
         assert!(e.contains("a gap of 30 s after 0 s (line 2)"), "{e}");
         let e = read_v("time_s,battery (kV)\n0,12\n").unwrap_err();
@@ -564,11 +578,17 @@ mod tests {
         let e = read_v("time_s,battery\n0,12\n").unwrap_err();
         assert!(e.contains("needs its unit in the header"), "{e}");
         let e = read_v("time_s,battery_kv\n0,12\n").unwrap_err();
-        assert!(e.contains("no battery voltage column") && e.contains("`battery_kv` may be meant"), "{e}");
+        assert!(
+            e.contains("no battery voltage column") && e.contains("`battery_kv` may be meant"),
+            "{e}"
+        );
         let e = read_v("time_s,battery_v\n0,12\n1\n").unwrap_err();
         assert!(e.contains("b.csv:3: 1 cells where the header has 2"), "{e}");
         let e = read_v("time_s,battery_v\n0,-3\n").unwrap_err();
-        assert!(e.contains("-3 V is out of range; allowed 0 ..= 100 V"), "{e}");
+        assert!(
+            e.contains("-3 V is out of range; allowed 0 ..= 100 V"),
+            "{e}"
+        );
         let e = read_v("time_s,battery_v\n0,12\n").unwrap_err();
         assert!(e.contains("1 sample(s)"), "{e}");
         let e = read_v("time_s,battery_v,battery_voltage (V)\n0,12,12\n").unwrap_err();

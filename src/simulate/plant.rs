@@ -580,8 +580,7 @@ impl Plant {
             // A replay that imposes torque feeds the recorded torque forward; the same loop then
             // only corrects the drift from the recorded cadence.
             let imposed = self.replay.as_ref().and_then(|r| r.imposed_torque_n_m(t));
-            let ff = imposed
-                .unwrap_or_else(|| j_eff * rpm_to_rad_s(slope_rpm * spin + spin_slope));
+            let ff = imposed.unwrap_or_else(|| j_eff * rpm_to_rad_s(slope_rpm * spin + spin_slope));
             let cmd = self
                 .operator
                 .command_n_m(omega_t, omega_c, y[OP_INTEGRATOR], ff);
@@ -592,8 +591,7 @@ impl Plant {
                 Some(_) => 1.0,
                 None => {
                     1.0 + self.ripple_fraction
-                        * (self.ripple_peaks_per_rev * y[CRANK_ANGLE] + self.ripple_phase_rad)
-                            .cos()
+                        * (self.ripple_peaks_per_rev * y[CRANK_ANGLE] + self.ripple_phase_rad).cos()
                 }
             };
             (sat * ripple, cmd, sat)

@@ -204,7 +204,10 @@ pub fn run(a: &CompareMeasuredArgs) -> Result<i32, Failure> {
     if !trace_path.is_file() {
         return Err(Failure::Input(anyhow!(
             "'{}' holds no trace.csv: give a folder written by `crankcharge run`",
-            crate::text::excerpt(&a.run_dir.display().to_string(), 2 * crate::text::EXCERPT_CHARS)
+            crate::text::excerpt(
+                &a.run_dir.display().to_string(),
+                2 * crate::text::EXCERPT_CHARS
+            )
         )));
     }
     let sim = read_table(&trace_path, &[BATTERY_V, BATTERY_I, SOC], "a run's trace")?;
@@ -290,7 +293,9 @@ pub fn run(a: &CompareMeasuredArgs) -> Result<i32, Failure> {
     .integral(w0, w1);
     let charge_error_pct = percent_error(q_sim, q_meas, CHARGE_FLOOR_AS);
     if charge_error_pct.is_none() {
-        notes.push("the bench log shows no charge over the window: no charge error in per cent".into());
+        notes.push(
+            "the bench log shows no charge over the window: no charge error in per cent".into(),
+        );
     }
     let (setup, profile) = run_names(&a.run_dir);
     let mut rms = std::collections::BTreeMap::new();
@@ -478,6 +483,8 @@ pub fn run(a: &CompareMeasuredArgs) -> Result<i32, Failure> {
 }
 
 fn file_name(p: &Path) -> String {
-    p.file_name()
-        .map_or_else(|| p.display().to_string(), |n| n.to_string_lossy().into_owned())
+    p.file_name().map_or_else(
+        || p.display().to_string(),
+        |n| n.to_string_lossy().into_owned(),
+    )
 }

@@ -169,9 +169,27 @@ fn profile_text(
     };
     let (cp, wp, peak) = match (&fit.power, all_out) {
         (Some(p), true) => {
-            let cp = within(p.critical_power_w.value, 5.0, 500.0, "operator.critical_power_w", notes);
-            let wp = within(p.w_prime_j.value, 0.0, 100_000.0, "operator.w_prime_j", notes);
-            let peak = within(p.peak_power_w.max(cp), cp.max(5.0), 2000.0, "operator.peak_power_w", notes);
+            let cp = within(
+                p.critical_power_w.value,
+                5.0,
+                500.0,
+                "operator.critical_power_w",
+                notes,
+            );
+            let wp = within(
+                p.w_prime_j.value,
+                0.0,
+                100_000.0,
+                "operator.w_prime_j",
+                notes,
+            );
+            let peak = within(
+                p.peak_power_w.max(cp),
+                cp.max(5.0),
+                2000.0,
+                "operator.peak_power_w",
+                notes,
+            );
             (cp, wp, peak)
         }
         (None, true) => {
@@ -201,10 +219,7 @@ fn profile_text(
         format!("defaults kept: {}", defaults.join(", "))
     };
     let name = name.replace(['"', '\\'], "_");
-    let logs: Vec<String> = files
-        .iter()
-        .map(|f| crate::text::excerpt(f, 60))
-        .collect();
+    let logs: Vec<String> = files.iter().map(|f| crate::text::excerpt(f, 60)).collect();
     format!(
         "// crankcharge crank profile written by `crankcharge fit-operator` from {n} log(s): {logs}.\n\
          // One segment at the mean cadence for the longest log's length; wander, ripple and rests\n\
@@ -255,8 +270,11 @@ pub fn run(a: &FitOperatorArgs) -> Result<i32, Failure> {
     let mut notes = fit.notes.clone();
     let text = profile_text(&fit, a.all_out, &a.name, &files, &mut notes);
     // The written profile must load as any profile does.
-    let parsed: Profile = ron::from_str(&text)
-        .map_err(|e| Failure::Other(anyhow!("the fitted profile does not parse ({e}); please report this")))?;
+    let parsed: Profile = ron::from_str(&text).map_err(|e| {
+        Failure::Other(anyhow!(
+            "the fitted profile does not parse ({e}); please report this"
+        ))
+    })?;
     if let Some(v) = validate::profile(&parsed).first() {
         return Err(Failure::Other(anyhow!(
             "the fitted profile breaks a range ({} = {}; allowed {}); please report this",
@@ -308,7 +326,10 @@ pub fn run(a: &FitOperatorArgs) -> Result<i32, Failure> {
         .write("profile.ron", text.as_bytes())
         .map_err(|e| Failure::Other(e.into()))?;
     staging
-        .write("fit.json", &to_json(&json).map_err(|e| Failure::Other(e.into()))?)
+        .write(
+            "fit.json",
+            &to_json(&json).map_err(|e| Failure::Other(e.into()))?,
+        )
         .map_err(|e| Failure::Other(e.into()))?;
 
     let rows = estimate_rows(&fit);
@@ -383,7 +404,12 @@ fn estimate_rows(fit: &OperatorFit) -> Vec<Vec<String>> {
     };
     push("mean cadence", fit.mean_cadence_rpm, 2, "rpm");
     push("wander strength (OU sigma)", fit.wander_rpm, 2, "rpm");
-    push("wander correlation time (OU tau)", fit.wander_time_s, 2, "s");
+    push(
+        "wander correlation time (OU tau)",
+        fit.wander_time_s,
+        2,
+        "s",
+    );
     if let Some(r) = &fit.ripple {
         push(
             &format!("cadence ripple ({} a turn)", r.peaks_per_rev),

@@ -79,6 +79,12 @@ pub fn run_page(sc: &Scenario, m: &Summary, svg: Option<&str>) -> Page {
         ("fidelity".into(), m.fidelity.clone()),
     ];
     facts.extend(provenance(sc));
+    if let Some(r) = &m.replay {
+        facts.push((
+            "replay".into(),
+            format!("{}; {}", super::run::replay_line(r), r.resampling),
+        ));
+    }
     facts.extend([
         ("session".into(), format!("{:.0} s", m.duration_s)),
         (

@@ -185,6 +185,9 @@ fn report(s: &Session, dir: &std::path::Path) {
         "setup {}  profile {}  seed {}  {} fidelity",
         m.setup, m.profile, m.seed, m.fidelity
     ));
+    if let Some(r) = &m.replay {
+        say(&format!("  {}", replay_line(r)));
+    }
     say(&format!(
         "  {:.0} s session: SOC {:.3} -> {:.3}, {:.4} Ah ({:.2} Wh) into the battery",
         m.duration_s, m.soc_start, m.soc_end, m.charge_delivered_ah, m.energy_to_battery_wh
@@ -245,6 +248,14 @@ fn report(s: &Session, dir: &std::path::Path) {
         say("    a single operator cannot decide a marginal figure: run `crankcharge montecarlo` on this setup for the spread over operators");
     }
     say(&format!("  wrote {}", dir.display()));
+}
+
+/// What a replayed session followed, in one line.
+pub fn replay_line(r: &crate::analysis::summary::ReplaySummary) -> String {
+    format!(
+        "replay of {}: {} samples over {:.1} s, following the recorded {}",
+        r.log, r.samples, r.span_s, r.follows
+    )
 }
 
 /// One line naming the rows by kind: verdict-affecting alerts first, then informational episodes

@@ -52,8 +52,8 @@ impl Figure for OverlayFig<'_> {
         let n = self.panels.len().max(1);
         let areas = charts.split_evenly((n, 1));
         for (i, (area, p)) in areas.iter().zip(self.panels).enumerate() {
-            let y = Span::of(p.simulated.iter().chain(&p.measured).map(|q| q.1))
-                .axis(0.06, (0.0, 1.0));
+            let y =
+                Span::of(p.simulated.iter().chain(&p.measured).map(|q| q.1)).axis(0.06, (0.0, 1.0));
             let last = i + 1 == n;
             let text = PanelText {
                 caption: &p.caption,
@@ -110,8 +110,12 @@ mod tests {
         let p = OverlayPanel {
             caption: "Battery voltage".into(),
             y_desc: "V".into(),
-            simulated: (0..100).map(|k| (f64::from(k), 12.0 + 0.01 * f64::from(k))).collect(),
-            measured: (0..100).map(|k| (f64::from(k), 12.02 + 0.01 * f64::from(k))).collect(),
+            simulated: (0..100)
+                .map(|k| (f64::from(k), 12.0 + 0.01 * f64::from(k)))
+                .collect(),
+            measured: (0..100)
+                .map(|k| (f64::from(k), 12.02 + 0.01 * f64::from(k)))
+                .collect(),
         };
         let r = overlay_chart(&[p.clone(), p], "test").expect("drawn");
         assert!(r.png.starts_with(&[0x89, b'P', b'N', b'G']));
