@@ -88,66 +88,81 @@ fn known(text: &str) -> KnownProfile {
 #[test]
 fn a_runs_own_trace_replayed_reproduces_its_charge_within_one_percent() {
     let wd = WorkDir::new();
-    // 130 s of the steady profile take in its first rest (about 105 s in).
-    run_ok(
-        &wd,
-        &[
-            "run",
-            "--profile",
-            "steady",
-            "--duration",
-            "130",
-            "--out",
-            "orig",
-            "--no-plot",
-        ],
-    );
-    let orig = read_json(&wd.path("orig/summary.json"));
-    let stdout = run_ok(
-        &wd,
-        &[
-            "run",
-            "--profile",
-            "orig/trace.csv",
-            "--out",
-            "again",
-            "--no-plot",
-        ],
-    );
-    assert!(stdout.contains("profile file orig/trace.csv"), "{stdout}");
-    let again = read_json(&wd.path("again/summary.json"));
-    let (q0, q1) = (
-        num(&orig, "charge_delivered_ah"),
-        num(&again, "charge_delivered_ah"),
-    );
-    assert!(q0 > 0.01, "the original run charged: {q0}");
-    assert!(((q1 - q0) / q0).abs() < 0.01, "charge {q1} vs {q0}");
-    // The session lasts as long as the log, and the summary says what it followed.
-    assert!((num(&again, "duration_s") - 130.0).abs() < 1e-3);
-    assert_eq!(again["replay"]["follows"], "torque");
-    assert_eq!(again["replay"]["samples"], 1301);
-    assert!(orig["replay"].is_null());
-    // The replayed trace follows the recorded cadence closely (rms over the session).
-    let (h0, r0) = read_csv(&wd.path("orig/trace.csv"));
-    let (h1, r1) = read_csv(&wd.path("again/trace.csv"));
-    let w0 = crate::common::column(&h0, &r0, "crank_rpm");
-    let w1 = crate::common::column(&h1, &r1, "crank_rpm");
-    assert_eq!(w0.len(), w1.len());
-    let rms = (w0
-        .iter()
-        .zip(&w1)
-        .map(|(a, b)| (a - b).powi(2))
-        .sum::<f64>()
-        / w0.len() as f64)
-        .sqrt();
-    assert!(rms < 2.0, "cadence rms difference {rms} rpm");
+    // Every shipped setup; 130 s of the steady profile take in its first rest (about 105 s in).
+    for (k, setup) in crate::common::shipped_setups().iter().enumerate() {
+        let setup = setup.display().to_string();
+        let (orig, again) = (format!("orig{k}"), format!("again{k}"));
+        run_ok(
+            &wd,
+            &[
+                "run",
+                &setup,
+                "--profile",
+                "steady",
+                "--duration",
+                "130",
+                "--out",
+                &orig,
+                "--no-plot",
+            ],
+        );
+        let trace = format!("{orig}/trace.csv");
+        let stdout = run_ok(
+            &wd,
+            &[
+                "run",
+                &setup,
+                "--profile",
+                &trace,
+                "--out",
+                &again,
+                "--no-plot",
+            ],
+        );
+        assert!(
+            stdout.contains(&format!("profile file {trace}")),
+            "{stdout}"
+        );
+        let s0 = read_json(&wd.path(&format!("{orig}/summary.json")));
+        let s1 = read_json(&wd.path(&format!("{again}/summary.json")));
+        let (q0, q1) = (
+            num(&s0, "charge_delivered_ah"),
+            num(&s1, "charge_delivered_ah"),
+        );
+        assert!(q0 > 0.005, "{setup}: the original run charged: {q0}");
+        assert!(
+            ((q1 - q0) / q0).abs() < 0.01,
+            "{setup}: charge {q1} vs {q0}"
+        );
+        // The session lasts as long as the log, and the summary says what it followed.
+        assert!((num(&s1, "duration_s") - 130.0).abs() < 1e-3);
+        assert_eq!(s1["replay"]["follows"], "torque");
+        assert_eq!(s1["replay"]["samples"], 1301);
+        assert!(s0["replay"].is_null());
+        // The replayed trace follows the recorded cadence closely (rms over the session).
+        let (h0, r0) = read_csv(&wd.path(&format!("{orig}/trace.csv")));
+        let (h1, r1) = read_csv(&wd.path(&format!("{again}/trace.csv")));
+        let w0 = crate::common::column(&h0, &r0, "crank_rpm");
+        let w1 = crate::common::column(&h1, &r1, "crank_rpm");
+        assert_eq!(w0.len(), w1.len());
+        let rms = (w0
+            .iter()
+            .zip(&w1)
+            .map(|(a, b)| (a - b).powi(2))
+            .sum::<f64>()
+            / w0.len() as f64)
+            .sqrt();
+        assert!(rms < 2.0, "{setup}: cadence rms difference {rms} rpm");
+    }
     // Following the cadence alone (the PI source tracking it) stays close too.
+    let setup0 = crate::common::shipped_setups()[0].display().to_string();
     run_ok(
         &wd,
         &[
             "run",
+            &setup0,
             "--profile",
-            "orig/trace.csv",
+            "orig0/trace.csv",
             "--set",
             "profile.replay.follow=cadence",
             "--out",
@@ -157,6 +172,10 @@ fn a_runs_own_trace_replayed_reproduces_its_charge_within_one_percent() {
     );
     let cad = read_json(&wd.path("cad/summary.json"));
     assert_eq!(cad["replay"]["follows"], "cadence");
+    let q0 = num(
+        &read_json(&wd.path("orig0/summary.json")),
+        "charge_delivered_ah",
+    );
     let q2 = num(&cad, "charge_delivered_ah");
     assert!(
         ((q2 - q0) / q0).abs() < 0.05,
@@ -731,4 +750,107 @@ fn the_shipped_samples_are_labelled_and_run_through_all_three_commands() {
     let c = read_json(&wd.path("bench/comparison.json"));
     // The invented rig differs from the demo setup (an aged pack): the voltage shows it.
     assert!(num(&c, "rms.battery_v") > 0.01, "{c}");
+}
+
+// ---------------------------------------------------------------------------------------------
+// Corrupted logs
+// ---------------------------------------------------------------------------------------------
+
+#[test]
+fn corrupted_logs_run_or_are_refused_clearly_never_a_panic() {
+    use rand::rngs::StdRng;
+    use rand::{RngExt, SeedableRng};
+    let wd = WorkDir::new();
+    let mut base = String::from("# a log\ntime_s,crank_rpm,operator_torque_n_m\n");
+    for k in 0..=60 {
+        let t = f64::from(k) * 0.1;
+        base.push_str(&format!(
+            "{t:.1},{:.2},{:.3}\n",
+            60.0 + 3.0 * t.sin(),
+            4.0 + t.cos()
+        ));
+    }
+    let bench = "time_s,battery_v,battery_current_a\n0,11,1\n2,11.1,1\n4,11.2,1\n6,11.2,0.9\n";
+    std::fs::write(wd.path("bench.csv"), bench).expect("write");
+    run_ok(&wd, &["run", "--duration", "6", "--out", "r", "--no-plot"]);
+    let pieces = [
+        "", ",", "\n", "-", "NaN", "1e999", "x", "#", "\"", "0", "ms", " (rpm)",
+    ];
+    let mut rng = StdRng::seed_from_u64(16);
+    let (mut accepted, mut refused) = (0, 0);
+    for case in 0..40 {
+        let mut text: Vec<char> = base.chars().collect();
+        for _ in 0..rng.random_range(1..4) {
+            let at = rng.random_range(0..text.len());
+            match rng.random_range(0..3) {
+                0 => {
+                    text.remove(at);
+                }
+                1 => {
+                    let p = pieces[rng.random_range(0..pieces.len())];
+                    for (k, c) in p.chars().enumerate() {
+                        text.insert(at + k, c);
+                    }
+                }
+                _ => {
+                    let j = rng.random_range(0..text.len());
+                    text.swap(at, j);
+                }
+            }
+        }
+        let text: String = text.into_iter().collect();
+        std::fs::write(wd.path("log.csv"), &text).expect("write");
+        std::fs::write(
+            wd.path("benchx.csv"),
+            text.replace("crank_rpm", "battery_v")
+                .replace("operator_torque_n_m", "battery_current_a"),
+        )
+        .expect("write");
+        for args in [
+            vec![
+                "run",
+                "--profile",
+                "log.csv",
+                "--out",
+                "o",
+                "--no-plot",
+                "--force",
+            ],
+            vec!["fit-operator", "log.csv", "--out", "f", "--force"],
+            vec![
+                "compare-measured",
+                "r",
+                "benchx.csv",
+                "--out",
+                "c",
+                "--no-plot",
+                "--force",
+            ],
+        ] {
+            let out = wd.cmd().args(&args).output().expect("spawn");
+            let stderr = String::from_utf8_lossy(&out.stderr);
+            assert!(
+                !stderr.contains("panicked"),
+                "case {case} {args:?}: {stderr}\n{text}"
+            );
+            match out.status.code() {
+                Some(0) => accepted += 1,
+                Some(2) => {
+                    refused += 1;
+                    assert!(
+                        stderr.starts_with("crankcharge: error: log.csv:")
+                            || stderr.starts_with("crankcharge: error: benchx.csv:")
+                            || stderr.contains("do not overlap"),
+                        "case {case} {args:?}: a refusal names the file and line: {stderr}"
+                    );
+                }
+                other => panic!("case {case} {args:?}: exit {other:?}\n{stderr}\n{text}"),
+            }
+        }
+    }
+    // Both outcomes occur, or the test proves little.
+    assert!(
+        accepted > 10 && refused > 10,
+        "{accepted} accepted, {refused} refused"
+    );
 }

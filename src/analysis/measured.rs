@@ -41,8 +41,8 @@ impl Series<'_> {
         let hi = ts.partition_point(|&s| s < b);
         let mut prev = (a, self.at(a));
         let mut sum = 0.0;
-        for k in lo..hi {
-            let p = (ts[k], self.values[k]);
+        for (&t, &v) in ts[lo..hi].iter().zip(&self.values[lo..hi]) {
+            let p = (t, v);
             sum += 0.5 * (prev.1 + p.1) * (p.0 - prev.0);
             prev = p;
         }

@@ -330,10 +330,11 @@ fn least_squares<const N: usize>(rows: &[[f64; N]], y: &[f64]) -> Option<[f64; N
         }
         a.swap(c, p);
         b.swap(c, p);
+        let pivot = a[c];
         for r in c + 1..N {
-            let f = a[r][c] / a[c][c];
-            for j in c..N {
-                a[r][j] -= f * a[c][j];
+            let f = a[r][c] / pivot[c];
+            for (x, p) in a[r][c..].iter_mut().zip(&pivot[c..]) {
+                *x -= f * p;
             }
             b[r] -= f * b[c];
         }

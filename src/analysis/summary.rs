@@ -127,7 +127,8 @@ pub struct Summary {
     /// Highest instantaneous operator power, the per-turn torque ripple riding on the mean
     /// (trace grid), W.
     pub peak_instant_operator_power_w: f64,
-    /// The recorded log a replayed session followed (`null` for a planned profile).
+    /// The recorded log a replayed session followed (absent for a planned profile).
+    #[serde(skip_serializing_if = "Option::is_none")]
     pub replay: Option<ReplaySummary>,
 }
 

@@ -58,8 +58,9 @@ pub const TIME: Channel = Channel {
         },
     ],
     required: true,
-    min: -1e9,
-    max: 1e9,
+    // Wide enough for a logger's epoch seconds.
+    min: -1e12,
+    max: 1e12,
     why: "",
 };
 
@@ -382,7 +383,7 @@ pub fn read(
     let mut rdr = csv::ReaderBuilder::new()
         .comment(Some(b'#'))
         .trim(csv::Trim::All)
-        .from_reader(text.as_bytes());
+        .from_reader(text.strip_prefix('\u{feff}').unwrap_or(text).as_bytes());
     let headers = rdr
         .headers()
         .map_err(|e| {
@@ -551,6 +552,10 @@ mod tests {
         assert_eq!(t.columns[0].as_deref(), Some("battery [mV]"));
         assert_eq!(t.lines, vec![3, 4]);
         assert_eq!(normalise_unit("N·m"), "n_m");
+        // A byte-order mark and epoch seconds are read as well.
+        let t =
+            read_v("\u{feff}time_s,battery_v\n1733212800.0,12\n1733212800.5,12\n").expect("read");
+        assert_eq!(t.time_s[1] - t.time_s[0], 0.5);
         assert_eq!(normalise_unit(" rad / s "), "rad_s");
     }
 
