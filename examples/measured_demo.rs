@@ -56,9 +56,15 @@ fn main() -> Result<(), Box<dyn std::error::Error>> {
     Ok(())
 }
 
-/// V = k_e·ω − R·I for an invented PMDC machine, with noise on the voltage and the speed.
+/// V = k_e·ω − R·I for the demo setup's generator, with noise on the voltage and the speed.
 fn generator_table(dir: &Path) -> Result<(), Box<dyn std::error::Error>> {
-    let (ke_v_per_krpm, r_ohm) = (12.0, 1.5);
+    let demo = load_scenario(
+        &setup()?,
+        &SourceText::resolve(None, InputKind::Profile)?,
+        &[],
+    )?;
+    let g = &demo.setup.generator;
+    let (ke_v_per_krpm, r_ohm) = (g.back_emf_v_per_krpm, g.resistance_ohm);
     let mut rng = StdRng::seed_from_u64(11);
     let dv = Normal::new(0.0, 0.03)?;
     let drpm = Normal::new(0.0, 2.0)?;

@@ -854,3 +854,53 @@ fn corrupted_logs_run_or_are_refused_clearly_never_a_panic() {
         "{accepted} accepted, {refused} refused"
     );
 }
+
+#[test]
+fn a_search_and_a_sweep_take_a_log_as_their_profile() {
+    let wd = WorkDir::new();
+    write_log(&wd, "log.csv", "time_s,crank_rpm", |t| {
+        format!("{t:.1},{}", rpm_at(t))
+    });
+    run_ok(
+        &wd,
+        &[
+            "search",
+            "--profile",
+            "log.csv",
+            "--vary",
+            "drive.stages.0.ratio=4..6:2",
+            "--vary",
+            "profile.cadence_scale=0.9,1.0",
+            "--refine-starts",
+            "0",
+            "--out",
+            "s",
+            "--no-plot",
+        ],
+    );
+    // The log's keys cannot be written into a CSV file: best.ron names them as --set options,
+    // and they load back with it.
+    let best = std::fs::read_to_string(wd.path("s/best.ron")).expect("best.ron");
+    assert!(
+        best.contains("// Profile: the log log.csv with --set profile.cadence_scale="),
+        "{best}"
+    );
+    assert!(!wd.path("s/best-profile.ron").exists());
+    run_ok(
+        &wd,
+        &[
+            "sweep",
+            "--profile",
+            "log.csv",
+            "--param",
+            "profile.replay.follow",
+            "--values",
+            "cadence,auto",
+            "--out",
+            "w",
+            "--no-plot",
+        ],
+    );
+    let (h, rows) = read_csv(&wd.path("w/sweep.csv"));
+    assert_eq!(rows.len(), 2, "{h:?}");
+}
