@@ -44,3 +44,36 @@ impl Replay {
         self.recording.cadence_rad_s(0.0).0
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::units::RAD_S_PER_RPM;
+
+    #[test]
+    fn target_is_the_recording_with_offset_and_scale_and_torque_only_when_imposed() {
+        // A linear ramp of 60 → 70 rpm over 10 s: the monotone cubic reproduces a line exactly.
+        let t: Vec<f64> = (0..=10).map(f64::from).collect();
+        let w: Vec<f64> = t.iter().map(|s| (60.0 + s) * RAD_S_PER_RPM).collect();
+        let rec = Arc::new(Recording::new(
+            "r.csv".into(),
+            t.clone(),
+            w,
+            Some(vec![5.0; t.len()]),
+        ));
+        let r = Replay {
+            recording: rec.clone(),
+            imposes_torque: false,
+        };
+        let (rpm, slope) = r.target_rpm(4.5, 2.0, 0.5);
+        assert!((rpm - (64.5 + 2.0) * 0.5).abs() < 1e-9, "{rpm}");
+        assert!((slope - 0.5).abs() < 1e-9, "{slope}");
+        assert_eq!(r.imposed_torque_n_m(3.0), None);
+        let r = Replay {
+            recording: rec,
+            imposes_torque: true,
+        };
+        assert!((r.imposed_torque_n_m(3.0).unwrap() - 5.0).abs() < 1e-12);
+        assert!((r.start_speed_rad_s() - 60.0 * RAD_S_PER_RPM).abs() < 1e-12);
+    }
+}

@@ -121,13 +121,20 @@ pub struct CompareMeasuredArgs {
 
 fn parse_offset(s: &str) -> Result<f64, String> {
     let t = s.trim();
+    let limit = crate::scenario::limits::MAX_SESSION_S;
+    if let Ok(v) = t.parse::<f64>() {
+        return if v.is_finite() && v.abs() <= limit {
+            Ok(v)
+        } else {
+            Err(format!(
+                "offset '{s}' out of range; allowed -7 days ..= 7 days"
+            ))
+        };
+    }
     let (sign, rest) = match t.strip_prefix('-') {
         Some(r) => (-1.0, r),
         None => (1.0, t),
     };
-    if rest.trim() == "0" {
-        return Ok(0.0);
-    }
     crate::cli::parse_duration(rest).map(|v| sign * v)
 }
 
