@@ -4,6 +4,8 @@ pub mod episodes;
 pub mod events;
 pub mod fit;
 pub mod invariants;
+pub mod measured;
+pub mod operator_fit;
 pub mod pareto;
 pub mod stats;
 pub mod summary;

@@ -127,6 +127,24 @@ pub struct Summary {
     /// Highest instantaneous operator power, the per-turn torque ripple riding on the mean
     /// (trace grid), W.
     pub peak_instant_operator_power_w: f64,
+    /// The recorded log a replayed session followed (absent for a planned profile).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub replay: Option<ReplaySummary>,
+}
+
+/// What a replayed session followed (`summary.json` `replay`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct ReplaySummary {
+    /// The log file as given.
+    pub log: String,
+    pub samples: usize,
+    /// Time from its first to its last sample, s.
+    pub span_s: f64,
+    /// `torque` (the recorded torque fed forward, the loop correcting the drift from the
+    /// recorded cadence) or `cadence` (the loop tracking the recorded cadence).
+    pub follows: String,
+    /// The resampling, in words.
+    pub resampling: String,
 }
 
 /// Window over which the lowest sustained cadence is averaged, s: a few crank turns, so that the

@@ -38,6 +38,10 @@ pub enum Command {
     FitGenerator(crate::studies::fit::FitArgs),
     /// Vary several fields at once over a population of operators; constraints, an objective, the best setup.
     Search(crate::studies::search::SearchArgs),
+    /// Estimate an operator (cadence, wander, ripple, rests, CP and W′) from recorded crank logs; write a profile.
+    FitOperator(crate::studies::fit_operator::FitOperatorArgs),
+    /// Set a simulated run against a measured battery log: error per channel, charge error, overlay chart.
+    CompareMeasured(crate::studies::compare_measured::CompareMeasuredArgs),
     /// Join the parts of a sharded search into the study the unsharded search would write.
     Merge(crate::studies::merge::MergeArgs),
 }
@@ -54,6 +58,8 @@ pub fn run(cli: Cli) -> i32 {
         Command::FitGenerator(a) => crate::studies::fit::run(&a),
         Command::Search(a) => crate::studies::search::run(&a),
         Command::Merge(a) => crate::studies::merge::run(&a),
+        Command::FitOperator(a) => crate::studies::fit_operator::run(&a),
+        Command::CompareMeasured(a) => crate::studies::compare_measured::run(&a),
     };
     match outcome {
         Ok(code) => code,

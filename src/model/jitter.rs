@@ -10,7 +10,7 @@ use crate::scenario::profile::Jitter;
 /// Spacing of the wander knots, s; smooth interpolation between them keeps the solver's steps long.
 pub const WANDER_KNOT_S: f64 = 0.25;
 /// Shortest rest drawn, s.
-const MIN_REST_S: f64 = 0.5;
+pub const MIN_REST_S: f64 = 0.5;
 
 /// A rest or hand change: the operator lets go of the crank.
 #[derive(Debug, Clone, Copy, PartialEq)]

@@ -11,6 +11,7 @@ pub mod interp;
 pub mod jitter;
 pub mod network;
 pub mod operator;
+pub mod recording;
 pub mod roots;
 pub mod smooth;
 pub mod thermal;

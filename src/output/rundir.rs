@@ -20,7 +20,7 @@ const WRITTEN_BY: &str = "crankcharge";
 
 /// Every file name a study of this program writes into its folder. A folder without a marker
 /// (written by a version before markers) is recognised as ours when it holds only these names.
-pub const OWN_FILE_NAMES: [&str; 18] = [
+pub const OWN_FILE_NAMES: [&str; 25] = [
     "trace.csv",
     "events.csv",
     "summary.json",
@@ -38,6 +38,13 @@ pub const OWN_FILE_NAMES: [&str; 18] = [
     "montecarlo.png",
     "montecarlo.svg",
     "operating_map.csv",
+    "profile.ron",
+    "fit.json",
+    "fit.png",
+    "fit.svg",
+    "comparison.json",
+    "comparison.png",
+    "comparison.svg",
     MARKER,
 ];
 

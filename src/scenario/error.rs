@@ -60,4 +60,13 @@ pub enum InputError {
     Override { key: String, message: String },
     #[error("{0}")]
     Usage(String),
+    /// A measured log (CSV): the file, the line, the column as written in the header (None for
+    /// a problem with the whole row) and the rule it breaks.
+    #[error("{}:{line}: {}{rule}", excerpt(.file, 4 * EXCERPT_CHARS), .column.as_ref().map_or_else(String::new, |c| format!("column `{c}`: ")))]
+    Log {
+        file: String,
+        line: usize,
+        column: Option<String>,
+        rule: String,
+    },
 }

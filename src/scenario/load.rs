@@ -7,8 +7,9 @@ use crate::text::excerpt;
 
 use super::demo;
 use super::error::{InputError, Place};
-use super::profile::Profile;
+use super::profile::{Follow, Profile};
 use super::quantity;
+use super::replay;
 use super::ronpath::{self, Segment};
 use super::setup::Setup;
 use super::suggest;
@@ -171,7 +172,11 @@ pub fn load_scenario(
         }
     }
     let (s, s_text) = parse_with::<Setup>(setup, &setup_ov)?;
-    let (p, p_text) = parse_with::<Profile>(profile, &profile_ov)?;
+    let (p, p_text) = if replay::is_log(profile) {
+        replay_profile(profile, &profile_ov)?
+    } else {
+        parse_with::<Profile>(profile, &profile_ov)?
+    };
     report(validate::setup(&s), setup, &s_text, &setup_ov, "")?;
     report(
         validate::profile(&p),
@@ -189,6 +194,43 @@ pub fn load_scenario(
         setup_text: s_text,
         profile_text: p_text,
     })
+}
+
+/// A crank log as a profile: the log read and checked, its outline written as profile text (see
+/// `replay`), the overrides applied to that text, and the recording attached.
+fn replay_profile(
+    src: &SourceText,
+    ovs: &[(&Override, &str)],
+) -> Result<(Profile, String), InputError> {
+    let rec = replay::read(src)?;
+    let outline = SourceText {
+        name: src.name.clone(),
+        text: replay::profile_text(&rec, &src.stem()),
+        built_in: src.built_in,
+    };
+    let (mut p, text) = parse_with::<Profile>(&outline, ovs)?;
+    if p.replay.follow == Follow::Torque && rec.torque_n_m.is_none() {
+        let place = ovs.iter().find(|(_, k)| k.starts_with("replay")).map_or(
+            Place::FileOnly {
+                file: src.name.clone(),
+            },
+            |(o, _)| Place::Override {
+                key: o.key.clone(),
+                value: o.value.clone(),
+            },
+        );
+        return Err(InputError::Range {
+            place,
+            path: format!("{PROFILE_PREFIX}replay.follow"),
+            value: "torque".into(),
+            allowed: format!(
+                "auto or cadence: the log has no `{}` column",
+                replay::TORQUE.name
+            ),
+        });
+    }
+    p.recording = Some(std::sync::Arc::new(rec));
+    Ok((p, text))
 }
 
 /// Applies overrides to the text, then parses it with positions and field paths.

@@ -1,6 +1,10 @@
 //! How the person cranks: cadence segments, jitter and the operator's capacities (a profile `.ron` file).
 
+use std::sync::Arc;
+
 use serde::{Deserialize, Serialize};
+
+use crate::model::recording::Recording;
 
 /// A crank profile: what the operator tries to do, and what they can do.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
@@ -25,6 +29,32 @@ pub struct Profile {
     /// Human-like variation.
     #[serde(default)]
     pub jitter: Jitter,
+    /// How a recorded log is replayed (`--profile LOG.csv`); a planned profile ignores it.
+    #[serde(default)]
+    pub replay: Replay,
+    /// The recording, when the profile is a log (read from the CSV file, not a RON field).
+    #[serde(skip)]
+    pub recording: Option<Arc<Recording>>,
+}
+
+/// How a recorded log drives the crank.
+#[derive(Debug, Clone, Serialize, Deserialize, PartialEq, Default)]
+#[serde(deny_unknown_fields, default)]
+pub struct Replay {
+    /// `auto` (the recorded torque when the log has it, else the cadence), `cadence` (the
+    /// operator's PI source tracks the recorded cadence) or `torque` (the recorded torque is
+    /// applied as it is).
+    pub follow: Follow,
+}
+
+/// What a replay imposes.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq, Eq, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum Follow {
+    #[default]
+    Auto,
+    Cadence,
+    Torque,
 }
 
 fn one() -> f64 {
@@ -136,6 +166,15 @@ impl Default for Jitter {
 }
 
 impl Profile {
+    /// Whether a replay applies the recorded torque (a log with torque, not told to follow its
+    /// cadence); false for a planned profile.
+    pub fn imposes_torque(&self) -> bool {
+        match &self.recording {
+            Some(r) => r.torque_n_m.is_some() && self.replay.follow != Follow::Cadence,
+            None => false,
+        }
+    }
+
     /// Sum of the segment durations, s.
     pub fn total_duration_s(&self) -> f64 {
         self.segments.iter().map(|s| s.duration_s).sum()

@@ -360,6 +360,11 @@ pub fn initial_state(plant: &Plant, soc_start: f64, battery_temp_c: f64) -> Stat
     y[BATTERY_TEMP] = battery_temp_c;
     y[WINDING_TEMP] = plant.ambient_c;
     y[JUNCTION_TEMP] = plant.ambient_c;
+    // A replayed log may start with the crank already turning.
+    if let Some(r) = &plant.replay {
+        y[CRANK_SPEED] = r.start_speed_rad_s();
+        y[GEN_SPEED] = y[CRANK_SPEED] * plant.drive.ratio;
+    }
     if plant.fidelity == Fidelity::Detailed {
         let rest = plant.battery.terminal(&Plant::battery_state(&y)).v(0.0).0;
         y[OUTPUT_V] = rest;

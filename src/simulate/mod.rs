@@ -5,6 +5,7 @@ pub mod fidelity;
 pub mod observe;
 pub mod plant;
 pub mod progress;
+pub mod replay;
 pub mod state;
 pub mod stiff;
 pub mod transitions;

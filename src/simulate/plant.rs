@@ -20,6 +20,7 @@ use crate::scenario::setup::{Alerts, Setup, Topology};
 use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
 
 use super::fidelity::Fidelity;
+use super::replay::Replay;
 use super::state::*;
 use super::usb_port::{device_charger, usb_gains, usb_in_regulation};
 
@@ -155,6 +156,9 @@ pub struct Plant {
     pub usb: Option<UsbModel>,
     /// Detailed fidelity with a USB port: loop gains designed for the bus.
     pub usb_gains: Option<ControllerGains>,
+    /// A replayed log: the target cadence (and, when it imposes torque, the operator's torque)
+    /// comes from the recording; the segments then only say when the hands are on the crank.
+    pub replay: Option<Replay>,
 }
 
 /// What the charger asks of the converter at one instant.
@@ -373,6 +377,10 @@ impl Plant {
             ripple_phase_rad,
             ripple_peaks_per_rev: f64::from(profile.jitter.ripple_peaks_per_rev),
             alerts: setup.alerts.clone(),
+            replay: profile.recording.clone().map(|recording| Replay {
+                recording,
+                imposes_torque: profile.imposes_torque(),
+            }),
         })
     }
 
@@ -405,6 +413,9 @@ impl Plant {
         if rpm <= 0.0 {
             return (0.0, 0.0);
         }
+        if let Some(r) = &self.replay {
+            return r.target_rpm(t, self.cadence_offset_rpm, self.cadence_scale);
+        }
         (
             (rpm + self.cadence_offset_rpm).max(0.0) * self.cadence_scale,
             slope * self.cadence_scale,
@@ -417,6 +428,17 @@ impl Plant {
             .iter()
             .map(|s| s.end_s)
             .chain(self.crank_starts.iter().map(|t| t + self.spin_up_s))
+    }
+
+    /// The operator's torque envelope at crank speed ω (see `OperatorModel::envelope_n_m`), N·m;
+    /// a replay that imposes torque raises it to the recorded torque (the recording is what the
+    /// person did), so only the loop's correction meets the envelope.
+    pub fn envelope_n_m(&self, t: f64, omega: f64, w_prime_j: f64) -> f64 {
+        let env = self.operator.envelope_n_m(omega, w_prime_j);
+        match self.replay.as_ref().and_then(|r| r.imposed_torque_n_m(t)) {
+            Some(q) => env.max(q),
+            None => env,
+        }
     }
 
     /// Spin-up factor 0 … 1: how far the operator has brought the target up since the last start.
@@ -556,15 +578,23 @@ impl Plant {
             } else {
                 0.0
             };
-            let ff = j_eff * rpm_to_rad_s(slope_rpm * spin + spin_slope);
+            // A replay that imposes torque feeds the recorded torque forward; the same loop then
+            // only corrects the drift from the recorded cadence.
+            let imposed = self.replay.as_ref().and_then(|r| r.imposed_torque_n_m(t));
+            let ff = imposed.unwrap_or_else(|| j_eff * rpm_to_rad_s(slope_rpm * spin + spin_slope));
             let cmd = self
                 .operator
                 .command_n_m(omega_t, omega_c, y[OP_INTEGRATOR], ff);
-            let env = self.operator.envelope_n_m(omega_c, y[W_PRIME]);
+            let env = self.envelope_n_m(t, omega_c, y[W_PRIME]);
             let sat = cmd.clamp(0.0, env);
-            let ripple = 1.0
-                + self.ripple_fraction
-                    * (self.ripple_peaks_per_rev * y[CRANK_ANGLE] + self.ripple_phase_rad).cos();
+            let ripple = match imposed {
+                // The recorded torque carries its own ripple.
+                Some(_) => 1.0,
+                None => {
+                    1.0 + self.ripple_fraction
+                        * (self.ripple_peaks_per_rev * y[CRANK_ANGLE] + self.ripple_phase_rad).cos()
+                }
+            };
             (sat * ripple, cmd, sat)
         } else {
             (0.0, 0.0, 0.0)
@@ -842,7 +872,7 @@ impl Plant {
         dy[CRANK_SPEED] = p.crank_accel;
         dy[GEN_SPEED] = p.gen_accel;
         dy[OP_INTEGRATOR] = if p.cranking {
-            let env = self.operator.envelope_n_m(p.crank_speed, y[W_PRIME]);
+            let env = self.envelope_n_m(p.t, p.crank_speed, y[W_PRIME]);
             let sat = p.operator_command_n_m.clamp(0.0, env);
             self.operator.integrator_rate(
                 rpm_to_rad_s(p.target_rpm),

@@ -14,7 +14,7 @@ use super::session::{run_session, run_session_watched, RunSettings, Session, Ses
 /// Options shared by every command that runs sessions.
 #[derive(Debug, Clone, Args)]
 pub struct SessionArgs {
-    /// Crank profile: a .ron path or a shipped name (steady, tiring, sprint-and-rest, uneven, overreach).
+    /// Crank profile: a .ron path, a shipped name (steady, tiring, sprint-and-rest, uneven, overreach), or a recorded crank log LOG.csv to replay.
     #[arg(long, short = 'p')]
     pub profile: Option<String>,
     /// Seed of the operator's jitter (default: the profile's seed).

@@ -31,7 +31,7 @@ pub use super::statics::MAX_SEARCH_RPM;
 pub struct CheckArgs {
     /// Setup file (.ron) or shipped name; none checks the embedded demo.
     pub setup: Option<String>,
-    /// Crank profile: a .ron path or a shipped name (steady, tiring, sprint-and-rest, uneven, overreach).
+    /// Crank profile: a .ron path, a shipped name (steady, tiring, sprint-and-rest, uneven, overreach), or a recorded crank log LOG.csv.
     #[arg(long, short = 'p')]
     pub profile: Option<String>,
     /// Override a field by its dotted path, e.g. drive.stages.0.ratio=18.

@@ -48,3 +48,11 @@ pub fn thresholds_digest(m: &Summary) -> String {
     ));
     s
 }
+
+/// What a replayed session followed, in one line.
+pub fn replay_line(r: &crate::analysis::summary::ReplaySummary) -> String {
+    format!(
+        "replay of {}: {} samples over {:.1} s, following the recorded {}",
+        r.log, r.samples, r.span_s, r.follows
+    )
+}

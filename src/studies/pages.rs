@@ -79,6 +79,12 @@ pub fn run_page(sc: &Scenario, m: &Summary, svg: Option<&str>) -> Page {
         ("fidelity".into(), m.fidelity.clone()),
     ];
     facts.extend(provenance(sc));
+    if let Some(r) = &m.replay {
+        facts.push((
+            "replay".into(),
+            format!("{}; {}", super::digest::replay_line(r), r.resampling),
+        ));
+    }
     facts.extend([
         ("session".into(), format!("{:.0} s", m.duration_s)),
         (
@@ -268,6 +274,49 @@ pub fn study_page(
     Page {
         title: title.to_string(),
         subtitle: made_by(what),
+        blocks: b,
+    }
+}
+
+/// The page of a study on measured data (`fit-operator`, `compare-measured`): facts, notes, a
+/// table, charts, preformatted texts (heading, text) and the general cautions.
+pub fn data_page(
+    what: &str,
+    title: &str,
+    facts: Vec<(String, String)>,
+    notes: Vec<String>,
+    table: (Vec<String>, Vec<Vec<String>>),
+    charts: Vec<(String, String)>,
+    texts: Vec<(String, String)>,
+) -> Page {
+    let mut b = vec![Block::Facts(facts)];
+    for n in notes {
+        b.push(Block::Paragraph(n));
+    }
+    b.push(Block::Heading("Results".into()));
+    b.push(Block::Table {
+        header: table.0,
+        rows: table.1,
+    });
+    for (svg, caption) in charts {
+        b.push(Block::Chart { svg, caption });
+    }
+    for (heading, text) in texts {
+        b.push(Block::Heading(heading));
+        b.push(Block::Code(text));
+    }
+    b.push(Block::Heading("Cautions".into()));
+    b.push(Block::List(vec![
+        "Cranks, belts, pulleys and flywheels trap fingers, hair and clothing: guard the pinch points and every moving part.".to_string(),
+        "Lithium cells can vent hot gas or catch fire when overcharged, charged outside their temperature window or short-circuited; lead-acid batteries give off hydrogen when they gas. Measure on the bench with a fused, current-limited supply and a battery management system.".to_string(),
+        "A simulation is no substitute for a certified charge controller, a battery management system, local electrical codes or licensed practice; follow the battery maker's limits.".to_string(),
+    ]));
+    Page {
+        title: title.to_string(),
+        subtitle: format!(
+            "{what} · crankcharge {} · measured data set against the model: see the cautions at the end",
+            env!("CARGO_PKG_VERSION")
+        ),
         blocks: b,
     }
 }

@@ -10,7 +10,7 @@ use crate::output::{csv, json, report, rundir::Staging};
 use crate::scenario::Scenario;
 
 use super::args::{scenario_from, session_with_bar, settings_from, SessionArgs};
-use super::digest::{rows_digest, thresholds_digest};
+use super::digest::{replay_line, rows_digest, thresholds_digest};
 use super::session::Session;
 
 /// Arguments of `run`.
@@ -98,6 +98,9 @@ fn report(s: &Session, dir: &std::path::Path) {
         "setup {}  profile {}  seed {}  {} fidelity",
         m.setup, m.profile, m.seed, m.fidelity
     ));
+    if let Some(r) = &m.replay {
+        say(&format!("  {}", replay_line(r)));
+    }
     say(&format!(
         "  {:.0} s session: SOC {:.3} -> {:.3}, {:.4} Ah ({:.2} Wh) into the battery",
         m.duration_s, m.soc_start, m.soc_end, m.charge_delivered_ah, m.energy_to_battery_wh

@@ -485,6 +485,10 @@ fn best_texts(study: &Study, row: &Row) -> Result<(String, Option<String>), Fail
     let mut setup = study.setup_src.text.clone();
     let mut profile = study.profile_src.text.clone();
     let mut profile_touched = false;
+    // A recorded log (`--profile LOG.csv`) has no RON text to write its keys into: they stay
+    // `--set` options, named in best.ron's header.
+    let log_profile = crate::scenario::replay::is_log(&study.profile_src);
+    let mut log_sets: Vec<crate::scenario::load::Override> = Vec::new();
     let pairs = study
         .base_set
         .iter()
@@ -503,7 +507,9 @@ fn best_texts(study: &Study, row: &Row) -> Result<(String, Option<String>), Fail
             .map_err(|e| Failure::Other(anyhow!("writing best.ron: {e}")))
     };
     for (key, value) in pairs {
-        if is_profile_key(&key) {
+        if is_profile_key(&key) && log_profile {
+            log_sets.push(crate::scenario::load::Override { key, value });
+        } else if is_profile_key(&key) {
             profile = edit(&profile, &key[PROFILE_PREFIX.len()..], &value)?;
             profile_touched = true;
         } else {
@@ -523,6 +529,19 @@ fn best_texts(study: &Study, row: &Row) -> Result<(String, Option<String>), Fail
         study.setup_src.name,
         study.describe(&row.values)
     );
+    let head = if log_sets.is_empty() {
+        head
+    } else {
+        let sets: Vec<String> = log_sets
+            .iter()
+            .map(|o| format!("--set {}={}", o.key, o.value))
+            .collect();
+        format!(
+            "{head}// Profile: the log {} with {}.\n",
+            study.profile_src.name,
+            sets.join(" ")
+        )
+    };
     let setup = format!("{head}{setup}");
     let profile = profile_touched.then(|| {
         format!(
@@ -538,14 +557,15 @@ fn best_texts(study: &Study, row: &Row) -> Result<(String, Option<String>), Fail
             text: setup.clone(),
             built_in: false,
         },
-        &SourceText {
-            name: "best-profile.ron".into(),
-            text: profile
-                .clone()
-                .unwrap_or_else(|| study.profile_src.text.clone()),
-            built_in: false,
+        &match &profile {
+            Some(text) => SourceText {
+                name: "best-profile.ron".into(),
+                text: text.clone(),
+                built_in: false,
+            },
+            None => study.profile_src.clone(),
         },
-        &[],
+        &log_sets,
     );
     if let Err(e) = check {
         return Err(Failure::Other(anyhow!(

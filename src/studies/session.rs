@@ -6,7 +6,7 @@ use std::time::Instant;
 use crate::analysis::episodes::{self, Timing};
 use crate::analysis::events::{Event, EventKind};
 use crate::analysis::invariants;
-use crate::analysis::summary::{self, Summary, UsbSummary, Verdict, MARGINAL};
+use crate::analysis::summary::{self, ReplaySummary, Summary, UsbSummary, Verdict, MARGINAL};
 use crate::analysis::trace::Trace;
 use crate::model::jitter::JitterTrack;
 use crate::scenario::alerts::Alerts;
@@ -477,6 +477,21 @@ fn summarise(
         solver: r.stats,
         usb: usb_summary(sc, r),
         peak_instant_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
+        replay: sc.profile.recording.as_ref().map(|rec| ReplaySummary {
+            log: rec.file.clone(),
+            samples: rec.time_s.len(),
+            span_s: rec.span_s(),
+            follows: if sc.profile.imposes_torque() {
+                "torque"
+            } else {
+                "cadence"
+            }
+            .to_string(),
+            resampling: format!(
+                "samples closer than {} s averaged, then a monotone cubic (Fritsch-Carlson) through them; the last value holds past the end",
+                crate::model::recording::KNOT_SPACING_S
+            ),
+        }),
     }
 }
 

@@ -15,6 +15,7 @@ use super::font;
 mod compare;
 pub mod design;
 mod histogram;
+pub mod measured;
 mod session;
 mod sweep;
 
