@@ -714,6 +714,7 @@ fn buck_boost_runs_as_a_buck_above_the_battery_and_saves_losses() {
         diode: &plant.diode,
         emf_v: 24.0,
         resistance_ohm: plant.generator.resistance_ohm(20.0),
+        commutation_ohm: 0.0,
     };
     let mut d = initial_discrete(&plant, &y);
     d.buck_mode = false;

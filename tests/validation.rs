@@ -596,6 +596,7 @@ fn diode_blocks_reverse_current() {
             diode,
             emf_v: emf,
             resistance_ohm: g.resistance_ohm(25.0),
+            commutation_ohm: 0.0,
         };
         network::solve(&src, Load::Direct, &battery.terminal(&bs))
     };
@@ -836,6 +837,7 @@ fn buck_network_regulates_above_dropout_edge_and_drops_out_below() {
             diode: &plant.diode,
             emf_v: emf,
             resistance_ohm: plant.generator.resistance_ohm(20.0),
+            commutation_ohm: 0.0,
         };
         let load = Load::Buck {
             model: &plant.buck,
@@ -1032,6 +1034,7 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         cogging_periods: 1.0,
         winding_heat_capacity_j_per_k: 60.0,
         winding_to_ambient_w_per_k: 0.8,
+        alternator: None,
     };
     let diode = DiodeModel::Ideal {
         forward_v: v_f,
@@ -1063,6 +1066,7 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
             diode: &diode,
             emf_v: emf,
             resistance_ohm: r_g,
+            commutation_ohm: 0.0,
         };
         usb_network::solve(&src, &conv, port, (5.0, 1.5), demand, &cell)
     };

@@ -770,8 +770,11 @@ fn alert_panel(kind: EventKind) -> Option<usize> {
         | EventKind::Lockout
         | EventKind::DeviceCutoff
         | EventKind::ModelRange
-        | EventKind::ThermalFoldback => Some(1),
-        EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => Some(2),
+        | EventKind::ThermalFoldback
+        | EventKind::MissedEndOfCharge => Some(1),
+        EventKind::BatteryOvertemp | EventKind::ChargeTempWindow | EventKind::TemperatureRise => {
+            Some(2)
+        }
         EventKind::OperatorOverload => Some(3),
         EventKind::RegulationLoss | EventKind::ChargeComplete => None,
     }
@@ -790,6 +793,8 @@ fn alert_label(kind: EventKind) -> &'static str {
         EventKind::DeviceCutoff => "device cut off",
         EventKind::ModelRange => "model range",
         EventKind::ThermalFoldback => "thermal foldback",
+        EventKind::MissedEndOfCharge => "missed end of charge",
+        EventKind::TemperatureRise => "battery heating fast",
     }
 }
 
@@ -806,6 +811,8 @@ fn alert_color(kind: EventKind) -> RGBColor {
         EventKind::DeviceCutoff => RGBColor(20, 140, 120),
         EventKind::ModelRange => RGBColor(120, 120, 120),
         EventKind::ThermalFoldback => RGBColor(168, 84, 20),
+        EventKind::MissedEndOfCharge => RGBColor(150, 20, 60),
+        EventKind::TemperatureRise => RGBColor(214, 70, 40),
     }
 }
 

@@ -243,6 +243,11 @@ pub fn timing(a: &Alerts, kind: EventKind) -> Timing {
         EventKind::DeviceCutoff => (a.device_cutoff.dwell_s, a.device_cutoff.merge_gap_s),
         EventKind::ModelRange => (a.model_range.dwell_s, a.model_range.merge_gap_s),
         EventKind::ThermalFoldback => (a.thermal_foldback.dwell_s, a.thermal_foldback.merge_gap_s),
+        EventKind::MissedEndOfCharge => (
+            a.missed_end_of_charge.dwell_s,
+            a.missed_end_of_charge.merge_gap_s,
+        ),
+        EventKind::TemperatureRise => (a.temperature_rise.dwell_s, a.temperature_rise.merge_gap_s),
         // A period from the termination to the session end: every one is a row.
         EventKind::ChargeComplete => (0.0, 0.0),
     };
