@@ -57,6 +57,12 @@ impl EventKind {
         }
     }
 
+    /// Whether a row of this kind means the battery was overcharged: past its voltage limit, or
+    /// (NiMH) full and still fast-charged.
+    pub fn is_overcharge(self) -> bool {
+        matches!(self, EventKind::Overcharge | EventKind::MissedEndOfCharge)
+    }
+
     /// Every kind, in the order of the README's alert table.
     pub const ALL: [EventKind; 13] = [
         EventKind::Overcharge,

@@ -215,32 +215,36 @@ impl Default for OperatorOverloadRule {
     }
 }
 
-/// NiMH overcharge: the current that no longer stores (it evolves oxygen, which recombines in
-/// the sealed cell as heat) above a rate the cell tolerates, while the charger is still in its
-/// fast charge.
+/// NiMH overcharge: the pack stores only a small part of a fast-charge current (it is full: the
+/// rest evolves oxygen, which recombines in the sealed cell as heat) while the charger is still in
+/// its fast charge.
 #[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields, default)]
 pub struct MissedEndRule {
-    /// Overcharge current that counts, as a fraction of the pack's capacity per hour (0.001 …
-    /// 10); default 0.1: sealed nickel cells recombine the oxygen of a continuous overcharge up to
-    /// about C/10 (the rate of the standard 14–16-h charge), not a fast charge's.
-    pub overcharge_c_rate: f64,
-    /// The episode ends once the overcharge current is this fraction of C lower (0 … 10);
-    /// default 0.02.
-    pub hysteresis_c_rate: f64,
-    /// Least time past the threshold, s (0 … 3600); default 10.
+    /// Alert when the pack stores less than this fraction of its charge current (0.01 … 0.99);
+    /// default 0.1: nine tenths of the current is heat. A −ΔV charger at 0.5–1 C ends while the
+    /// pack still stores 15–35 % (the model's NiMH pack, from 20 °C).
+    pub stored_fraction: f64,
+    /// The episode ends once the stored fraction is this much higher (0 … 0.5); default 0.05.
+    pub hysteresis_fraction: f64,
+    /// Only charge currents above this fraction of the capacity per hour count (0 … 10); default
+    /// 0.1: sealed nickel cells recombine the oxygen of a continuous overcharge up to about C/10
+    /// (the rate of the standard 14–16-h charge), not a fast charge's (common practice).
+    pub min_c_rate: f64,
+    /// Least time past the threshold, s (0 … 3600); default 30.
     pub dwell_s: f64,
-    /// Episodes closer than this are one, s (0 … 3600); default 30.
+    /// Episodes closer than this are one, s (0 … 3600); default 60.
     pub merge_gap_s: f64,
 }
 
 impl Default for MissedEndRule {
     fn default() -> Self {
         Self {
-            overcharge_c_rate: 0.1,
-            hysteresis_c_rate: 0.02,
-            dwell_s: 10.0,
-            merge_gap_s: 30.0,
+            stored_fraction: 0.1,
+            hysteresis_fraction: 0.05,
+            min_c_rate: 0.1,
+            dwell_s: 30.0,
+            merge_gap_s: 60.0,
         }
     }
 }

@@ -556,7 +556,7 @@ pub struct Battery {
     /// Arrhenius temperature of the resistances, K (0 … 10 000): R(T) = R25·exp(E·(1/T − 1/298.15)).
     #[serde(default = "default_activation")]
     pub resistance_activation_k: f64,
-    /// Coulombic efficiency below full (0.5 … 1): Li-ion, default 0.998; NiMH, default 0.95
+    /// Coulombic efficiency below full (0.5 … 1): Li-ion, default 0.998; NiMH, default 0.98
     /// (its charge acceptance falls further near full). Not used for lead-acid (Copetti's law) or
     /// a supercapacitor.
     #[serde(default, skip_serializing_if = "Option::is_none")]

@@ -904,14 +904,20 @@ fn alerts(c: &mut Checker, a: &Alerts) {
     );
     let m = &a.missed_end_of_charge;
     c.range(
-        "alerts.missed_end_of_charge.overcharge_c_rate",
-        m.overcharge_c_rate,
-        0.001,
-        10.0,
+        "alerts.missed_end_of_charge.stored_fraction",
+        m.stored_fraction,
+        0.01,
+        0.99,
     );
     c.range(
-        "alerts.missed_end_of_charge.hysteresis_c_rate",
-        m.hysteresis_c_rate,
+        "alerts.missed_end_of_charge.hysteresis_fraction",
+        m.hysteresis_fraction,
+        0.0,
+        0.5,
+    );
+    c.range(
+        "alerts.missed_end_of_charge.min_c_rate",
+        m.min_c_rate,
         0.0,
         10.0,
     );

@@ -161,11 +161,13 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
         u8::from(
             plant.battery_is_nimh()
                 && d.stage == Stage::Charging
+                && p.net.battery_current_a
+                    > a.missed_end_of_charge.min_c_rate * plant.battery.capacity_ah()
                 && past(
-                    overcharge_current_a(plant, p, y),
-                    a.missed_end_of_charge.overcharge_c_rate * plant.battery.capacity_ah(),
-                    a.missed_end_of_charge.hysteresis_c_rate * plant.battery.capacity_ah(),
-                    true,
+                    stored_fraction(plant, p, y),
+                    a.missed_end_of_charge.stored_fraction,
+                    a.missed_end_of_charge.hysteresis_fraction,
+                    false,
                     open[11] != 0,
                 ),
         ),
@@ -179,17 +181,11 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
     ]
 }
 
-/// The part of the charge current a battery does not store, A: (1 − η)·I while charging (a
-/// NiMH cell's oxygen current near full).
-pub fn overcharge_current_a(plant: &Plant, p: &Point, y: &State) -> f64 {
-    let i = p.net.battery_current_a;
-    if i <= 0.0 {
-        return 0.0;
-    }
-    (1.0 - plant
+/// The fraction of a charging current the battery stores (1 when it does not charge).
+pub fn stored_fraction(plant: &Plant, p: &Point, y: &State) -> f64 {
+    plant
         .battery
-        .charge_efficiency(i, &Plant::battery_state(y)))
-        * i
+        .charge_efficiency(p.net.battery_current_a, &Plant::battery_state(y))
 }
 
 /// A device cut off the bus, until it reconnects (cranking or not: the row's length is the time
@@ -330,11 +326,12 @@ fn reading(
             .below(),
         },
         EventKind::MissedEndOfCharge => Reading::of(
-            "overcharge_current_a",
-            "A",
-            overcharge_current_a(plant, p, y),
-            plant.alerts.missed_end_of_charge.overcharge_c_rate * plant.battery.capacity_ah(),
-        ),
+            "stored_fraction",
+            "1",
+            stored_fraction(plant, p, y),
+            plant.alerts.missed_end_of_charge.stored_fraction,
+        )
+        .below(),
         EventKind::TemperatureRise => Reading::of(
             "battery_temp_rate_c_per_min",
             "degC/min",
@@ -467,8 +464,8 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             _ => "CV current fell below the termination current: charge terminated".to_string(),
         },
         EventKind::MissedEndOfCharge => format!(
-            "pack full and still fast-charged: the current it does not store (oxygen, recombined as heat) is above C/{:.0}; the -dV/dT/dt end did not come",
-            1.0 / plant.alerts.missed_end_of_charge.overcharge_c_rate
+            "pack full and still fast-charged: it stores less than {:.0} % of the current (the rest evolves oxygen, recombined as heat); the -dV or dT/dt end did not come",
+            100.0 * plant.alerts.missed_end_of_charge.stored_fraction
         ),
         EventKind::TemperatureRise => format!(
             "battery temperature rising faster than {:.2} degC/min",

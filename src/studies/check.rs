@@ -20,7 +20,7 @@ use crate::model::battery::{BatteryModel, BatteryState};
 use crate::model::jitter::JitterTrack;
 use crate::model::network::{self, Load, NetworkPoint, Source};
 use crate::scenario::load::Override;
-use crate::scenario::setup::Topology;
+use crate::scenario::setup::{Chemistry, GeneratorKind, Topology};
 use crate::scenario::Scenario;
 use crate::simulate::plant::Plant;
 use crate::units::{rad_s_to_rpm, rpm_to_rad_s};
@@ -129,10 +129,31 @@ pub struct DriveFigures {
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct GeneratorFigures {
     pub back_emf_v_per_krpm: f64,
-    /// Armature resistance at ambient (cold winding), Ω.
+    /// Armature resistance at ambient (cold winding), Ω; an alternator's: the two phases in the
+    /// current's path.
     pub resistance_at_ambient_ohm: f64,
-    /// Open-circuit voltage per crank rpm, V/rpm.
+    /// Open-circuit voltage per crank rpm, V/rpm (an alternator's: its bridge's no-load average).
     pub open_circuit_v_per_crank_rpm: f64,
+    /// `brushed_dc` or `three_phase_pm`.
+    pub kind: String,
+    /// Three-phase alternator figures (None for a DC machine).
+    pub alternator: Option<AlternatorFigures>,
+}
+
+/// A three-phase alternator on its bridge.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct AlternatorFigures {
+    pub pole_pairs: u32,
+    /// Electrical frequency at the profile's cadence, Hz (p × the shaft's turns per second).
+    pub electrical_hz_at_profile_cadence: Option<f64>,
+    /// Synchronous reactance of a phase at the profile's cadence, Ω.
+    pub reactance_ohm_at_profile_cadence: Option<f64>,
+    /// DC current with the bridge's output shorted, A: the same at every speed.
+    pub short_circuit_current_a: Option<f64>,
+    /// Overlap mode of the bridge at the profile's operating point (1, 2 or 3) and the overlap
+    /// angle in mode I, degrees.
+    pub overlap_mode_at_profile_cadence: Option<u8>,
+    pub overlap_angle_deg_at_profile_cadence: Option<f64>,
 }
 
 /// Battery figures.
@@ -146,6 +167,49 @@ pub struct BatteryFigures {
     pub charge_limit_at_ambient_v: f64,
     /// Charge-temperature band at the start temperature (Li-ion), e.g. `standard`.
     pub temperature_band: String,
+    /// Supercapacitor energy figures (None for the other kinds).
+    pub supercap: Option<SupercapFigures>,
+    /// NiMH charger's end of charge (None for the other kinds).
+    pub nimh: Option<NimhFigures>,
+}
+
+/// A supercapacitor bank's energy.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SupercapFigures {
+    /// Capacitance of the bank, F.
+    pub capacitance_f: f64,
+    /// Rated voltage of the bank, V.
+    pub rated_v: f64,
+    /// Energy held at the rated voltage, Wh: ½·C·V².
+    pub energy_at_rated_wh: f64,
+    /// Lowest usable voltage of the bank, V.
+    pub min_v: f64,
+    /// Share of the energy that lies above the lowest usable voltage: 1 − (V_min/V_rated)².
+    pub usable_fraction: f64,
+    /// Energy between the rated and the lowest usable voltage, Wh.
+    pub usable_wh: f64,
+    /// Energy held at the start, Wh.
+    pub energy_at_start_wh: f64,
+    /// Time to reach the rated voltage from the start at the charge current, s: C·ΔV/I (the
+    /// leakage left out).
+    pub time_to_rated_at_charge_current_s: Option<f64>,
+    /// ESR of the bank, Ω.
+    pub esr_ohm: f64,
+}
+
+/// A NiMH charger's end of the fast charge.
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct NimhFigures {
+    /// Fast-charge rate, in units of the capacity per hour.
+    pub charge_c_rate: f64,
+    /// The voltage drop below the peak that ends the fast charge, V for the pack (0: off).
+    pub end_voltage_drop_v: f64,
+    /// The temperature rise rate that ends it, °C per minute (0: off).
+    pub end_temp_rise_c_per_min: f64,
+    /// Hold-off after each start, s.
+    pub end_holdoff_s: f64,
+    /// Trickle current after the end, A.
+    pub trickle_current_a: f64,
 }
 
 /// Converter (buck) figures.
@@ -592,6 +656,10 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         ));
     }
 
+    let alternator = alternator_figures(&st, setup, at_profile.as_ref());
+    let nimh = nimh_figures(plant);
+    storage_notes(plant, &mut notes);
+
     Report {
         setup: setup.name.clone(),
         profile: sc.profile.name.clone(),
@@ -609,6 +677,8 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             back_emf_v_per_krpm: setup.generator.back_emf_v_per_krpm,
             resistance_at_ambient_ohm: st.resistance_ohm,
             open_circuit_v_per_crank_rpm: st.emf_v(1.0),
+            kind: setup.generator.kind.as_str().to_string(),
+            alternator: alternator,
         },
         battery: BatteryFigures {
             soc_start: setup.battery.soc_start,
@@ -616,6 +686,8 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             rest_v_at_start: battery.terminal_v(0.0, &bs_start).0,
             charge_limit_at_ambient_v: charge_limit,
             temperature_band: band_word(band).to_string(),
+            supercap: supercap_figures(plant, setup.battery.soc_start),
+            nimh: nimh,
         },
         converter,
         direct,
@@ -625,6 +697,103 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         notes,
         cadence_range: None,
         cautions: cautions(sc),
+    }
+}
+
+/// A three-phase alternator's figures at the profile's operating point (None for a DC machine).
+fn alternator_figures(
+    st: &Statics,
+    setup: &crate::scenario::setup::Setup,
+    at: Option<&OperatingFigures>,
+) -> Option<AlternatorFigures> {
+    let g = &st.plant.generator;
+    let a = g.alternator?;
+    let omega = at.map(|at| rpm_to_rad_s(at.generator_rpm));
+    let x = at.and_then(|at| {
+        g.short_circuit_a(st.ke_v_s_per_rad)
+            .map(|isc| at.generator_current_a / isc * crate::model::bridge::SHORT_CIRCUIT)
+    });
+    Some(AlternatorFigures {
+        pole_pairs: setup.generator.pole_pairs.unwrap_or(1),
+        electrical_hz_at_profile_cadence: omega.map(|w| g.electrical_hz(w)),
+        reactance_ohm_at_profile_cadence: omega.map(|w| a.pole_pairs * w * a.phase_inductance_h),
+        short_circuit_current_a: g.short_circuit_a(st.ke_v_s_per_rad),
+        overlap_mode_at_profile_cadence: x.map(crate::model::bridge::mode),
+        overlap_angle_deg_at_profile_cadence: x
+            .filter(|&x| x <= crate::model::bridge::MODE_I_END)
+            .map(|x| crate::model::bridge::overlap_angle_rad(x).to_degrees()),
+    })
+}
+
+/// A supercapacitor bank's energy figures at its rated voltage, its lowest usable voltage and
+/// the start (None for the other kinds).
+fn supercap_figures(plant: &Plant, soc_start: f64) -> Option<SupercapFigures> {
+    let BatteryModel::Supercap(m) = &plant.battery else {
+        return None;
+    };
+    let c = &plant.charger;
+    let dv = m.rated_v() - m.voltage_v(soc_start);
+    Some(SupercapFigures {
+        capacitance_f: m.capacitance_f(),
+        rated_v: m.rated_v(),
+        energy_at_rated_wh: m.energy_j(1.0) / 3600.0,
+        min_v: m.min_v(),
+        usable_fraction: m.usable_fraction(),
+        usable_wh: m.usable_energy_j(1.0) / 3600.0,
+        energy_at_start_wh: m.energy_j(soc_start) / 3600.0,
+        time_to_rated_at_charge_current_s: (c.topology != Topology::Direct && dv > 0.0)
+            .then(|| m.capacitance_f() * dv / c.charge_current_a),
+        esr_ohm: m.esr_ohm(),
+    })
+}
+
+/// A NiMH charger's end-of-charge settings (None for the other kinds).
+fn nimh_figures(plant: &Plant) -> Option<NimhFigures> {
+    let BatteryModel::Nimh(m) = &plant.battery else {
+        return None;
+    };
+    let c = &plant.charger;
+    (c.topology != Topology::Direct).then(|| NimhFigures {
+        charge_c_rate: c.charge_current_a / m.capacity_ah,
+        end_voltage_drop_v: c.end_drop_v,
+        end_temp_rise_c_per_min: 60.0 * c.end_rise_k_per_s,
+        end_holdoff_s: c.end_holdoff_s,
+        trickle_current_a: c.trickle_current_a,
+    })
+}
+
+/// Remarks on NiMH and supercapacitor storage.
+fn storage_notes(plant: &Plant, notes: &mut Vec<String>) {
+    let c = &plant.charger;
+    match &plant.battery {
+        BatteryModel::Nimh(m) if c.topology == Topology::Direct => notes.push(
+            "NiMH behind a diode only: nothing ends the charge, so the pack is overcharged whenever it is full and the operator keeps cranking (the missed_end_of_charge alert).".to_string(),
+        ),
+        BatteryModel::Nimh(m) => {
+            let rate = c.charge_current_a / m.capacity_ah;
+            // Common practice: chargers that end on −ΔV fast-charge at 0.5–1 C; at lower rates
+            // the drop is small and late.
+            if c.end_drop_v > 0.0 && rate < 1.0 / 3.0 {
+                notes.push(format!(
+                    "The fast charge runs at {rate:.2} C: below about C/3 the voltage drop at full is small and slow, so the -dV end may come late or not at all (an end on the temperature rise, or a timer, backs it up)."
+                ));
+            }
+            if c.end_drop_v <= 0.0 && c.end_rise_k_per_s <= 0.0 {
+                notes.push("Both NiMH ends (-dV and dT/dt) are off: the fast charge never ends by itself.".to_string());
+            }
+            notes.push(format!(
+                "The charger watches for the end of its fast charge only while it holds its current, and only {:.0} s after each start: every lock-out (a rest, a slow crank) restarts that wait, so a pack that fills while the operator keeps stopping can be overcharged.",
+                c.end_holdoff_s
+            ));
+        }
+        BatteryModel::Supercap(m) => notes.push(format!(
+            "Of the {:.2} Wh the bank holds at {:.2} V, {:.0} % lies above the {:.2} V the load can use down to (1 − (V_min/V_rated)²).",
+            m.energy_j(1.0) / 3600.0,
+            m.rated_v(),
+            100.0 * m.usable_fraction(),
+            m.min_v()
+        )),
+        _ => {}
     }
 }
 
@@ -738,10 +907,14 @@ fn converter_notes(
 /// The cautions (DESIGN.md §6), tailored to the chemistry and topology.
 pub fn cautions(sc: &Scenario) -> Vec<String> {
     let mut c = Vec::new();
-    if sc.setup.battery.chemistry.is_lithium() {
-        c.push("Lithium cells can vent hot gas or catch fire when they are overcharged, charged outside their temperature window, or short-circuited.".to_string());
-    } else {
-        c.push("Lead-acid batteries give off hydrogen when they gas near full charge: charge them where air moves freely, away from sparks and flames.".to_string());
+    match sc.setup.battery.chemistry {
+        Chemistry::LeadAcid => c.push("Lead-acid batteries give off hydrogen when they gas near full charge: charge them where air moves freely, away from sparks and flames.".to_string()),
+        Chemistry::Nimh => c.push("NiMH cells fast-charged past full heat up quickly and can vent; the charge must end on the voltage drop or the temperature rise, with a timer and a temperature cut-off behind them.".to_string()),
+        Chemistry::Supercap => c.push("Supercapacitors can deliver a very large current into a short circuit; a cell pushed past its rated voltage ages fast or vents, and a series string needs balancing so that no cell exceeds it.".to_string()),
+        _ => c.push("Lithium cells can vent hot gas or catch fire when they are overcharged, charged outside their temperature window, or short-circuited.".to_string()),
+    }
+    if sc.setup.generator.kind == GeneratorKind::ThreePhasePm {
+        c.push("An alternator's open-circuit voltage rises with speed and its leads carry AC before the bridge: insulate them, and size the bridge and the converter for the fastest cranking.".to_string());
     }
     if sc.setup.usb.is_some() {
         c.push("A USB port feeds devices that trust its 5 V: a converter fault can put the full generator voltage on the bus; give the port over-voltage and over-current protection.".to_string());
@@ -771,24 +944,34 @@ fn print_report(r: &Report, sc: &Scenario) {
         r.setup, sc.setup_source.name, r.profile, sc.profile_source.name
     ));
     let b = &sc.setup.battery;
+    let diode = match sc.setup.diode.kind {
+        crate::scenario::setup::DiodeKind::Shockley => "Shockley",
+        crate::scenario::setup::DiodeKind::Ideal => "fixed-drop",
+        crate::scenario::setup::DiodeKind::None => "no",
+    };
+    let generator = match &r.generator.alternator {
+        Some(a) => format!(
+            "three-phase alternator {} V/krpm line-to-line, {} pole pairs, {:.3} Ω in the current's path at {} °C; bridge of six {diode} diodes",
+            r.generator.back_emf_v_per_krpm, a.pole_pairs, r.generator.resistance_at_ambient_ohm, r.ambient_c
+        ),
+        None => format!(
+            "generator {} V/krpm, {:.3} Ω at {} °C; {diode} diode",
+            r.generator.back_emf_v_per_krpm, r.generator.resistance_at_ambient_ohm, r.ambient_c
+        ),
+    };
+    let storage = match (&r.battery.supercap, b.capacitance_f) {
+        (Some(_), Some(cf)) => format!("{cf} F a cell"),
+        _ => format!("{} Ah", r.battery.capacity_ah),
+    };
     say(&format!(
-        "  chain: {} stage(s), total ratio {:.3} (efficiency {:.1} %); generator {} V/krpm, {:.3} Ω at {} °C; {} diode; {}; {} {}S{}P {} Ah",
+        "  chain: {} stage(s), total ratio {:.3} (efficiency {:.1} %); {generator}; {}; {} {}S{}P {storage}",
         r.drive.stages,
         r.drive.total_ratio,
         100.0 * r.drive.efficiency,
-        r.generator.back_emf_v_per_krpm,
-        r.generator.resistance_at_ambient_ohm,
-        r.ambient_c,
-        match sc.setup.diode.kind {
-            crate::scenario::setup::DiodeKind::Shockley => "Shockley",
-            crate::scenario::setup::DiodeKind::Ideal => "fixed-drop",
-            crate::scenario::setup::DiodeKind::None => "no",
-        },
         r.topology,
         r.chemistry,
         b.cells_series,
         b.cells_parallel,
-        r.battery.capacity_ah
     ));
     say(&format!(
         "  inertia reflected to the generator shaft: {:.3e} kg·m²; open circuit {:.4} V per crank rpm",
@@ -801,6 +984,55 @@ fn print_report(r: &Report, sc: &Scenario) {
         r.battery.charge_limit_at_ambient_v,
         r.battery.temperature_band
     ));
+    if let Some(sf) = &r.battery.supercap {
+        say(&format!(
+            "  bank: {:.2} F, ESR {:.4} Ω; {:.3} Wh at its rated {:.2} V, {:.3} Wh at the start; {:.3} Wh ({:.0} %) usable down to {:.2} V{}",
+            sf.capacitance_f,
+            sf.esr_ohm,
+            sf.energy_at_rated_wh,
+            sf.rated_v,
+            sf.energy_at_start_wh,
+            sf.usable_wh,
+            100.0 * sf.usable_fraction,
+            sf.min_v,
+            sf.time_to_rated_at_charge_current_s
+                .map_or_else(String::new, |t| format!("; {t:.0} s to the rated voltage at the charge current"))
+        ));
+    }
+    if let Some(n) = &r.battery.nimh {
+        let drop = if n.end_voltage_drop_v > 0.0 {
+            format!(
+                "ends on a {:.1} mV ({:.1} mV/cell) drop below the peak (-dV)",
+                1e3 * n.end_voltage_drop_v,
+                1e3 * n.end_voltage_drop_v / f64::from(b.cells_series)
+            )
+        } else {
+            "no -dV end".to_string()
+        };
+        let rise = if n.end_temp_rise_c_per_min > 0.0 {
+            format!(
+                "or on a rise of {:.2} °C/min (dT/dt)",
+                n.end_temp_rise_c_per_min
+            )
+        } else {
+            "no dT/dt end".to_string()
+        };
+        say(&format!(
+            "  NiMH charger: fast charge at {:.2} C; {drop}; {rise}; watched from {:.0} s after each start; then a {:.3} A trickle",
+            n.charge_c_rate, n.end_holdoff_s, n.trickle_current_a
+        ));
+    }
+    if let Some(a) = &r.generator.alternator {
+        let opt = |v: Option<f64>, unit: &str| v.map_or_else(|| "—".to_string(), |v| format!("{v:.2} {unit}"));
+        say(&format!(
+            "  alternator at the profile's cadence: {} electrical, reactance {} a phase, bridge overlap mode {}{}; DC short-circuit current {} at any speed",
+            opt(a.electrical_hz_at_profile_cadence, "Hz"),
+            opt(a.reactance_ohm_at_profile_cadence, "Ω"),
+            a.overlap_mode_at_profile_cadence.map_or_else(|| "—".to_string(), |m| m.to_string()),
+            a.overlap_angle_deg_at_profile_cadence.map_or_else(String::new, |d| format!(" (overlap {d:.1}°)")),
+            opt(a.short_circuit_current_a, "A"),
+        ));
+    }
     say("");
     say("Crank cadences");
     let mut lines: Vec<(String, String)> = Vec::new();

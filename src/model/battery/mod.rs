@@ -407,19 +407,21 @@ impl<'a> Frozen<'a> {
                 )
             }
             BatteryModel::Supercap(m) => {
-                // The capacitance takes η·I less the leakage; at the rated voltage the rest of a
-                // charging current is heat (the acceptance construction keeps SOC ≤ 1).
-                let taken_a = if i > 0.0 {
-                    m.charge_efficiency(s.soc) * i
-                } else {
-                    i
-                };
+                // The leakage runs across the capacitance; of the net current beyond it, the
+                // capacitance takes the share η, which ends at the rated voltage, and the rest is
+                // heat (the acceptance construction keeps SOC ≤ 1). A CV charger's current then
+                // tapers to the leakage, with nothing wasted.
                 let leak_a = m.leakage_a(ocv);
-                let stored_a = taken_a - leak_a;
+                let net_a = i - leak_a;
+                let stored_a = if net_a > 0.0 {
+                    m.charge_efficiency(s.soc) * net_a
+                } else {
+                    net_a
+                };
                 (
                     BatteryPowers {
                         ohmic_w: i * i * self.r0_ohm,
-                        coulombic_loss_w: ocv * (i - taken_a),
+                        coulombic_loss_w: ocv * (net_a - stored_a),
                         stored_w: ocv * stored_a,
                         leakage_w: ocv * leak_a,
                         ..BatteryPowers::default()

@@ -13,9 +13,21 @@
 //! that ages it fast or vents it). The charger's CV set point holds the terminal there; the
 //! overcharge alert watches the terminal voltage.
 
-use super::{li_ion::charge_acceptance, thermal_of};
+use super::thermal_of;
 use crate::model::thermal::Lumped;
 use crate::scenario::setup::Battery;
+
+/// SOC width over which the capacitance stops taking charge at the rated voltage: 1e-4 of it
+/// (0.27 mV a 2.7-V cell), well under the ESR drop of any charge current worth the name, so a
+/// CV charger's taper is the capacitor's own.
+const ACCEPTANCE_WIDTH: f64 = 1e-4;
+
+/// Fraction of a net charging current the capacitance takes at `soc`: 1 − exp(−(1 − SOC)/w),
+/// zero at the rated voltage and negative past it (pulling SOC back). A modelling construction
+/// that keeps SOC at or below 1 (see the module doc), not a published law.
+pub fn charge_acceptance(soc: f64) -> f64 {
+    -(-(1.0 - soc) / ACCEPTANCE_WIDTH).exp_m1()
+}
 
 /// Default rated voltage per cell, V. Common practice: organic-electrolyte EDLC cells are rated
 /// 2.5–2.7 V (2.7 V the most common; some newer cells 3.0 V).
@@ -113,9 +125,8 @@ impl SupercapModel {
         self.cell_leakage_a * self.cells_parallel * v_c / self.rated_v()
     }
 
-    /// Fraction of a charging current the capacitance takes at `soc`: 1 below the rated voltage,
-    /// falling to zero within 0.2 % of it (the Li-ion pack's construction, see
-    /// [`charge_acceptance`]).
+    /// Fraction of a net charging current (beyond the leakage) the capacitance takes at `soc`:
+    /// 1 below the rated voltage, zero at it ([`charge_acceptance`]).
     pub fn charge_efficiency(&self, soc: f64) -> f64 {
         charge_acceptance(soc)
     }
