@@ -6,6 +6,7 @@ mod check_map;
 mod common;
 mod fidelity;
 mod hardening;
+mod machines_storage;
 mod messages;
 mod report_browser;
 mod run_cli;

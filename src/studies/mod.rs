@@ -5,6 +5,7 @@ pub mod check;
 pub mod check_usb;
 pub mod compare;
 pub mod fit;
+pub mod fit_alternator;
 pub mod goal;
 pub mod merge;
 pub mod montecarlo;
