@@ -97,7 +97,12 @@ fn file_setup(name: &str) -> FileSetup {
 }
 
 /// A three-phase alternator part from its datasheet-style constants.
-fn alternator(line_v_per_krpm: f64, phase_ohm: f64, phase_h: f64, pole_pairs: u32) -> GeneratorModel {
+fn alternator(
+    line_v_per_krpm: f64,
+    phase_ohm: f64,
+    phase_h: f64,
+    pole_pairs: u32,
+) -> GeneratorModel {
     let text = format!(
         "(kind: three_phase_pm, back_emf_v_per_krpm: {line_v_per_krpm}, resistance_ohm: {phase_ohm}, inductance_h: {phase_h}, pole_pairs: {pole_pairs}, inertia_kg_m2: 1e-3, back_emf_tempco_pct_per_k: 0.0)"
     );
@@ -271,9 +276,16 @@ fn alternator_torque_times_speed_is_the_bridge_output_power() {
 // NiMH
 // ---------------------------------------------------------------------------------------------
 
+/// One second of a model charge: voltage per cell, SOC and the temperature's rise rate.
+struct Step {
+    v_cell: f64,
+    soc: f64,
+    rise_c_per_min: f64,
+}
+
 /// A constant-current charge of the shipped NiMH pack's model from SOC 0.5 at 20 °C ambient,
-/// one-second steps: (time, V per cell, SOC, temperature, dT/dt in K/min) per step.
-fn nimh_charge(c_rate: f64, seconds: usize) -> (Vec<(f64, f64, f64, f64, f64)>, f64) {
+/// one-second steps; with the charge current, A.
+fn nimh_charge(c_rate: f64, seconds: usize) -> (Vec<Step>, f64) {
     let sc = scenario("nimh-aa-pack", "steady", &[]);
     let b = BatteryModel::from_config(&sc.setup.battery);
     let cells = b.series_cells();
@@ -281,12 +293,16 @@ fn nimh_charge(c_rate: f64, seconds: usize) -> (Vec<(f64, f64, f64, f64, f64)>, 
     let ambient = 20.0;
     let mut s = BatteryState::rested(0.5, ambient);
     let mut out = Vec::with_capacity(seconds);
-    for k in 0..seconds {
+    for _ in 0..seconds {
         let f = b.freeze(&s);
         let v = f.terminal().v(i).0;
         let (powers, rates) = f.flows(i, v);
         let dtdt = b.thermal().rate_k_per_s(powers.heat_w(), s.temp_c, ambient);
-        out.push((k as f64, v / cells, s.soc, s.temp_c, 60.0 * dtdt));
+        out.push(Step {
+            v_cell: v / cells,
+            soc: s.soc,
+            rise_c_per_min: 60.0 * dtdt,
+        });
         s.soc += rates.soc;
         s.v_rc_v += rates.v_rc;
         s.temp_c += dtdt;
@@ -294,32 +310,47 @@ fn nimh_charge(c_rate: f64, seconds: usize) -> (Vec<(f64, f64, f64, f64, f64)>, 
     (out, i)
 }
 
+/// Index and value of the highest voltage of a run.
+fn peak_of(run: &[Step]) -> (usize, f64) {
+    run.iter()
+        .enumerate()
+        .map(|(k, r)| (k, r.v_cell))
+        .fold((0, 0.0), |a, b| if b.1 > a.1 { b } else { a })
+}
+
 #[test]
 fn nimh_charge_at_1c_peaks_in_the_published_band_then_drops_as_it_heats() {
     let (run, i) = nimh_charge(1.0, 3 * 3600);
-    let (k_peak, peak) = run
-        .iter()
-        .enumerate()
-        .map(|(k, r)| (k, r.1))
-        .fold((0, 0.0), |a, b| if b.1 > a.1 { b } else { a });
+    let (k_peak, peak) = peak_of(&run);
     // From memory: Battery University BU-408 and makers' NiMH handbooks: charged at 1 C, a NiMH
     // cell peaks near 1.4–1.6 V.
     assert!((1.40..=1.60).contains(&peak), "peak {peak} V/cell");
     assert!(k_peak + 600 < run.len(), "the peak comes before the end");
     // Common practice: NiMH chargers end on a drop of about 5–10 mV/cell, which a 1 C charge
     // shows within minutes of the peak.
-    let after = run[k_peak + 600].1;
-    assert!(peak - after >= 5e-3, "drop 10 min after the peak {} mV", 1e3 * (peak - after));
+    let after = run[k_peak + 600].v_cell;
+    assert!(
+        peak - after >= 5e-3,
+        "drop 10 min after the peak {} mV",
+        1e3 * (peak - after)
+    );
     // Common practice: the pack stays cool through most of the charge and heats fast at full,
     // where chargers end on a rise of about 1 °C/min.
-    let cool = run.iter().filter(|r| r.2 < 0.8).map(|r| r.4).fold(0.0, f64::max);
-    let hot = run[k_peak..].iter().map(|r| r.4).fold(0.0, f64::max);
+    let cool = run
+        .iter()
+        .filter(|r| r.soc < 0.8)
+        .map(|r| r.rise_c_per_min)
+        .fold(0.0, f64::max);
+    let hot = run[k_peak..]
+        .iter()
+        .map(|r| r.rise_c_per_min)
+        .fold(0.0, f64::max);
     assert!(cool < 1.0, "dT/dt below SOC 0.8 up to {cool} °C/min");
     assert!(hot > 1.0, "dT/dt after the peak up to {hot} °C/min");
     // From memory: a −ΔV charge puts back a little more than was taken out (charge efficiency
     // near full): 100–125 % of the charge missing at the start when it ends.
     let k_end = (k_peak..run.len())
-        .find(|&k| peak - run[k].1 >= 5e-3)
+        .find(|&k| peak - run[k].v_cell >= 5e-3)
         .expect("the drop comes");
     let put_in = i * k_end as f64 / 3600.0;
     let missing = 0.5 * 2.0;
@@ -333,19 +364,21 @@ fn nimh_charge_at_1c_peaks_in_the_published_band_then_drops_as_it_heats() {
 fn nimh_voltage_drop_is_weaker_at_low_rates() {
     let drop_10_min = |c_rate: f64, seconds: usize| {
         let (run, _) = nimh_charge(c_rate, seconds);
-        let (k, peak) = run
-            .iter()
-            .enumerate()
-            .map(|(k, r)| (k, r.1))
-            .fold((0, 0.0), |a, b| if b.1 > a.1 { b } else { a });
-        assert!(k + 600 < run.len(), "{c_rate} C: the peak comes before the end");
-        peak - run[k + 600].1
+        let (k, peak) = peak_of(&run);
+        assert!(
+            k + 600 < run.len(),
+            "{c_rate} C: the peak comes before the end"
+        );
+        peak - run[k + 600].v_cell
     };
     let fast = drop_10_min(1.0, 3 * 3600);
     let slow = drop_10_min(0.2, 8 * 3600);
     // From memory: charge-end detection on −ΔV is hard at low rates (below about 0.1–0.3 C the
     // voltage and temperature slopes are small); chargers that rely on it fast-charge.
-    assert!(slow < 0.5 * fast, "10 min after the peak: {slow} V at 0.2 C, {fast} V at 1 C");
+    assert!(
+        slow < 0.5 * fast,
+        "10 min after the peak: {slow} V at 0.2 C, {fast} V at 1 C"
+    );
 }
 
 #[test]
@@ -357,7 +390,10 @@ fn nimh_rest_voltage_is_about_the_nominal_1_2_v() {
         .sum::<f64>()
         / 9.0;
     // Common practice: NiMH is rated 1.2 V a cell, a rested cell reads a little above that.
-    assert!((1.2..=1.32).contains(&mean), "mean rest voltage {mean} V/cell");
+    assert!(
+        (1.2..=1.32).contains(&mean),
+        "mean rest voltage {mean} V/cell"
+    );
 }
 
 #[test]
@@ -365,7 +401,10 @@ fn nimh_shipped_session_ends_on_the_voltage_drop_within_the_band_chargers_use() 
     let sc = scenario("nimh-aa-pack", "steady", &[]);
     let file = file_setup("nimh-aa-pack");
     let cells = f64::from(file.battery.cells_series);
-    let holdoff = file.converter.end_holdoff_s.expect("the shipped file states its hold-off");
+    let holdoff = file
+        .converter
+        .end_holdoff_s
+        .expect("the shipped file states its hold-off");
     let fast = session(&sc, None, Fidelity::Fast);
     let n = fast.summary.nimh.as_ref().expect("NiMH figures");
     assert_eq!(n.fast_charge_end.as_deref(), Some("voltage_drop"));
@@ -412,7 +451,11 @@ fn nimh_shipped_session_ends_on_the_voltage_drop_within_the_band_chargers_use() 
             "trickle {i} A"
         );
     }
-    assert!(fast.summary.verdict.words() == ["ok"], "{:?}", fast.summary.verdict);
+    assert!(
+        fast.summary.verdict.words() == ["ok"],
+        "{:?}",
+        fast.summary.verdict
+    );
     // The detailed fidelity ends the fast charge at the same moment, within a second.
     let det = session(&sc, None, Fidelity::Detailed);
     let t_det = det
@@ -421,7 +464,10 @@ fn nimh_shipped_session_ends_on_the_voltage_drop_within_the_band_chargers_use() 
         .as_ref()
         .and_then(|n| n.fast_charge_end_s)
         .expect("detailed ends too");
-    assert!((t_det - t_end).abs() < 1.0, "fast {t_end} s, detailed {t_det} s");
+    assert!(
+        (t_det - t_end).abs() < 1.0,
+        "fast {t_end} s, detailed {t_det} s"
+    );
     // The ledger books the oxygen recombined as heat and still closes.
     for s in [&fast, &det] {
         assert!(s.summary.ledger.recombination_heat_j > 0.0);
@@ -451,7 +497,11 @@ fn a_nimh_charger_that_misses_the_end_is_flagged_and_the_temperature_end_catches
     for e in &missed {
         assert!(e.affects_verdict && e.worst < e.threshold, "{e:?}");
     }
-    assert!(s.summary.verdict.has("overcharge"), "{:?}", s.summary.verdict);
+    assert!(
+        s.summary.verdict.has("overcharge"),
+        "{:?}",
+        s.summary.verdict
+    );
     assert!(
         s.summary
             .episodes
@@ -460,7 +510,10 @@ fn a_nimh_charger_that_misses_the_end_is_flagged_and_the_temperature_end_catches
         "{:?}",
         s.summary.episodes
     );
-    assert_eq!(s.summary.nimh.as_ref().and_then(|n| n.fast_charge_end_s), None);
+    assert_eq!(
+        s.summary.nimh.as_ref().and_then(|n| n.fast_charge_end_s),
+        None
+    );
     // With a thermistor watching for 1 °C/min the charge ends on the rise instead.
     let sc = scenario(
         "nimh-aa-pack",
@@ -507,7 +560,10 @@ fn supercap_charge_energy_is_half_c_times_the_change_of_v_squared() {
             (stored - expected).abs() <= 1e-3 * expected,
             "{fidelity:?}: ledger {stored} J vs ½C(V2² − V1²) = {expected} J"
         );
-        assert!(v2 > 0.99 * v_rated, "{fidelity:?}: charged to {v2} V of {v_rated} V");
+        assert!(
+            v2 > 0.99 * v_rated,
+            "{fidelity:?}: charged to {v2} V of {v_rated} V"
+        );
         assert!(m.ledger.leakage_j > 0.0 && m.energy_balance_error < 1e-3);
         // Held at its rated voltage, the charger feeds the leakage and little more.
         let leak = b.leakage_current_a.expect("leakage") * np;
@@ -516,7 +572,11 @@ fn supercap_charge_energy_is_half_c_times_the_change_of_v_squared() {
             (0.5 * leak..=5.0 * leak).contains(&last),
             "{fidelity:?}: {last} A at the end, leakage {leak} A"
         );
-        assert!(m.max_battery_v <= v_rated + 1e-3, "{fidelity:?}: {}", m.max_battery_v);
+        assert!(
+            m.max_battery_v <= v_rated + 1e-3,
+            "{fidelity:?}: {}",
+            m.max_battery_v
+        );
     }
 }
 
@@ -543,10 +603,18 @@ fn supercap_usable_energy_down_to_v_min_is_one_minus_the_square_of_the_ratio() {
     // Half the rated voltage leaves three quarters of the energy.
     let text = run_ok(
         &wd,
-        &["check", "supercap-bank", "--set", "battery.min_v_per_cell=1.35"],
+        &[
+            "check",
+            "supercap-bank",
+            "--set",
+            "battery.min_v_per_cell=1.35",
+        ],
     );
     assert!(text.contains("(75 %) usable down to 8.10 V"), "{text}");
-    assert!(text.contains("Supercapacitors can deliver a very large current"), "{text}");
+    assert!(
+        text.contains("Supercapacitors can deliver a very large current"),
+        "{text}"
+    );
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -561,7 +629,9 @@ fn alternator_check_reports_its_frequency_reactance_and_current_limit() {
     assert_eq!(j["generator"]["kind"], "three_phase_pm");
     let a = &j["generator"]["alternator"];
     let p = a["pole_pairs"].as_f64().expect("pole pairs");
-    let gen_rpm = j["at_profile_cadence"]["generator_rpm"].as_f64().expect("rpm");
+    let gen_rpm = j["at_profile_cadence"]["generator_rpm"]
+        .as_f64()
+        .expect("rpm");
     // f = p·n/60.
     let hz = a["electrical_hz_at_profile_cadence"].as_f64().expect("Hz");
     assert!((hz - p * gen_rpm / 60.0).abs() < 1e-9, "{hz}");
@@ -583,14 +653,34 @@ fn new_keys_are_checked_with_their_path_and_range() {
         assert!(err.contains(path), "{set}: {err}");
     }
     for (setup, set, path) in [
-        ("alternator-hub", "generator.brush_drop_v=1.6", "generator.brush_drop_v"),
+        (
+            "alternator-hub",
+            "generator.brush_drop_v=1.6",
+            "generator.brush_drop_v",
+        ),
         ("alternator-hub", "diode.kind=none", "diode.kind"),
-        ("alternator-hub", "generator.pole_pairs=0", "generator.pole_pairs"),
+        (
+            "alternator-hub",
+            "generator.pole_pairs=0",
+            "generator.pole_pairs",
+        ),
         ("demo", "generator.pole_pairs=7", "generator.pole_pairs"),
-        ("demo", "converter.trickle_current_a=0.1", "converter.trickle_current_a"),
+        (
+            "demo",
+            "converter.trickle_current_a=0.1",
+            "converter.trickle_current_a",
+        ),
         ("demo", "battery.capacitance_f=10", "battery.capacitance_f"),
-        ("nimh-aa-pack", "converter.trickle_current_a=3", "converter.trickle_current_a"),
-        ("nimh-aa-pack", "battery.charge_v_per_cell=2.5", "battery.charge_v_per_cell"),
+        (
+            "nimh-aa-pack",
+            "converter.trickle_current_a=3",
+            "converter.trickle_current_a",
+        ),
+        (
+            "nimh-aa-pack",
+            "battery.charge_v_per_cell=2.5",
+            "battery.charge_v_per_cell",
+        ),
     ] {
         let err = run_code(&wd, &["check", setup, "--set", set], 2);
         assert!(err.contains(path), "{setup} {set}: {err}");
@@ -601,7 +691,10 @@ fn new_keys_are_checked_with_their_path_and_range() {
     assert_ne!(without, text);
     std::fs::write(wd.path("no-poles.ron"), without).expect("write");
     let err = run_code(&wd, &["check", "no-poles.ron"], 2);
-    assert!(err.contains("generator.pole_pairs") && err.contains("required"), "{err}");
+    assert!(
+        err.contains("generator.pole_pairs") && err.contains("required"),
+        "{err}"
+    );
 }
 
 // ---------------------------------------------------------------------------------------------
@@ -609,7 +702,11 @@ fn new_keys_are_checked_with_their_path_and_range() {
 // ---------------------------------------------------------------------------------------------
 
 /// Writes open-circuit and loaded DC points of an alternator from the written-out law.
-fn alternator_points(wd: &WorkDir, file: &str, (k_ll, r_ph, l_ph, p, v_f): (f64, f64, f64, f64, f64)) {
+fn alternator_points(
+    wd: &WorkDir,
+    file: &str,
+    (k_ll, r_ph, l_ph, p, v_f): (f64, f64, f64, f64, f64),
+) {
     let mut s = String::from("rpm,voltage_v,current_a\n");
     for rpm in [200.0, 400.0, 600.0, 800.0] {
         let w = rpm_to_rad_s(rpm);
@@ -617,10 +714,8 @@ fn alternator_points(wd: &WorkDir, file: &str, (k_ll, r_ph, l_ph, p, v_f): (f64,
         s.push_str(&format!("{rpm},{v_d0},0\n"));
         for i in [0.5, 1.0, 1.5] {
             // Mode I of the bridge (Mohan et al., §5-6): V = V_d0 − (3/π)·p·ω·L·I − 2R·I − 2V_F.
-            let v = v_d0
-                - 3.0 / std::f64::consts::PI * p * w * l_ph * i
-                - 2.0 * r_ph * i
-                - 2.0 * v_f;
+            let v =
+                v_d0 - 3.0 / std::f64::consts::PI * p * w * l_ph * i - 2.0 * r_ph * i - 2.0 * v_f;
             s.push_str(&format!("{rpm},{v},{i}\n"));
         }
     }
@@ -648,7 +743,10 @@ fn fit_generator_recovers_an_alternator_from_open_circuit_and_loaded_points() {
     );
     let j: Value = serde_json::from_str(&out).expect("JSON");
     let num = |k: &str| j[k].as_f64().unwrap_or_else(|| panic!("{k}: {j}"));
-    assert!((num("back_emf_v_per_krpm") - k_ll).abs() < 1e-9 * k_ll, "{j}");
+    assert!(
+        (num("back_emf_v_per_krpm") - k_ll).abs() < 1e-9 * k_ll,
+        "{j}"
+    );
     assert!((num("resistance_ohm") - r_ph).abs() < 1e-9 * r_ph, "{j}");
     assert!((num("inductance_h") - l_ph).abs() < 1e-9 * l_ph, "{j}");
     assert!(num("largest_overlap_x") < 0.5);
@@ -665,8 +763,15 @@ fn fit_generator_recovers_an_alternator_from_open_circuit_and_loaded_points() {
             "0.45",
         ],
     );
-    assert!(text.contains("kind: three_phase_pm,") && text.contains("pole_pairs: 12,"), "{text}");
-    let err = run_code(&wd, &["fit-generator", "alt.csv", "--kind", "three_phase_pm"], 2);
+    assert!(
+        text.contains("kind: three_phase_pm,") && text.contains("pole_pairs: 12,"),
+        "{text}"
+    );
+    let err = run_code(
+        &wd,
+        &["fit-generator", "alt.csv", "--kind", "three_phase_pm"],
+        2,
+    );
     assert!(err.contains("--pole-pairs"), "{err}");
     let err = run_code(&wd, &["fit-generator", "alt.csv", "--pole-pairs", "12"], 2);
     assert!(err.contains("--pole-pairs"), "{err}");

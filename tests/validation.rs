@@ -1171,7 +1171,8 @@ fn li_ion_termination_default_between_c10_and_c20() {
     let sc = scenario("demo", &[]);
     assert!(sc.setup.converter.termination_current_a.is_none());
     let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
-    let c_rate = plant.charger.termination_current_a / setup_file("demo").battery.capacity_ah.expect("capacity");
+    let c_rate = plant.charger.termination_current_a
+        / setup_file("demo").battery.capacity_ah.expect("capacity");
     // Source: Battery University BU-409 — CV until the current falls to C/10 … C/20.
     assert!(
         (1.0 / 20.0 - 1e-12..=1.0 / 10.0 + 1e-12).contains(&c_rate),

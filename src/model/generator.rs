@@ -143,8 +143,8 @@ impl GeneratorModel {
             None => ke * i,
             Some(a) => {
                 let f = if ke > 0.0 && a.phase_inductance_h > 0.0 {
-                    let x = 6.0 * a.pole_pairs * a.phase_inductance_h * i
-                        / (std::f64::consts::PI * ke);
+                    let x =
+                        6.0 * a.pole_pairs * a.phase_inductance_h * i / (std::f64::consts::PI * ke);
                     bridge::output_factor(x).0
                 } else {
                     1.0

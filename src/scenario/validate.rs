@@ -296,7 +296,12 @@ fn nimh_charger(c: &mut Checker, s: &Setup) {
             10.0,
         ),
         ("converter.end_holdoff_s", cv.end_holdoff_s, 0.0, 3600.0),
-        ("converter.trickle_current_a", cv.trickle_current_a, 0.0, 50.0),
+        (
+            "converter.trickle_current_a",
+            cv.trickle_current_a,
+            0.0,
+            50.0,
+        ),
     ] {
         if let Some(v) = v {
             c.range(path, v, lo, hi);

@@ -678,7 +678,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             resistance_at_ambient_ohm: st.resistance_ohm,
             open_circuit_v_per_crank_rpm: st.emf_v(1.0),
             kind: setup.generator.kind.as_str().to_string(),
-            alternator: alternator,
+            alternator,
         },
         battery: BatteryFigures {
             soc_start: setup.battery.soc_start,
@@ -687,7 +687,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             charge_limit_at_ambient_v: charge_limit,
             temperature_band: band_word(band).to_string(),
             supercap: supercap_figures(plant, setup.battery.soc_start),
-            nimh: nimh,
+            nimh,
         },
         converter,
         direct,
@@ -1023,7 +1023,9 @@ fn print_report(r: &Report, sc: &Scenario) {
         ));
     }
     if let Some(a) = &r.generator.alternator {
-        let opt = |v: Option<f64>, unit: &str| v.map_or_else(|| "—".to_string(), |v| format!("{v:.2} {unit}"));
+        let opt = |v: Option<f64>, unit: &str| {
+            v.map_or_else(|| "—".to_string(), |v| format!("{v:.2} {unit}"))
+        };
         say(&format!(
             "  alternator at the profile's cadence: {} electrical, reactance {} a phase, bridge overlap mode {}{}; DC short-circuit current {} at any speed",
             opt(a.electrical_hz_at_profile_cadence, "Hz"),

@@ -145,13 +145,8 @@ fn run_alternator(a: &FitArgs, name: &str, points: &[Measurement]) -> Result<i32
     }
     let fit = crate::studies::fit_alternator::fit_alternator(points, pole_pairs, a.diode_drop_v)
         .map_err(|e| Failure::Input(anyhow!("{name}: {e}")))?;
-    let r = crate::studies::fit_alternator::report(
-        name,
-        &fit,
-        pole_pairs,
-        a.diode_drop_v,
-        a.winding_c,
-    );
+    let r =
+        crate::studies::fit_alternator::report(name, &fit, pole_pairs, a.diode_drop_v, a.winding_c);
     if a.json {
         let s = serde_json::to_string_pretty(&r)
             .map_err(|e| Failure::Other(anyhow!("could not format JSON: {e}")))?;

@@ -56,11 +56,17 @@ pub enum AlternatorFitError {
     NoPoles,
 }
 
-/// Least squares y ≈ Σ β_j·x_j by modified Gram–Schmidt QR: (β, R's upper triangle as rows,
-/// residuals); None when a column is (numerically) dependent on the ones before it.
-fn qr_least_squares(cols: &[Vec<f64>], y: &[f64]) -> Option<(Vec<f64>, Vec<Vec<f64>>, Vec<f64>)> {
+/// A least-squares solution: coefficients, the upper triangle of R (rows), residuals.
+struct Solution {
+    beta: Vec<f64>,
+    r: Vec<Vec<f64>>,
+    residuals: Vec<f64>,
+}
+
+/// Least squares y ≈ Σ β_j·x_j by modified Gram–Schmidt QR; None when a column is (numerically)
+/// dependent on the ones before it.
+fn qr_least_squares(cols: &[Vec<f64>], y: &[f64]) -> Option<Solution> {
     let k = cols.len();
-    let n = y.len();
     let dot = |a: &[f64], b: &[f64]| a.iter().zip(b).map(|(x, y)| x * y).sum::<f64>();
     let mut q: Vec<Vec<f64>> = Vec::with_capacity(k);
     let mut r = vec![vec![0.0; k]; k];
@@ -72,9 +78,9 @@ fn qr_least_squares(cols: &[Vec<f64>], y: &[f64]) -> Option<(Vec<f64>, Vec<Vec<f
         let mut w = col.clone();
         // Two passes ("twice is enough").
         for _ in 0..2 {
-            for (i, qi) in q.iter().enumerate() {
+            for (ri, qi) in r.iter_mut().zip(&q) {
                 let c = dot(qi, &w);
-                r[i][j] += c;
+                ri[j] += c;
                 for (wl, ql) in w.iter_mut().zip(qi) {
                     *wl -= c * ql;
                 }
@@ -88,32 +94,39 @@ fn qr_least_squares(cols: &[Vec<f64>], y: &[f64]) -> Option<(Vec<f64>, Vec<Vec<f
         q.push(w.iter().map(|v| v / norm).collect());
     }
     let z: Vec<f64> = q.iter().map(|qi| dot(qi, y)).collect();
-    let mut beta = vec![0.0; k];
-    for j in (0..k).rev() {
-        let s: f64 = ((j + 1)..k).map(|l| r[j][l] * beta[l]).sum();
-        beta[j] = (z[j] - s) / r[j][j];
-    }
-    let residuals = (0..n)
-        .map(|i| y[i] - (0..k).map(|j| beta[j] * cols[j][i]).sum::<f64>())
+    let beta = back_substitute(&r, &z);
+    let residuals = y
+        .iter()
+        .enumerate()
+        .map(|(i, yi)| yi - beta.iter().zip(cols).map(|(b, c)| b * c[i]).sum::<f64>())
         .collect();
-    Some((beta, r, residuals))
+    Some(Solution { beta, r, residuals })
 }
 
-/// Diagonal of (XᵀX)⁻¹ = R⁻¹R⁻ᵀ from R's upper triangle.
+/// Solves R·x = z for an upper-triangular R (given as rows).
+fn back_substitute(r: &[Vec<f64>], z: &[f64]) -> Vec<f64> {
+    let k = z.len();
+    let mut x = vec![0.0; k];
+    for j in (0..k).rev() {
+        let s: f64 = ((j + 1)..k).map(|l| r[j][l] * x[l]).sum();
+        x[j] = (z[j] - s) / r[j][j];
+    }
+    x
+}
+
+/// Diagonal of (XᵀX)⁻¹ = R⁻¹R⁻ᵀ from R's upper triangle: the sums of squares of R⁻¹'s rows,
+/// R⁻¹ found column by column.
 fn unscaled_variances(r: &[Vec<f64>]) -> Vec<f64> {
     let k = r.len();
-    // R⁻¹ by back substitution, column by column.
-    let mut inv = vec![vec![0.0; k]; k];
+    let mut var = vec![0.0; k];
     for c in 0..k {
-        for i in (0..k).rev() {
-            let rhs = if i == c { 1.0 } else { 0.0 };
-            let s: f64 = ((i + 1)..k).map(|l| r[i][l] * inv[l][c]).sum();
-            inv[i][c] = (rhs - s) / r[i][i];
+        let unit: Vec<f64> = (0..k).map(|i| if i == c { 1.0 } else { 0.0 }).collect();
+        let col = back_substitute(r, &unit);
+        for (v, x) in var.iter_mut().zip(&col) {
+            *v += x * x;
         }
     }
-    (0..k)
-        .map(|i| (0..k).map(|c| inv[i][c] * inv[i][c]).sum())
-        .collect()
+    var
 }
 
 /// Fits the alternator from DC points after its bridge: `diode_drop_v` is each bridge diode's
@@ -154,7 +167,7 @@ pub fn fit_alternator(
             p.voltage_v + loaded * diode_drop_v
         })
         .collect();
-    let (beta, r, residuals) =
+    let Solution { beta, r, residuals } =
         qr_least_squares(&cols, &y).ok_or(AlternatorFitError::Dependent)?;
     let rss: f64 = residuals.iter().map(|e| e * e).sum();
     let s2 = rss / (n - 3) as f64;
@@ -310,7 +323,10 @@ pub fn print(r: &AlternatorReport, points: &[Measurement], sig: impl Fn(f64) -> 
         "        back_emf_v_per_krpm: {},",
         sig(r.back_emf_v_per_krpm)
     ));
-    say(&format!("        resistance_ohm: {},", sig(r.resistance_ohm)));
+    say(&format!(
+        "        resistance_ohm: {},",
+        sig(r.resistance_ohm)
+    ));
     say(&format!("        inductance_h: {},", sig(r.inductance_h)));
     say("        // keep inertia_kg_m2 and the rest of the section as they are");
     say("    ),");
@@ -329,10 +345,10 @@ mod tests {
             vec![0.0, 0.0, 1.0, 0.0],
         ];
         let y = [2.0, -3.0, 0.5, 7.0];
-        let (beta, r, res) = qr_least_squares(&cols, &y).expect("solvable");
-        assert_eq!(beta, vec![2.0, -3.0, 0.5]);
-        assert_eq!(res[3], 7.0);
-        assert_eq!(unscaled_variances(&r), vec![1.0, 1.0, 1.0]);
+        let sol = qr_least_squares(&cols, &y).expect("solvable");
+        assert_eq!(sol.beta, vec![2.0, -3.0, 0.5]);
+        assert_eq!(sol.residuals[3], 7.0);
+        assert_eq!(unscaled_variances(&sol.r), vec![1.0, 1.0, 1.0]);
     }
 
     #[test]

@@ -247,7 +247,10 @@ fn report(s: &Session, dir: &std::path::Path) {
     }
     if let Some(n) = &m.nimh {
         let end = match (&n.fast_charge_end, n.fast_charge_end_s) {
-            (Some(why), Some(t)) => format!("fast charge ended at {t:.1} s on the {}", why.replace('_', " ")),
+            (Some(why), Some(t)) => format!(
+                "fast charge ended at {t:.1} s on the {}",
+                why.replace('_', " ")
+            ),
             _ => "fast charge did not end".to_string(),
         };
         say(&format!(

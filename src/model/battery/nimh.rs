@@ -101,8 +101,7 @@ impl NimhModel {
 
     /// Pack OCV at `temp_c`, V: N_s·(E25(SOC) + dE/dT·(T − 25 °C)).
     pub fn ocv_v(&self, soc: f64, temp_c: f64) -> f64 {
-        self.cells_series
-            * (self.cell_ocv_v(soc) + OCV_TEMPCO_V_PER_K * (temp_c - REFERENCE_C))
+        self.cells_series * (self.cell_ocv_v(soc) + OCV_TEMPCO_V_PER_K * (temp_c - REFERENCE_C))
     }
 
     /// Fraction of a charging current stored at `soc`: the coulombic efficiency times the
@@ -113,9 +112,8 @@ impl NimhModel {
 
     /// Pack (R0, R1, C1) at temperature: R scales by N_s/N_p (Arrhenius), C by N_p/N_s.
     pub fn pack_rc(&self, temp_c: f64) -> (f64, f64, f64) {
-        let f = (self.activation_k
-            * (1.0 / c_to_k(temp_c.max(-60.0)) - 1.0 / c_to_k(REFERENCE_C)))
-        .exp();
+        let f = (self.activation_k * (1.0 / c_to_k(temp_c.max(-60.0)) - 1.0 / c_to_k(REFERENCE_C)))
+            .exp();
         let k = self.cells_series / self.cells_parallel;
         (
             self.cell_r0_ohm * f * k,
