@@ -179,7 +179,7 @@ fn storage_kind(c: &mut Checker, b: &Battery) {
             false,
             "battery.capacity_ah",
             "missing".into(),
-            "required: the capacity of the whole battery, 0.01 ..= 2000 Ah",
+            "0.01 ..= 2000 Ah (the capacity of the whole battery, required for every chemistry but supercap)",
         ),
         (true, Some(v)) => c.rule(
             false,
@@ -196,7 +196,7 @@ fn storage_kind(c: &mut Checker, b: &Battery) {
                 false,
                 "battery.capacitance_f",
                 "missing".into(),
-                "required for a supercapacitor: the capacitance of one cell, 0.01 ..= 100000 F",
+                "0.01 ..= 100000 F (one cell's capacitance, required for a supercapacitor)",
             ),
         }
         c.opt_range("battery.leakage_current_a", b.leakage_current_a, 0.0, 1.0);
@@ -441,7 +441,7 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
                 false,
                 "generator.pole_pairs",
                 "missing".into(),
-                "required for a three_phase_pm generator: 1 ..= 100",
+                "1 ..= 100 (required for a three_phase_pm generator)",
             ),
         }
         c.rule(

@@ -766,7 +766,7 @@ fn nimh_figures(plant: &Plant) -> Option<NimhFigures> {
 fn storage_notes(plant: &Plant, notes: &mut Vec<String>) {
     let c = &plant.charger;
     match &plant.battery {
-        BatteryModel::Nimh(m) if c.topology == Topology::Direct => notes.push(
+        BatteryModel::Nimh(_) if c.topology == Topology::Direct => notes.push(
             "NiMH behind a diode only: nothing ends the charge, so the pack is overcharged whenever it is full and the operator keeps cranking (the missed_end_of_charge alert).".to_string(),
         ),
         BatteryModel::Nimh(m) => {
