@@ -2,6 +2,7 @@
 //! algebraic quantity and the state derivative. Mode (discrete state) is fixed within a segment.
 
 use crate::model::battery::li_ion::TempBand;
+use crate::model::battery::nimh;
 use crate::model::battery::{BatteryModel, BatteryPowers, BatteryRates, BatteryState, Terminal};
 use crate::model::circuit::{self, CircuitConstants, FastRates, FastStates};
 use crate::model::controller::{self, ControlInput, ControllerGains};
@@ -76,8 +77,7 @@ pub struct Discrete {
     pub device_cutoffs: u32,
     /// NiMH: the highest pack voltage the charger has seen while watching its fast charge, V
     /// (it stores a new one each time the voltage passes it by [`PEAK_RESOLUTION_V_PER_CELL`] a
-    /// cell; 0 before
-    /// the first).
+    /// cell; 0 before the first).
     pub peak_v: f64,
     /// NiMH: the charger watches for the end of its fast charge from this time, s (its hold-off
     /// after each start).
@@ -310,11 +310,16 @@ impl Plant {
                 }
                 _ => 0.0,
             },
-            end_drop_v: c.end_voltage_drop_mv_per_cell.unwrap_or(5.0)
+            end_drop_v: c
+                .end_voltage_drop_mv_per_cell
+                .unwrap_or(nimh::DEFAULT_END_DROP_MV_PER_CELL)
                 * 1e-3
                 * battery.series_cells(),
-            end_rise_k_per_s: c.end_temp_rise_c_per_min.unwrap_or(1.0) / 60.0,
-            end_holdoff_s: c.end_holdoff_s.unwrap_or(60.0),
+            end_rise_k_per_s: c
+                .end_temp_rise_c_per_min
+                .unwrap_or(nimh::DEFAULT_END_RISE_C_PER_MIN)
+                / 60.0,
+            end_holdoff_s: c.end_holdoff_s.unwrap_or(nimh::DEFAULT_END_HOLDOFF_S),
             trickle_current_a: match &battery {
                 BatteryModel::Nimh(m) => c.trickle_current_a.unwrap_or(m.default_trickle_a()),
                 _ => 0.0,

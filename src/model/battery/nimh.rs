@@ -41,6 +41,15 @@ pub const DEFAULT_COULOMBIC: f64 = 0.98;
 /// Default backup voltage limit per cell, V. From memory: NiMH chargers carry a maximum-voltage
 /// cut-off near 1.6–1.8 V/cell, above the 1.4–1.6 V/cell a cell peaks at when charged at 1 C.
 pub const DEFAULT_MAX_V_PER_CELL: f64 = 1.60;
+/// Default voltage drop below the peak that ends a fast charge, mV per cell. Common practice:
+/// NiMH chargers end on about 5–10 mV/cell (NiCd chargers on 10–20).
+pub const DEFAULT_END_DROP_MV_PER_CELL: f64 = 5.0;
+/// Default temperature rise rate that ends a fast charge, °C per minute (common practice: about
+/// 1 °C/min for chargers with a thermistor on the pack).
+pub const DEFAULT_END_RISE_C_PER_MIN: f64 = 1.0;
+/// Default hold-off of both ends after the charger starts, s. Common practice: chargers wait one
+/// to several minutes, since a cell that sat unused can show a false peak at first.
+pub const DEFAULT_END_HOLDOFF_S: f64 = 60.0;
 /// Reference temperature of the OCV curve and the resistances, °C.
 const REFERENCE_C: f64 = 25.0;
 
