@@ -607,6 +607,9 @@ fn stretch(quick: bool) {
         device_off_at_s: f64::NEG_INFINITY,
         device_on_at_s: f64::NEG_INFINITY,
         device_cutoffs: 0,
+        peak_v: 0.0,
+        watch_from_s: 0.0,
+        end_cause: 0,
     };
     let evals = Cell::new(0u64);
     let rhs = StiffRhs {

@@ -112,10 +112,24 @@ fn shipped_setups_cover_every_topology_and_the_chemistries() {
             "no shipped setup with topology {t}"
         );
     }
-    for c in ["nmc", "lfp", "lead_acid"] {
+    for c in ["nmc", "lfp", "lead_acid", "nimh", "supercap"] {
         assert!(
             chemistries.contains(&c),
             "no shipped setup with chemistry {c}"
+        );
+    }
+    let kinds: Vec<&str> = names
+        .iter()
+        .map(|n| load(&setup_path(n), &[]).setup.generator.kind.as_str())
+        .collect();
+    for k in ["brushed_dc", "three_phase_pm"] {
+        assert!(kinds.contains(&k), "no shipped setup with generator {k}");
+    }
+    // The contract's names: one shipped setup at least of each new kind.
+    for prefix in ["alternator-", "nimh-", "supercap-"] {
+        assert!(
+            names.iter().any(|n| n.starts_with(prefix)),
+            "no shipped setup named {prefix}*"
         );
     }
     let outputs: Vec<&str> = names
@@ -714,6 +728,7 @@ fn buck_boost_runs_as_a_buck_above_the_battery_and_saves_losses() {
         diode: &plant.diode,
         emf_v: 24.0,
         resistance_ohm: plant.generator.resistance_ohm(20.0),
+        commutation_ohm: 0.0,
     };
     let mut d = initial_discrete(&plant, &y);
     d.buck_mode = false;

@@ -6,6 +6,7 @@ mod check_map;
 mod common;
 mod fidelity;
 mod hardening;
+mod machines_storage;
 mod measured;
 mod messages;
 mod report_browser;

@@ -103,7 +103,7 @@ fn an_unknown_value_gets_the_nearest_allowed_one() {
     );
     assert_eq!(
         first_line(&err),
-        "crankcharge: error: --set battery.chemistry=nmcc: field `battery.chemistry`: unknown value `nmcc`: did you mean `nmc`? (allowed: `nmc`, `lco`, `nca`, `lfp` or `lead_acid`)"
+        "crankcharge: error: --set battery.chemistry=nmcc: field `battery.chemistry`: unknown value `nmcc`: did you mean `nmc`? (allowed: `nmc`, `lco`, `nca`, `lfp`, `lead_acid`, `nimh` or `supercap`)"
     );
     let err = run_code(&wd, &["run", "deom", "--out", "o"], 2);
     assert!(

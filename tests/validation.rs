@@ -101,7 +101,8 @@ mod file {
     pub struct Battery {
         pub chemistry: Chemistry,
         pub cells_series: u32,
-        pub capacity_ah: f64,
+        #[serde(default)]
+        pub capacity_ah: Option<f64>,
         pub specific_heat_j_per_kg_k: f64,
         pub heat_transfer_w_per_m2_k: f64,
     }
@@ -114,6 +115,8 @@ mod file {
         Nca,
         Lfp,
         LeadAcid,
+        Nimh,
+        Supercap,
     }
 
     #[derive(Deserialize)]
@@ -596,6 +599,7 @@ fn diode_blocks_reverse_current() {
             diode,
             emf_v: emf,
             resistance_ohm: g.resistance_ohm(25.0),
+            commutation_ohm: 0.0,
         };
         network::solve(&src, Load::Direct, &battery.terminal(&bs))
     };
@@ -836,6 +840,7 @@ fn buck_network_regulates_above_dropout_edge_and_drops_out_below() {
             diode: &plant.diode,
             emf_v: emf,
             resistance_ohm: plant.generator.resistance_ohm(20.0),
+            commutation_ohm: 0.0,
         };
         let load = Load::Buck {
             model: &plant.buck,
@@ -1032,6 +1037,7 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
         cogging_periods: 1.0,
         winding_heat_capacity_j_per_k: 60.0,
         winding_to_ambient_w_per_k: 0.8,
+        alternator: None,
     };
     let diode = DiodeModel::Ideal {
         forward_v: v_f,
@@ -1063,6 +1069,7 @@ fn usb_saturated_buck_feeding_a_current_sink_follows_the_averaged_dropout_line()
             diode: &diode,
             emf_v: emf,
             resistance_ohm: r_g,
+            commutation_ohm: 0.0,
         };
         usb_network::solve(&src, &conv, port, (5.0, 1.5), demand, &cell)
     };
@@ -1164,7 +1171,8 @@ fn li_ion_termination_default_between_c10_and_c20() {
     let sc = scenario("demo", &[]);
     assert!(sc.setup.converter.termination_current_a.is_none());
     let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
-    let c_rate = plant.charger.termination_current_a / setup_file("demo").battery.capacity_ah;
+    let c_rate = plant.charger.termination_current_a
+        / setup_file("demo").battery.capacity_ah.expect("capacity");
     // Source: Battery University BU-409 — CV until the current falls to C/10 … C/20.
     assert!(
         (1.0 / 20.0 - 1e-12..=1.0 / 10.0 + 1e-12).contains(&c_rate),
@@ -2396,14 +2404,22 @@ fn heat_lumped_step_reaches_63_percent_at_tau() {
 fn heat_shipped_battery_thermal_data_plausible() {
     for path in shipped_setups() {
         let b = file::setup(&path).battery;
-        if b.chemistry != file::Chemistry::LeadAcid {
-            // Source: Maleki et al., J. Electrochem. Soc. 146(3), 1999 — Li-ion cell specific heat
-            // 800–1100 J/(kg·K) (REFERENCES §9).
-            assert!((800.0..=1100.0).contains(&b.specific_heat_j_per_kg_k));
-        } else {
-            // Common practice: a sealed lead-acid block's specific heat is about 790–900 J/(kg·K)
-            // (REFERENCES §9).
-            assert!((790.0..=900.0).contains(&b.specific_heat_j_per_kg_k));
+        match b.chemistry {
+            file::Chemistry::LeadAcid => {
+                // Common practice: a sealed lead-acid block's specific heat is about 790–900
+                // J/(kg·K) (REFERENCES §9).
+                assert!((790.0..=900.0).contains(&b.specific_heat_j_per_kg_k));
+            }
+            file::Chemistry::Nimh | file::Chemistry::Supercap => {
+                // From memory: thermal studies of NiMH cells and of supercapacitor cells use
+                // specific heats near 0.8–1.3 J/(g·K).
+                assert!((800.0..=1300.0).contains(&b.specific_heat_j_per_kg_k));
+            }
+            _ => {
+                // Source: Maleki et al., J. Electrochem. Soc. 146(3), 1999 — Li-ion cell specific
+                // heat 800–1100 J/(kg·K) (REFERENCES §9).
+                assert!((800.0..=1100.0).contains(&b.specific_heat_j_per_kg_k));
+            }
         }
         // Source: Incropera & DeWitt, Fundamentals of Heat and Mass Transfer, Table 1.1 — natural
         // convection in air h = 2–25 W/(m²·K).
@@ -2457,7 +2473,9 @@ fn energy_balance_every_shipped_setup_steady_120_s() {
             + l.iron_loss_j
             + l.cogging_change_j
             + l.overhead_loss_j
-            + l.pass_heat_j;
+            + l.pass_heat_j
+            + l.recombination_heat_j
+            + l.leakage_j;
         // Common practice: conservation of energy (the ledger terms, summed here, equal the work).
         assert!(
             (sum - l.operator_work_j).abs() < 1e-3 * l.operator_work_j,
@@ -2496,10 +2514,13 @@ fn energy_battery_terminal_energy_splits_into_its_parts() {
             + l.battery_coulombic_j
             + l.stored_chemical_j
             + l.rc_change_j
-            + l.gas_j;
+            + l.gas_j
+            + l.recombination_heat_j
+            + l.leakage_j;
         // Common practice: conservation of energy at the battery terminals — V·I into the battery =
         // ohmic heat + heat of the charge that does not store + chemical storage + RC-branch
-        // energy + the chemical energy of the gas that leaves (lead-acid).
+        // energy + the chemical energy of the gas that leaves (lead-acid) + the oxygen recombined
+        // as heat (NiMH) + the leakage (supercapacitor).
         assert!(
             (parts - l.battery_terminal_j).abs() < 1e-3 * l.battery_terminal_j.abs().max(1.0),
             "{name}: {parts} J vs {} J",
@@ -2521,7 +2542,7 @@ fn energy_charge_count_matches_soc_change_for_li_ion() {
     let eta = 0.99;
     let sc = scenario("demo", &["battery.coulombic_efficiency=0.99"]);
     let s = session(&sc, 120.0);
-    let capacity_as = setup_file("demo").battery.capacity_ah * 3600.0;
+    let capacity_as = setup_file("demo").battery.capacity_ah.expect("capacity") * 3600.0;
     let stored_as = (s.summary.soc_end - s.summary.soc_start) * capacity_as;
     let charge = s.result.ledger.charge_as;
     assert!(s

@@ -30,6 +30,11 @@ pub enum EventKind {
     /// Linear charger: the pass element's junction is past its foldback temperature, so the
     /// charge current is cut back.
     ThermalFoldback,
+    /// NiMH: the pack is full (the current it does not store is above C/10) and its fast charge
+    /// goes on: the voltage-drop or temperature-rise end was missed.
+    MissedEndOfCharge,
+    /// Battery temperature rising faster than its limit (dT/dt).
+    TemperatureRise,
 }
 
 impl EventKind {
@@ -47,12 +52,21 @@ impl EventKind {
             EventKind::DeviceCutoff => "device_cutoff",
             EventKind::ModelRange => "model_range",
             EventKind::ThermalFoldback => "thermal_foldback",
+            EventKind::MissedEndOfCharge => "missed_end_of_charge",
+            EventKind::TemperatureRise => "temperature_rise",
         }
     }
 
+    /// Whether a row of this kind means the battery was overcharged: past its voltage limit, or
+    /// (NiMH) full and still fast-charged.
+    pub fn is_overcharge(self) -> bool {
+        matches!(self, EventKind::Overcharge | EventKind::MissedEndOfCharge)
+    }
+
     /// Every kind, in the order of the README's alert table.
-    pub const ALL: [EventKind; 11] = [
+    pub const ALL: [EventKind; 13] = [
         EventKind::Overcharge,
+        EventKind::MissedEndOfCharge,
         EventKind::RegulationLoss,
         EventKind::Lockout,
         EventKind::InputOvervoltage,
@@ -61,6 +75,7 @@ impl EventKind {
         EventKind::OperatorOverload,
         EventKind::DeviceCutoff,
         EventKind::ThermalFoldback,
+        EventKind::TemperatureRise,
         EventKind::ModelRange,
         EventKind::ChargeComplete,
     ];

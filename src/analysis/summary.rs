@@ -127,6 +127,12 @@ pub struct Summary {
     /// Highest instantaneous operator power, the per-turn torque ripple riding on the mean
     /// (trace grid), W.
     pub peak_instant_operator_power_w: f64,
+    /// A supercapacitor bank's energy (only for `supercap`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub supercap: Option<SupercapSummary>,
+    /// A NiMH pack's end of charge (only for `nimh`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub nimh: Option<NimhSummary>,
     /// The recorded log a replayed session followed (absent for a planned profile).
     #[serde(skip_serializing_if = "Option::is_none")]
     pub replay: Option<ReplaySummary>,
@@ -145,6 +151,46 @@ pub struct ReplaySummary {
     pub follows: String,
     /// The resampling, in words.
     pub resampling: String,
+}
+
+/// A supercapacitor bank's energy over a session (`summary.json` `supercap`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct SupercapSummary {
+    /// Capacitance and rated voltage of the bank, F and V.
+    pub capacitance_f: f64,
+    pub rated_v: f64,
+    /// Capacitor voltage at the start and the end, V.
+    pub voltage_start_v: f64,
+    pub voltage_end_v: f64,
+    /// Energy held at the start and the end, Wh: ½·C·V².
+    pub energy_start_wh: f64,
+    pub energy_end_wh: f64,
+    /// Energy the capacitance took over the session by the ledger, Wh (the closed form is
+    /// energy_end_wh − energy_start_wh).
+    pub stored_wh: f64,
+    /// Lowest usable voltage of the bank and the energy above it at the end, Wh.
+    pub min_v: f64,
+    pub usable_end_wh: f64,
+    /// Share of the energy at the rated voltage above the lowest usable voltage.
+    pub usable_fraction: f64,
+    /// Heat of the leakage and of the ESR over the session, Wh.
+    pub leakage_wh: f64,
+    pub esr_wh: f64,
+}
+
+/// A NiMH pack's end of charge (`summary.json` `nimh`).
+#[derive(Debug, Clone, Serialize, PartialEq)]
+pub struct NimhSummary {
+    /// When the fast charge ended, s (None: it did not).
+    pub fast_charge_end_s: Option<f64>,
+    /// What ended it: `voltage_drop` (−ΔV) or `temperature_rise` (dT/dt).
+    pub fast_charge_end: Option<String>,
+    /// Highest pack voltage per cell over the session, V.
+    pub peak_v_per_cell: f64,
+    /// Fastest rise of the battery temperature on the trace grid, °C per minute.
+    pub max_temp_rise_c_per_min: f64,
+    /// Heat of the oxygen recombined in the cells over the session, Wh.
+    pub recombination_heat_wh: f64,
 }
 
 /// Window over which the lowest sustained cadence is averaged, s: a few crank turns, so that the

@@ -20,6 +20,8 @@ pub enum Mode {
     Dropout,
     /// Charge terminated (Li-ion below the termination current).
     Done,
+    /// NiMH: the fast charge ended (voltage drop or temperature rise); trickle current.
+    Trickle,
     /// Charging refused by the battery temperature window.
     TempHold,
     /// Diode-only connection: generator feeds the battery directly.
@@ -39,6 +41,7 @@ impl Mode {
             Mode::Float => "float",
             Mode::Dropout => "dropout",
             Mode::Done => "done",
+            Mode::Trickle => "trickle",
             Mode::TempHold => "temp_hold",
             Mode::Direct => "direct",
             Mode::DeviceOff => "device_off",

@@ -56,11 +56,13 @@ pub enum Drive<'a> {
 }
 
 /// Armature current rate L·di/dt = E − i·R − V_b − V_D − v_in; a blocking diode holds i at 0.
+/// An alternator's DC-side current is the same equation with its bridge's output for E and the
+/// two conducting phases' inductance for L (the averaged model of the phase currents).
 fn armature_rate(src: &Source, k: &CircuitConstants, i_raw: f64, v_in: f64) -> (f64, f64) {
     let blocks = src.diode.blocks_reverse();
     let i = if blocks { i_raw.max(0.0) } else { i_raw };
     let push = src.node_v(i) - v_in;
-    let threshold = src.diode.threshold_v();
+    let threshold = src.threshold_v();
     let rate = if blocks && i_raw <= 0.0 && push - threshold <= 0.0 {
         0.0
     } else if blocks && i_raw <= 0.0 {
@@ -109,7 +111,7 @@ pub fn evaluate(
                 },
                 battery_current_a: ib,
                 battery_v: v_o,
-                diode_v: src.diode.forward_v(i_a),
+                diode_v: src.diode_drop(i_a),
                 brush_v: src.generator.brush_drop(i_a),
                 losses: ConverterLosses {
                     pass_w: pass * (v_in - v_o),
@@ -135,7 +137,7 @@ pub fn evaluate(
                 balance_duty: 1.0,
                 battery_current_a: ib,
                 battery_v: x.input_v,
-                diode_v: src.diode.forward_v(i_a),
+                diode_v: src.diode_drop(i_a),
                 brush_v: src.generator.brush_drop(i_a),
                 ..NetworkPoint::default()
             };
@@ -336,7 +338,7 @@ fn averaged_point(
         battery_current_a: ib,
         battery_v: v_o,
         dropout: false,
-        diode_v: src.diode.forward_v(i_a),
+        diode_v: src.diode_drop(i_a),
         brush_v: src.generator.brush_drop(i_a),
         losses: ConverterLosses {
             switch_w: loss_w - overhead_w,

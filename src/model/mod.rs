@@ -1,6 +1,7 @@
 //! Pure physics of the charging chain, SI units, no integrator and no I/O.
 
 pub mod battery;
+pub mod bridge;
 pub mod circuit;
 pub mod controller;
 pub mod converter;

@@ -7,6 +7,7 @@
 //! open circuit. Regulated and dropout branches meet continuously at the dropout edge.
 
 use crate::model::battery::Terminal;
+use crate::model::bridge;
 use crate::model::converter::{
     BuckBoostModel, BuckModel, ConverterLosses, LinearModel, CORE_LOSS_MIN_V,
 };
@@ -94,33 +95,64 @@ impl<'a> Converters<'a> {
 #[derive(Debug, Clone, Copy)]
 pub struct Source<'a> {
     pub generator: &'a GeneratorModel,
+    /// The protection diode, or each of an alternator's bridge diodes.
     pub diode: &'a DiodeModel,
-    /// Back-EMF, V.
+    /// Back-EMF, V (an alternator's: its bridge's no-load average output).
     pub emf_v: f64,
-    /// Armature resistance at the winding temperature, Ω.
+    /// Resistance in the current's path at the winding temperature, Ω (armature, or an
+    /// alternator's two conducting phases).
     pub resistance_ohm: f64,
+    /// An alternator's commutation resistance 3·ω_e·L_s/π at this speed, Ω (0 for a DC machine);
+    /// see [`crate::model::bridge`].
+    pub commutation_ohm: f64,
 }
 
 impl Source<'_> {
-    /// Input-node voltage when the generator delivers `i`: E − i·R − V_brush(i) − V_D(i).
+    /// Output behind the copper at current `i`, V, and its slope, Ω: the EMF for a DC machine,
+    /// the bridge's averaged output with its commutation overlap for an alternator.
+    pub fn rectified(&self, i: f64) -> (f64, f64) {
+        if self.commutation_ohm > 0.0 {
+            bridge::dc_output(self.emf_v, self.commutation_ohm, i)
+        } else {
+            (self.emf_v, 0.0)
+        }
+    }
+
+    /// Drop of the diodes in the current's path at `i`, V (one, or a bridge's two).
+    pub fn diode_drop(&self, i: f64) -> f64 {
+        self.generator.conducting_diodes() * self.diode.forward_v(i)
+    }
+
+    /// Forward voltage below which the diodes in the path pass no current, V.
+    pub fn threshold_v(&self) -> f64 {
+        self.generator.conducting_diodes() * self.diode.threshold_v()
+    }
+
+    /// Input-node voltage when the generator delivers `i`: E − i·R − V_brush(i) − V_D(i) (for an
+    /// alternator V_d(i) − i·2R − 2·V_D(i)).
     pub fn node_v(&self, i: f64) -> f64 {
-        self.emf_v
+        self.rectified(i).0
             - i * self.resistance_ohm
             - self.generator.brush_drop(i)
-            - self.diode.forward_v(i)
+            - self.diode_drop(i)
     }
 
     /// −d(node_v)/di, Ω.
     pub fn node_slope(&self, i: f64) -> f64 {
-        self.resistance_ohm + self.generator.brush_drop_slope(i) + self.diode.slope(i)
+        -self.rectified(i).1
+            + self.resistance_ohm
+            + self.generator.brush_drop_slope(i)
+            + self.generator.conducting_diodes() * self.diode.slope(i)
     }
 
     /// Node voltage and its slope −d(node_v)/di together, V and Ω.
     pub fn node(&self, i: f64) -> (f64, f64) {
         let (brush_v, brush_slope) = self.generator.brush(i);
+        let (out_v, out_slope) = self.rectified(i);
+        let n = self.generator.conducting_diodes();
         (
-            self.emf_v - i * self.resistance_ohm - brush_v - self.diode.forward_v(i),
-            self.resistance_ohm + brush_slope + self.diode.slope(i),
+            out_v - i * self.resistance_ohm - brush_v - n * self.diode.forward_v(i),
+            -out_slope + self.resistance_ohm + brush_slope + n * self.diode.slope(i),
         )
     }
 }
@@ -186,7 +218,7 @@ fn direct_point(src: &Source, term: &Terminal) -> NetworkPoint {
     };
     let rest = term.v(0.0).0;
     let r = src.resistance_ohm.max(1e-9);
-    let i = if src.emf_v - src.diode.threshold_v() > rest {
+    let i = if src.emf_v - src.threshold_v() > rest {
         // The ends need no check: f(0) = rest − (E − V_D(0)) < 0 here, and at hi the copper alone
         // drops E − rest, so f(hi) ≥ V_D(hi) ≥ 0.
         let hi = (src.emf_v - rest) / r;
@@ -205,7 +237,7 @@ fn direct_point(src: &Source, term: &Terminal) -> NetworkPoint {
         balance_duty: 1.0,
         battery_current_a: i,
         battery_v: vb,
-        diode_v: src.diode.forward_v(i),
+        diode_v: src.diode_drop(i),
         brush_v: src.generator.brush_drop(i),
         ..NetworkPoint::default()
     }
@@ -414,9 +446,9 @@ fn switching_point(
         battery_current_a: ib,
         battery_v: vo,
         dropout,
-        // `v` is node_v(i) = E − i·R − V_brush − V_D: the diode drop follows without another
-        // logarithm.
-        diode_v: (src.emf_v - i * src.resistance_ohm - brush_v - v).max(0.0),
+        // `v` is node_v(i) = V_out(i) − i·R − V_brush − V_D: the diode drop follows without
+        // another logarithm.
+        diode_v: (src.rectified(i).0 - i * src.resistance_ohm - brush_v - v).max(0.0),
         brush_v,
         losses,
     }
@@ -578,7 +610,7 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
         battery_current_a: ib,
         battery_v: vo,
         dropout,
-        diode_v: src.diode.forward_v(i),
+        diode_v: src.diode_drop(i),
         brush_v: src.generator.brush_drop(i),
         losses: lin.losses(ib, v, vo),
     }
@@ -655,7 +687,7 @@ fn floored_point(
         _ => conv.buck.input_current_a(d, ib, floor_v),
     };
     p.input_v = src.node_v(p.generator_current_a);
-    p.diode_v = src.diode.forward_v(p.generator_current_a);
+    p.diode_v = src.diode_drop(p.generator_current_a);
     p.brush_v = src.generator.brush_drop(p.generator_current_a);
     p
 }

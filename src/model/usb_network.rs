@@ -185,7 +185,7 @@ fn sag(
         battery_current_a: i,
         battery_v: s.bus_v.max(0.0),
         dropout: true,
-        diode_v: src.diode.forward_v(ig),
+        diode_v: src.diode_drop(ig),
         brush_v: src.generator.brush_drop(ig),
         losses,
     }
@@ -233,6 +233,7 @@ mod tests {
             cogging_periods: 1.0,
             winding_heat_capacity_j_per_k: 60.0,
             winding_to_ambient_w_per_k: 0.8,
+            alternator: None,
         }
     }
 
@@ -283,6 +284,7 @@ mod tests {
             diode: &d,
             emf_v,
             resistance_ohm: 1.5,
+            commutation_ohm: 0.0,
         };
         let cell = Terminal::Linear {
             rest_v: 3.7,

@@ -44,6 +44,11 @@ pub struct Alerts {
     pub model_range: EpisodeTiming,
     /// A linear charger's pass element hot enough to fold its current back; informational.
     pub thermal_foldback: EpisodeTiming,
+    /// NiMH: the pack is full and its fast charge goes on (the −ΔV or dT/dt end was missed);
+    /// affects the verdict as `overcharge`.
+    pub missed_end_of_charge: MissedEndRule,
+    /// Battery temperature rising fast (dT/dt above a limit); informational.
+    pub temperature_rise: TemperatureRiseRule,
 }
 
 impl Default for Alerts {
@@ -80,6 +85,8 @@ impl Default for Alerts {
                 dwell_s: 1.0,
                 merge_gap_s: 10.0,
             },
+            missed_end_of_charge: MissedEndRule::default(),
+            temperature_rise: TemperatureRiseRule::default(),
         }
     }
 }
@@ -204,6 +211,66 @@ impl Default for OperatorOverloadRule {
             hysteresis_fraction: 0.05,
             dwell_s: 1.0,
             merge_gap_s: 10.0,
+        }
+    }
+}
+
+/// NiMH overcharge: the pack stores only a small part of a fast-charge current (it is full: the
+/// rest evolves oxygen, which recombines in the sealed cell as heat) while the charger is still in
+/// its fast charge.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct MissedEndRule {
+    /// Alert when the pack stores less than this fraction of its charge current (0.01 … 0.99);
+    /// default 0.1: nine tenths of the current is heat. A −ΔV charger at 0.5–1 C ends while the
+    /// pack still stores 15–35 % (the model's NiMH pack, from 20 °C).
+    pub stored_fraction: f64,
+    /// The episode ends once the stored fraction is this much higher (0 … 0.5); default 0.05.
+    pub hysteresis_fraction: f64,
+    /// Only charge currents above this fraction of the capacity per hour count (0 … 10); default
+    /// 0.1: sealed nickel cells recombine the oxygen of a continuous overcharge up to about C/10
+    /// (the rate of the standard 14–16-h charge), not a fast charge's (common practice).
+    pub min_c_rate: f64,
+    /// Least time past the threshold, s (0 … 3600); default 30.
+    pub dwell_s: f64,
+    /// Episodes closer than this are one, s (0 … 3600); default 60.
+    pub merge_gap_s: f64,
+}
+
+impl Default for MissedEndRule {
+    fn default() -> Self {
+        Self {
+            stored_fraction: 0.1,
+            hysteresis_fraction: 0.05,
+            min_c_rate: 0.1,
+            dwell_s: 30.0,
+            merge_gap_s: 60.0,
+        }
+    }
+}
+
+/// Battery temperature rising faster than a limit.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq)]
+#[serde(deny_unknown_fields, default)]
+pub struct TemperatureRiseRule {
+    /// Alert above this rate of rise, °C per minute (0.01 … 100); default 1: the dT/dt on which
+    /// NiMH chargers end a fast charge (common practice), so a row means the heating went on.
+    pub threshold_c_per_min: f64,
+    /// The episode ends once the rate is this much lower, °C per minute (0 … 10); default 0.2.
+    pub hysteresis_c_per_min: f64,
+    /// Least time above the threshold, s (0 … 3600); default 30.
+    pub dwell_s: f64,
+    /// Episodes closer than this are one, s (0 … 3600); default 60.
+    pub merge_gap_s: f64,
+}
+
+impl Default for TemperatureRiseRule {
+    fn default() -> Self {
+        Self {
+            threshold_c_per_min: 1.0,
+            hysteresis_c_per_min: 0.2,
+            dwell_s: 30.0,
+            merge_gap_s: 60.0,
         }
     }
 }

@@ -26,6 +26,9 @@ pub const SETUPS: &[Embedded] = &[
     embed!("lfp-linear", "setups"),
     embed!("lead-acid-buck", "setups"),
     embed!("usb-phone", "setups"),
+    embed!("alternator-hub", "setups"),
+    embed!("nimh-aa-pack", "setups"),
+    embed!("supercap-bank", "setups"),
 ];
 
 /// Shipped crank profiles; the first is the default.

@@ -70,22 +70,59 @@ pub struct Drive {
     pub viscous_friction_n_m_s: f64,
 }
 
-/// Permanent-magnet DC generator.
+/// Kind of generator.
+#[derive(Debug, Clone, Copy, Serialize, Deserialize, PartialEq, Eq, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum GeneratorKind {
+    /// Brushed permanent-magnet DC machine (the protection diode in series).
+    #[default]
+    BrushedDc,
+    /// Three-phase permanent-magnet alternator (a hub or small wind-turbine machine) with a
+    /// six-diode bridge: `diode` describes each of the bridge's diodes, two of which conduct at a
+    /// time.
+    ThreePhasePm,
+}
+
+impl GeneratorKind {
+    /// The word used in summaries.
+    pub fn as_str(self) -> &'static str {
+        match self {
+            GeneratorKind::BrushedDc => "brushed_dc",
+            GeneratorKind::ThreePhasePm => "three_phase_pm",
+        }
+    }
+}
+
+/// The generator: a permanent-magnet DC machine, or a three-phase permanent-magnet alternator
+/// with its bridge rectifier.
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields)]
 pub struct Generator {
-    /// Back-EMF constant, volts per 1000 rpm (0.1 … 500), the datasheet habit.
+    /// `brushed_dc` (default) or `three_phase_pm`.
+    #[serde(default)]
+    pub kind: GeneratorKind,
+    /// Back-EMF constant, volts per 1000 rpm (0.1 … 500), the datasheet habit. For
+    /// `three_phase_pm`: the open-circuit line-to-line EMF, RMS, per 1000 rpm (what an AC
+    /// voltmeter reads between two leads of the unloaded machine).
     pub back_emf_v_per_krpm: f64,
-    /// Armature (terminal) resistance at 20 °C, Ω (0.001 … 100).
+    /// Armature (terminal) resistance at 20 °C, Ω (0.001 … 100). For `three_phase_pm`: one
+    /// phase of the equivalent star winding, half what an ohmmeter reads between two leads.
     pub resistance_ohm: f64,
-    /// Armature inductance, H (0 … 1).
+    /// Armature inductance, H (0 … 1); default 1e-3. For `three_phase_pm`: the synchronous
+    /// inductance of one phase of the equivalent star winding (half the inductance between two
+    /// leads); its reactance X = p·ω·L limits the current as the speed rises.
     #[serde(default = "default_inductance")]
     pub inductance_h: f64,
+    /// `three_phase_pm` only (and required there): pole pairs p (1 … 100); the electrical
+    /// frequency is p × the shaft speed. Hub alternators have many (10–30), small wind-turbine
+    /// machines 4–12.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub pole_pairs: Option<u32>,
     /// Rotor inertia, kg·m² (0 … 0.1).
     pub inertia_kg_m2: f64,
     /// Total brush voltage drop at full current, V (0 … 3); default 0. Carbon brushes drop about
     /// 1.6–2 V in all (Hawkins Electrical Guide), metal-graphite about 0.6 V, small precious-metal
-    /// brushes far less (REFERENCES §4).
+    /// brushes far less (REFERENCES §4). A `three_phase_pm` machine has no brushes: 0 there.
     #[serde(default)]
     pub brush_drop_v: f64,
     /// Hysteresis part of the iron (core) loss, W per 1000 rpm of shaft speed (0 … 50):
@@ -318,7 +355,9 @@ pub struct Converter {
     /// Output capacitance, F (1e-7 … 1).
     #[serde(default = "default_cap_out")]
     pub output_capacitance_f: f64,
-    /// Li-ion termination current, A; default C/10 of the pack.
+    /// Li-ion (and supercapacitor) termination current, A: the charge ends when the CV current
+    /// falls below it; default C/10 of a Li-ion pack; none for a supercapacitor, whose charger
+    /// holds its rated voltage (feeding the leakage).
     #[serde(default)]
     pub termination_current_a: Option<f64>,
     /// Lead-acid: leave absorption for float below this current, A; default C/50.
@@ -327,6 +366,24 @@ pub struct Converter {
     /// Lead-acid: longest absorption stage before float, s (1 … 1e6).
     #[serde(default = "default_absorption_time")]
     pub absorption_max_s: f64,
+    /// NiMH: the fast charge ends once the pack voltage has fallen this far below its peak
+    /// (−ΔV), mV per cell (0 … 50; 0 turns the voltage-drop end off); default 5. Common practice:
+    /// NiMH chargers end on about 5–10 mV/cell (NiCd chargers on 10–20).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub end_voltage_drop_mv_per_cell: Option<f64>,
+    /// NiMH: the fast charge ends once the pack temperature rises faster than this (dT/dt),
+    /// °C per minute (0 … 10; 0: no thermistor, the temperature end is off); default 1.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub end_temp_rise_c_per_min: Option<f64>,
+    /// NiMH: both ends are ignored this long after the charger (re)starts, s (0 … 3600);
+    /// default 60. Common practice: chargers wait one to several minutes, since a cell that sat
+    /// unused can show a false peak when its charge begins.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub end_holdoff_s: Option<f64>,
+    /// NiMH: the trickle (top-off) current after the fast charge ends, A (0 … 50, below
+    /// `charge_current_a`); default C/30 of the pack (common practice: C/20 … C/40).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub trickle_current_a: Option<f64>,
 }
 
 fn default_charge_current() -> f64 {
@@ -389,6 +446,12 @@ pub enum Chemistry {
     Lfp,
     /// Lead-acid (flooded, AGM or gel; see `lead_acid_kind`).
     LeadAcid,
+    /// Nickel-metal hydride (1.2 V/cell nominal): constant current ended on the voltage drop
+    /// (−ΔV) or the temperature rise (dT/dt) at full, then a trickle.
+    Nimh,
+    /// Electric double-layer capacitor (supercapacitor) cells: capacitance, ESR and leakage,
+    /// charged at constant current to their rated voltage.
+    Supercap,
 }
 
 impl Chemistry {
@@ -400,12 +463,17 @@ impl Chemistry {
             Chemistry::Nca => "nca",
             Chemistry::Lfp => "lfp",
             Chemistry::LeadAcid => "lead_acid",
+            Chemistry::Nimh => "nimh",
+            Chemistry::Supercap => "supercap",
         }
     }
 
     /// True for the lithium chemistries.
     pub fn is_lithium(self) -> bool {
-        !matches!(self, Chemistry::LeadAcid)
+        matches!(
+            self,
+            Chemistry::Nmc | Chemistry::Lco | Chemistry::Nca | Chemistry::Lfp
+        )
     }
 }
 
@@ -453,11 +521,12 @@ impl Default for ChargeWindow {
     }
 }
 
-/// The battery: a Li-ion pack (N_s × N_p cells) or a lead-acid battery of N_s cells.
+/// The storage: a Li-ion pack (N_s × N_p cells), a lead-acid battery of N_s cells, a NiMH pack
+/// or a bank of supercapacitor cells (N_s × N_p).
 #[derive(Debug, Clone, Serialize, Deserialize, PartialEq)]
 #[serde(deny_unknown_fields)]
 pub struct Battery {
-    /// `nmc`, `lco`, `nca`, `lfp` or `lead_acid`.
+    /// `nmc`, `lco`, `nca`, `lfp`, `lead_acid`, `nimh` or `supercap`.
     pub chemistry: Chemistry,
     /// Lead-acid construction (`flooded`, `agm`, `gel`); ignored for Li-ion.
     #[serde(default)]
@@ -468,25 +537,33 @@ pub struct Battery {
     #[serde(default = "one_u32")]
     pub cells_parallel: u32,
     /// Capacity of the whole battery (pack), Ah (0.01 … 2000); lead-acid: the C10 rating.
-    pub capacity_ah: f64,
+    /// Required for every chemistry but `supercap`, whose charge follows from `capacitance_f`
+    /// and its rated voltage (leave it out there).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub capacity_ah: Option<f64>,
     /// State of charge at the start (0 … 1).
     pub soc_start: f64,
-    /// Li-ion series resistance per cell at 25 °C, Ω (0 … 1).
+    /// Series resistance per cell at 25 °C, Ω (0 … 1): Li-ion and NiMH R0; a supercapacitor's
+    /// ESR.
     #[serde(default = "default_r0")]
     pub cell_r0_ohm: f64,
-    /// Li-ion RC-branch resistance per cell, Ω (0 … 1).
+    /// Li-ion and NiMH RC-branch resistance per cell, Ω (0 … 1).
     #[serde(default = "default_r1")]
     pub cell_r1_ohm: f64,
-    /// Li-ion RC-branch capacitance per cell, F (1 … 1e6).
+    /// Li-ion and NiMH RC-branch capacitance per cell, F (1 … 1e6).
     #[serde(default = "default_c1")]
     pub cell_c1_f: f64,
     /// Arrhenius temperature of the resistances, K (0 … 10 000): R(T) = R25·exp(E·(1/T − 1/298.15)).
     #[serde(default = "default_activation")]
     pub resistance_activation_k: f64,
-    /// Li-ion coulombic efficiency (0.5 … 1).
-    #[serde(default = "default_coulombic")]
-    pub coulombic_efficiency: f64,
-    /// Charge limit per cell at 25 °C, V: Li-ion CV voltage or lead-acid absorption; default by chemistry.
+    /// Coulombic efficiency below full (0.5 … 1): Li-ion, default 0.998; NiMH, default 0.98
+    /// (its charge acceptance falls further near full). Not used for lead-acid (Copetti's law) or
+    /// a supercapacitor.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub coulombic_efficiency: Option<f64>,
+    /// Charge limit per cell at 25 °C, V: Li-ion CV voltage, lead-acid absorption, NiMH the
+    /// charger's backup voltage limit (default 1.60), a supercapacitor's rated voltage (default
+    /// 2.70); default by chemistry.
     #[serde(default)]
     pub charge_v_per_cell: Option<f64>,
     /// Lead-acid float voltage per cell at 25 °C, V; default by kind.
@@ -517,6 +594,20 @@ pub struct Battery {
     /// Li-ion charge temperature window.
     #[serde(default)]
     pub charge_window: ChargeWindow,
+    /// Supercapacitor: capacitance of one cell, F (0.01 … 100 000); required for `supercap`.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub capacitance_f: Option<f64>,
+    /// Supercapacitor: leakage current of one cell at its rated voltage, A (0 … 1); modelled as
+    /// a resistance across the cell, so it falls with the voltage. Default 0. Makers give it after
+    /// the cell has been held at its rated voltage for hours (72 h is usual), from microamps to a
+    /// few milliamps by size.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub leakage_current_a: Option<f64>,
+    /// Supercapacitor: the lowest cell voltage the load can use, V (0 … the rated voltage);
+    /// default half the rated voltage (the usable energy is then 1 − (1/2)² = 75 % of the
+    /// stored energy). Figures only: `check` and the summary report the energy above it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub min_v_per_cell: Option<f64>,
     /// Li-ion: the cell's open-circuit voltage against SOC (2 … 50 points, SOC from 0 to 1 and
     /// OCV both strictly increasing, each 1.5 … 4.6 V). SOC 1 is full at the top point, which must
     /// be at least the CV voltage. Default: the chemistry's built-in curve.
@@ -554,9 +645,6 @@ fn default_c1() -> f64 {
 }
 fn default_activation() -> f64 {
     2500.0
-}
-fn default_coulombic() -> f64 {
-    0.998
 }
 fn default_cp() -> f64 {
     1000.0

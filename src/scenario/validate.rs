@@ -1,7 +1,9 @@
 //! Range checks of every physical field, with the path and the allowed range for the message.
 
 use super::profile::Profile;
-use super::setup::{Alerts, DiodeKind, Setup, Topology, UsbPort};
+use super::setup::{
+    Alerts, Battery, Chemistry, DiodeKind, GeneratorKind, Setup, Topology, UsbPort,
+};
 
 /// One field outside its allowed range.
 #[derive(Debug, Clone, PartialEq)]
@@ -166,6 +168,161 @@ fn ocv_curve(c: &mut Checker, b: &super::setup::Battery) {
     );
 }
 
+/// The capacity and the supercapacitor's own fields: `capacity_ah` for every chemistry but
+/// `supercap`, whose charge follows from its capacitance and rated voltage; `capacitance_f`,
+/// `leakage_current_a` and `min_v_per_cell` only there.
+fn storage_kind(c: &mut Checker, b: &Battery) {
+    let supercap = b.chemistry == Chemistry::Supercap;
+    match (supercap, b.capacity_ah) {
+        (false, Some(v)) => c.range("battery.capacity_ah", v, 0.01, 2000.0),
+        (false, None) => c.rule(
+            false,
+            "battery.capacity_ah",
+            "missing".into(),
+            "0.01 ..= 2000 Ah (the capacity of the whole battery, required for every chemistry but supercap)",
+        ),
+        (true, Some(v)) => c.rule(
+            false,
+            "battery.capacity_ah",
+            format!("{v}"),
+            "none for a supercapacitor (its charge follows from battery.capacitance_f and the rated voltage battery.charge_v_per_cell)",
+        ),
+        (true, None) => {}
+    }
+    if supercap {
+        match b.capacitance_f {
+            Some(v) => c.range("battery.capacitance_f", v, 0.01, 1e5),
+            None => c.rule(
+                false,
+                "battery.capacitance_f",
+                "missing".into(),
+                "0.01 ..= 100000 F (one cell's capacitance, required for a supercapacitor)",
+            ),
+        }
+        c.opt_range("battery.leakage_current_a", b.leakage_current_a, 0.0, 1.0);
+    } else {
+        for (path, v) in [
+            ("battery.capacitance_f", b.capacitance_f),
+            ("battery.leakage_current_a", b.leakage_current_a),
+            ("battery.min_v_per_cell", b.min_v_per_cell),
+        ] {
+            if let Some(v) = v {
+                c.rule(
+                    false,
+                    path,
+                    format!("{v}"),
+                    "only on a supercapacitor (chemistry supercap)",
+                );
+            }
+        }
+    }
+}
+
+/// NiMH and supercapacitor cells: their charge limit per cell, no Li-ion curve and no lead-acid
+/// settings; a supercapacitor's lowest usable voltage below its rated one and a positive ESR.
+fn nimh_or_supercap(c: &mut Checker, b: &Battery) {
+    use crate::model::battery::supercap::DEFAULT_RATED_V_PER_CELL;
+    let word = b.chemistry.as_str();
+    c.rule(
+        b.ocv_curve.is_none(),
+        "battery.ocv_curve",
+        format!("set on a {word} battery"),
+        "only on a Li-ion battery (nmc, lco, nca, lfp)",
+    );
+    for (path, v) in [
+        ("battery.float_v_per_cell", b.float_v_per_cell),
+        (
+            "battery.temp_comp_mv_per_c_per_cell",
+            b.temp_comp_mv_per_c_per_cell,
+        ),
+        (
+            "battery.max_compensated_v_per_cell",
+            b.max_compensated_v_per_cell,
+        ),
+        (
+            "battery.min_compensated_v_per_cell",
+            b.min_compensated_v_per_cell,
+        ),
+    ] {
+        if let Some(v) = v {
+            c.rule(
+                false,
+                path,
+                format!("{v} on a {word} battery"),
+                "only on a lead-acid battery",
+            );
+        }
+    }
+    if b.chemistry == Chemistry::Nimh {
+        // From memory: a NiMH cell peaks near 1.4–1.6 V at 1 C; chargers' backup limits sit up to
+        // about 1.8 V.
+        c.opt_range("battery.charge_v_per_cell", b.charge_v_per_cell, 1.3, 2.0);
+        return;
+    }
+    c.opt_range("battery.charge_v_per_cell", b.charge_v_per_cell, 1.0, 4.0);
+    let rated = b.charge_v_per_cell.unwrap_or(DEFAULT_RATED_V_PER_CELL);
+    if let Some(v_min) = b.min_v_per_cell {
+        c.rule(
+            v_min.is_finite() && v_min >= 0.0 && v_min < rated,
+            "battery.min_v_per_cell",
+            format!("{v_min} (rated {rated} V per cell)"),
+            "0 ..< the rated voltage battery.charge_v_per_cell",
+        );
+    }
+    c.rule(
+        b.cell_r0_ohm > 0.0,
+        "battery.cell_r0_ohm",
+        format!("{}", b.cell_r0_ohm),
+        "> 0 for a supercapacitor cell (its ESR)",
+    );
+}
+
+/// A NiMH charger's end of charge and trickle: in range, below the charge current, and only
+/// with a NiMH battery.
+fn nimh_charger(c: &mut Checker, s: &Setup) {
+    let cv = &s.converter;
+    let nimh = s.battery.chemistry == Chemistry::Nimh;
+    for (path, v, lo, hi) in [
+        (
+            "converter.end_voltage_drop_mv_per_cell",
+            cv.end_voltage_drop_mv_per_cell,
+            0.0,
+            50.0,
+        ),
+        (
+            "converter.end_temp_rise_c_per_min",
+            cv.end_temp_rise_c_per_min,
+            0.0,
+            10.0,
+        ),
+        ("converter.end_holdoff_s", cv.end_holdoff_s, 0.0, 3600.0),
+        (
+            "converter.trickle_current_a",
+            cv.trickle_current_a,
+            0.0,
+            50.0,
+        ),
+    ] {
+        if let Some(v) = v {
+            c.range(path, v, lo, hi);
+            c.rule(
+                nimh,
+                path,
+                format!("{v} with a {} battery", s.battery.chemistry.as_str()),
+                "only with a NiMH battery (chemistry nimh)",
+            );
+        }
+    }
+    if let Some(t) = cv.trickle_current_a {
+        c.rule(
+            t < cv.charge_current_a,
+            "converter.trickle_current_a",
+            format!("{t} (charge_current_a {})", cv.charge_current_a),
+            "< converter.charge_current_a (the trickle follows the fast charge)",
+        );
+    }
+}
+
 /// Checks a setup; an empty list means valid.
 pub fn setup(s: &Setup) -> Vec<Violation> {
     let mut c = Checker::default();
@@ -271,6 +428,42 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         0.001,
         100.0,
     );
+
+    if g.kind == GeneratorKind::ThreePhasePm {
+        match g.pole_pairs {
+            Some(p) => c.rule(
+                (1..=100).contains(&p),
+                "generator.pole_pairs",
+                p.to_string(),
+                "1 ..= 100",
+            ),
+            None => c.rule(
+                false,
+                "generator.pole_pairs",
+                "missing".into(),
+                "1 ..= 100 (required for a three_phase_pm generator)",
+            ),
+        }
+        c.rule(
+            g.brush_drop_v == 0.0,
+            "generator.brush_drop_v",
+            format!("{}", g.brush_drop_v),
+            "0 for a three_phase_pm generator (it has no brushes)",
+        );
+        c.rule(
+            s.diode.kind != DiodeKind::None,
+            "diode.kind",
+            "none".into(),
+            "shockley or ideal with a three_phase_pm generator (`diode` describes each of the bridge's six diodes)",
+        );
+    } else if let Some(p) = g.pole_pairs {
+        c.rule(
+            false,
+            "generator.pole_pairs",
+            p.to_string(),
+            "only on a three_phase_pm generator",
+        );
+    }
 
     let di = &s.diode;
     c.range(
@@ -533,6 +726,8 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         c.range("converter.absorption_max_s", cv.absorption_max_s, 1.0, 1e6);
     }
 
+    nimh_charger(&mut c, s);
+
     let b = &s.battery;
     c.range(
         "battery.cells_series",
@@ -546,7 +741,7 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         1.0,
         100.0,
     );
-    c.range("battery.capacity_ah", b.capacity_ah, 0.01, 2000.0);
+    storage_kind(&mut c, b);
     c.range("battery.soc_start", b.soc_start, 0.0, 1.0);
     c.range("battery.cell_r0_ohm", b.cell_r0_ohm, 0.0, 1.0);
     c.range("battery.cell_r1_ohm", b.cell_r1_ohm, 1e-6, 1.0);
@@ -557,14 +752,16 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
         0.0,
         10_000.0,
     );
-    c.range(
+    c.opt_range(
         "battery.coulombic_efficiency",
         b.coulombic_efficiency,
         0.5,
         1.0,
     );
     let lithium = b.chemistry.is_lithium();
-    if lithium {
+    if matches!(b.chemistry, Chemistry::Nimh | Chemistry::Supercap) {
+        nimh_or_supercap(&mut c, b);
+    } else if lithium {
         c.opt_range("battery.charge_v_per_cell", b.charge_v_per_cell, 2.0, 4.5);
         ocv_curve(&mut c, b);
         c.rule(
@@ -710,6 +907,38 @@ fn alerts(c: &mut Checker, a: &Alerts) {
         0.0,
         50.0,
     );
+    let m = &a.missed_end_of_charge;
+    c.range(
+        "alerts.missed_end_of_charge.stored_fraction",
+        m.stored_fraction,
+        0.01,
+        0.99,
+    );
+    c.range(
+        "alerts.missed_end_of_charge.hysteresis_fraction",
+        m.hysteresis_fraction,
+        0.0,
+        0.5,
+    );
+    c.range(
+        "alerts.missed_end_of_charge.min_c_rate",
+        m.min_c_rate,
+        0.0,
+        10.0,
+    );
+    let tr = &a.temperature_rise;
+    c.range(
+        "alerts.temperature_rise.threshold_c_per_min",
+        tr.threshold_c_per_min,
+        0.01,
+        100.0,
+    );
+    c.range(
+        "alerts.temperature_rise.hysteresis_c_per_min",
+        tr.hysteresis_c_per_min,
+        0.0,
+        10.0,
+    );
     let op = &a.operator_overload;
     c.range(
         "alerts.operator_overload.reserve_fraction",
@@ -748,6 +977,21 @@ fn alerts(c: &mut Checker, a: &Alerts) {
             "model_range",
             a.model_range.dwell_s,
             a.model_range.merge_gap_s,
+        ),
+        (
+            "thermal_foldback",
+            a.thermal_foldback.dwell_s,
+            a.thermal_foldback.merge_gap_s,
+        ),
+        (
+            "missed_end_of_charge",
+            a.missed_end_of_charge.dwell_s,
+            a.missed_end_of_charge.merge_gap_s,
+        ),
+        (
+            "temperature_rise",
+            a.temperature_rise.dwell_s,
+            a.temperature_rise.merge_gap_s,
         ),
     ];
     for (kind, dwell, gap) in timings {

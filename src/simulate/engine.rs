@@ -189,6 +189,10 @@ pub struct Ledger {
     pub overhead_loss_j: f64,
     /// Heat in a linear charger's pass element, J.
     pub pass_heat_j: f64,
+    /// NiMH: heat of the oxygen recombined in the cells (the charge they did not store), J.
+    pub recombination_heat_j: f64,
+    /// Supercapacitor: heat of the leakage current, J.
+    pub leakage_j: f64,
 }
 
 impl Ledger {
@@ -216,7 +220,9 @@ impl Ledger {
             + self.iron_loss_j
             + self.cogging_change_j
             + self.overhead_loss_j
-            + self.pass_heat_j;
+            + self.pass_heat_j
+            + self.recombination_heat_j
+            + self.leakage_j;
         self.operator_work_j - out
     }
 }
@@ -392,6 +398,9 @@ pub fn initial_discrete(plant: &Plant, y0: &State) -> Discrete {
         device_off_at_s: f64::NEG_INFINITY,
         device_on_at_s: f64::NEG_INFINITY,
         device_cutoffs: 0,
+        peak_v: 0.0,
+        watch_from_s: plant.charger.end_holdoff_s,
+        end_cause: 0,
     }
 }
 
@@ -1166,6 +1175,9 @@ fn mode_of(plant: &Plant, p: &Point, d: &Discrete) -> Mode {
     if d.stage == Stage::Done {
         return Mode::Done;
     }
+    if d.stage == Stage::Trickle {
+        return Mode::Trickle;
+    }
     if matches!(p.band, TempBand::TooCold | TempBand::TooHot) {
         return Mode::TempHold;
     }
@@ -1241,6 +1253,8 @@ fn ledger_of(plant: &Plant, y0: &State, y: &State) -> Ledger {
         cogging_change_j: plant.cogging_j(y) - plant.cogging_j(y0),
         overhead_loss_j: y[E_OVERHEAD],
         pass_heat_j: y[E_PASS],
+        recombination_heat_j: y[E_RECOMBINATION],
+        leakage_j: y[E_LEAKAGE],
     }
 }
 

@@ -15,7 +15,7 @@ use super::transitions::SLEEP_HYSTERESIS_V;
 use super::usb_port::device_cut_off;
 
 /// The watched conditions, in a fixed order.
-pub const WATCHED: [EventKind; 11] = [
+pub const WATCHED: [EventKind; 13] = [
     EventKind::RegulationLoss,
     EventKind::Lockout,
     EventKind::Overcharge,
@@ -27,6 +27,8 @@ pub const WATCHED: [EventKind; 11] = [
     EventKind::ChargeComplete,
     EventKind::ModelRange,
     EventKind::ThermalFoldback,
+    EventKind::MissedEndOfCharge,
+    EventKind::TemperatureRise,
 ];
 
 /// Codes of every watched condition at one point (0 = not present).
@@ -144,7 +146,11 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
                 ),
         ),
         device_cutoff_code(plant, d),
-        u8::from(d.stage == Stage::Done),
+        if matches!(d.stage, Stage::Done | Stage::Trickle) {
+            d.end_cause.max(1)
+        } else {
+            0
+        },
         u8::from(
             plant
                 .battery
@@ -152,7 +158,34 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
                 .is_some_and(|limit| p.net.battery_current_a > limit),
         ),
         u8::from(conv && d.enabled && !d.ov_shutdown && plant.foldback(y) < 1.0),
+        u8::from(
+            plant.battery_is_nimh()
+                && d.stage == Stage::Charging
+                && p.net.battery_current_a
+                    > a.missed_end_of_charge.min_c_rate * plant.battery.capacity_ah()
+                && past(
+                    stored_fraction(plant, p, y),
+                    a.missed_end_of_charge.stored_fraction,
+                    a.missed_end_of_charge.hysteresis_fraction,
+                    false,
+                    open[11] != 0,
+                ),
+        ),
+        u8::from(past(
+            60.0 * plant.battery_temp_rate(p, y),
+            a.temperature_rise.threshold_c_per_min,
+            a.temperature_rise.hysteresis_c_per_min,
+            true,
+            open[12] != 0,
+        )),
     ]
+}
+
+/// The fraction of a charging current the battery stores (1 when it does not charge).
+pub fn stored_fraction(plant: &Plant, p: &Point, y: &State) -> f64 {
+    plant
+        .battery
+        .charge_efficiency(p.net.battery_current_a, &Plant::battery_state(y))
 }
 
 /// A device cut off the bus, until it reconnects (cranking or not: the row's length is the time
@@ -270,13 +303,41 @@ fn reading(
             Some(u) => bus(u.cutoff_v).below(),
             None => bus(f64::NAN),
         },
-        EventKind::ChargeComplete => Reading::of(
-            "battery_current_a",
-            "A",
-            p.net.battery_current_a,
-            plant.charger.termination_current_a,
+        EventKind::ChargeComplete => match code {
+            2 => Reading::of(
+                "battery_v",
+                "V",
+                p.net.battery_v,
+                d.peak_v - plant.charger.end_drop_v,
+            )
+            .below(),
+            3 => Reading::of(
+                "battery_temp_rate_c_per_min",
+                "degC/min",
+                60.0 * plant.battery_temp_rate(p, y),
+                60.0 * plant.charger.end_rise_k_per_s,
+            ),
+            _ => Reading::of(
+                "battery_current_a",
+                "A",
+                p.net.battery_current_a,
+                plant.charger.termination_current_a,
+            )
+            .below(),
+        },
+        EventKind::MissedEndOfCharge => Reading::of(
+            "stored_fraction",
+            "1",
+            stored_fraction(plant, p, y),
+            plant.alerts.missed_end_of_charge.stored_fraction,
         )
         .below(),
+        EventKind::TemperatureRise => Reading::of(
+            "battery_temp_rate_c_per_min",
+            "degC/min",
+            60.0 * plant.battery_temp_rate(p, y),
+            plant.alerts.temperature_rise.threshold_c_per_min,
+        ),
         EventKind::ModelRange => Reading::of(
             "battery_current_a",
             "A",
@@ -389,9 +450,27 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             "operator reserve W' below {:.0} % (sustainable power only)",
             100.0 * plant.alerts.operator_overload.reserve_fraction
         ),
-        EventKind::ChargeComplete => {
-            "CV current fell below the termination current: charge terminated".to_string()
-        }
+        EventKind::ChargeComplete => match code {
+            2 => format!(
+                "pack voltage fell {:.1} mV/cell below its peak (-dV): fast charge ended, trickle at {:.3} A",
+                1e3 * plant.charger.end_drop_v / plant.battery.series_cells(),
+                plant.charger.trickle_current_a
+            ),
+            3 => format!(
+                "pack temperature rose faster than {:.2} degC/min (dT/dt): fast charge ended, trickle at {:.3} A",
+                60.0 * plant.charger.end_rise_k_per_s,
+                plant.charger.trickle_current_a
+            ),
+            _ => "CV current fell below the termination current: charge terminated".to_string(),
+        },
+        EventKind::MissedEndOfCharge => format!(
+            "pack full and still fast-charged: it stores less than {:.0} % of the current (the rest evolves oxygen, recombined as heat); the -dV or dT/dt end did not come",
+            100.0 * plant.alerts.missed_end_of_charge.stored_fraction
+        ),
+        EventKind::TemperatureRise => format!(
+            "battery temperature rising faster than {:.2} degC/min",
+            plant.alerts.temperature_rise.threshold_c_per_min
+        ),
         EventKind::DeviceCutoff => "device cut off".to_string(),
         EventKind::ModelRange => format!(
             "charge current above {:.2} A (1.5·I10): the lead-acid charge laws are extrapolated, the gas branch holds the voltage",

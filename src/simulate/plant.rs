@@ -2,6 +2,7 @@
 //! algebraic quantity and the state derivative. Mode (discrete state) is fixed within a segment.
 
 use crate::model::battery::li_ion::TempBand;
+use crate::model::battery::nimh;
 use crate::model::battery::{BatteryModel, BatteryPowers, BatteryRates, BatteryState, Terminal};
 use crate::model::circuit::{self, CircuitConstants, FastRates, FastStates};
 use crate::model::controller::{self, ControlInput, ControllerGains};
@@ -40,8 +41,10 @@ pub enum Stage {
     Absorption,
     /// Lead-acid float.
     Float,
-    /// Li-ion charge terminated.
+    /// Li-ion (or supercapacitor) charge terminated.
     Done,
+    /// NiMH: the fast charge ended (−ΔV or dT/dt); a small top-off current follows.
+    Trickle,
 }
 
 /// Discrete state, constant between located events.
@@ -74,7 +77,22 @@ pub struct Discrete {
     pub device_on_at_s: f64,
     /// USB port: cut-offs so far.
     pub device_cutoffs: u32,
+    /// NiMH: the highest pack voltage the charger has seen while watching its fast charge, V
+    /// (it stores a new one each time the voltage passes it by [`PEAK_RESOLUTION_V_PER_CELL`] a
+    /// cell; 0 before the first).
+    pub peak_v: f64,
+    /// NiMH: the charger watches for the end of its fast charge from this time, s (its hold-off
+    /// after each start).
+    pub watch_from_s: f64,
+    /// Why the charge ended: 0 not ended, 1 current below termination (Li-ion, supercapacitor),
+    /// 2 NiMH voltage drop, 3 NiMH temperature rise.
+    pub end_cause: u8,
 }
+
+/// NiMH: the voltage step by which the charger's stored peak follows a rising pack voltage, V
+/// per cell (its measurement resolution: a peak is stored each time the voltage has risen this
+/// much past the last one, so the stored peak lies within this of the true one).
+pub const PEAK_RESOLUTION_V_PER_CELL: f64 = 0.25e-3;
 
 /// Charger settings resolved with defaults.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -104,6 +122,15 @@ pub struct Charger {
     pub restart_delay_s: f64,
     /// Buck-boost: buck mode while the buck duty stays at or below this (0: never).
     pub buck_mode_max_duty: f64,
+    /// NiMH: the voltage drop below the stored peak that ends the fast charge, V (whole pack;
+    /// 0: off).
+    pub end_drop_v: f64,
+    /// NiMH: the temperature rise rate that ends the fast charge, K/s (0: off).
+    pub end_rise_k_per_s: f64,
+    /// NiMH: hold-off of both ends after each start, s.
+    pub end_holdoff_s: f64,
+    /// NiMH: current of the trickle after the fast charge, A.
+    pub trickle_current_a: f64,
 }
 
 /// One target-cadence segment in absolute time.
@@ -256,7 +283,12 @@ impl Plant {
             charge_current_a: c.charge_current_a,
             cv_setpoint_v: c.cv_setpoint_v,
             float_setpoint_v: c.float_setpoint_v,
-            termination_current_a: c.termination_current_a.unwrap_or(cap / 10.0),
+            // A supercapacitor's charger holds its rated voltage (a current below zero never
+            // comes); NiMH ends on −ΔV or dT/dt instead.
+            termination_current_a: c.termination_current_a.unwrap_or(match &battery {
+                BatteryModel::Supercap(_) | BatteryModel::Nimh(_) => 0.0,
+                _ => cap / 10.0,
+            }),
             absorption_exit_current_a: c.absorption_exit_current_a.unwrap_or(cap / 50.0),
             absorption_max_s: c.absorption_max_s,
             soft_start_s: c.soft_start_s,
@@ -281,6 +313,20 @@ impl Plant {
                 Topology::BuckBoost if setup.usb.is_none() => {
                     c.buck_mode_max_duty.unwrap_or((c.max_duty - 0.05).min(0.8))
                 }
+                _ => 0.0,
+            },
+            end_drop_v: c
+                .end_voltage_drop_mv_per_cell
+                .unwrap_or(nimh::DEFAULT_END_DROP_MV_PER_CELL)
+                * 1e-3
+                * battery.series_cells(),
+            end_rise_k_per_s: c
+                .end_temp_rise_c_per_min
+                .unwrap_or(nimh::DEFAULT_END_RISE_C_PER_MIN)
+                / 60.0,
+            end_holdoff_s: c.end_holdoff_s.unwrap_or(nimh::DEFAULT_END_HOLDOFF_S),
+            trickle_current_a: match &battery {
+                BatteryModel::Nimh(m) => c.trickle_current_a.unwrap_or(m.default_trickle_a()),
                 _ => 0.0,
             },
         };
@@ -337,7 +383,7 @@ impl Plant {
         Ok(Self {
             fidelity,
             circuit: CircuitConstants {
-                armature_inductance_h: setup.generator.inductance_h.max(1e-6),
+                armature_inductance_h: generator.inductance_h.max(1e-6),
                 input_capacitance_f: c.input_capacitance_f,
                 output_capacitance_f: c.output_capacitance_f,
             },
@@ -346,7 +392,8 @@ impl Plant {
                 // of the voltage loop's crossover, well under the armature-inductance/input-capacitor
                 // resonance (the charger is a negative resistance to its source).
                 input_error_scale: 0.05 * slope
-                    / (setup.generator.resistance_ohm + setup.diode.series_resistance_ohm)
+                    / (generator.resistance_20c_ohm
+                        + generator.conducting_diodes() * setup.diode.series_resistance_ohm)
                         .max(1e-3),
                 ..ControllerGains::design(&buck, v_nominal, slope)
             },
@@ -387,6 +434,20 @@ impl Plant {
     /// Whether the battery is a lithium chemistry.
     pub fn battery_is_lithium(&self) -> bool {
         matches!(self.battery, BatteryModel::LiIon(_))
+    }
+
+    /// Whether the battery is a NiMH pack (its charger ends on −ΔV or dT/dt, then trickles).
+    pub fn battery_is_nimh(&self) -> bool {
+        matches!(self.battery, BatteryModel::Nimh(_))
+    }
+
+    /// Rate of the battery temperature at a point, K/s.
+    pub fn battery_temp_rate(&self, p: &Point, y: &State) -> f64 {
+        self.battery.thermal().rate_k_per_s(
+            p.battery_powers.heat_w(),
+            y[BATTERY_TEMP],
+            self.ambient_c,
+        )
     }
 
     /// Whether the charger is a converter with UVLO and stages (not direct).
@@ -485,7 +546,7 @@ impl Plant {
     pub fn band(&self, temp_c: f64) -> TempBand {
         match &self.battery {
             BatteryModel::LiIon(m) => m.band(temp_c),
-            BatteryModel::LeadAcid(_) => TempBand::Standard,
+            _ => TempBand::Standard,
         }
     }
 
@@ -506,13 +567,14 @@ impl Plant {
         // Electrical network. The magnets sit at the machine's one lumped temperature (the
         // winding's): E and τ share k_e(T).
         let ke = self.generator.ke_at(y[WINDING_TEMP]);
-        let emf = ke * omega_g;
+        let emf = self.generator.emf_at(ke, omega_g);
         let r_w = self.generator.resistance_ohm(y[WINDING_TEMP]);
         let src = Source {
             generator: &self.generator,
             diode: &self.diode,
             emf_v: emf,
             resistance_ohm: r_w,
+            commutation_ohm: self.generator.commutation_ohm(omega_g),
         };
         let band = self.band(bs.temp_c);
         let frozen = self.battery.freeze(&bs);
@@ -554,7 +616,9 @@ impl Plant {
         };
 
         // Mechanics.
-        let tau_em = ke * net.generator_current_a;
+        let tau_em = self
+            .generator
+            .torque_at(ke, omega_g, net.generator_current_a);
         let tau_fric = self.drive.friction_n_m(omega_g);
         // Iron loss and cogging act on the rotor like friction, but are booked on their own.
         let tau_iron = self.generator.iron_loss_torque_n_m(omega_g);
@@ -852,8 +916,13 @@ impl Plant {
             (BatteryModel::LiIon(m), TempBand::Cool) => m.window.cool_current_fraction,
             _ => 1.0,
         };
+        let cc_a = if d.stage == Stage::Trickle {
+            self.charger.trickle_current_a
+        } else {
+            self.charger.charge_current_a
+        };
         Request::Charge {
-            cc_limit_a: self.charger.charge_current_a * fraction * self.foldback(y),
+            cc_limit_a: cc_a * fraction * self.foldback(y),
             v_set: self.voltage_setpoint_v(d, y[BATTERY_TEMP]),
             ramp: if d.soft_done {
                 1.0
@@ -889,11 +958,7 @@ impl Plant {
         dy[SOC] = p.battery_rates.soc;
         dy[V_RC] = p.battery_rates.v_rc;
         dy[GAS_PROGRESS] = p.battery_rates.progress;
-        dy[BATTERY_TEMP] = self.battery.thermal().rate_k_per_s(
-            p.battery_powers.heat_w(),
-            y[BATTERY_TEMP],
-            self.ambient_c,
-        );
+        dy[BATTERY_TEMP] = self.battery_temp_rate(p, y);
         dy[WINDING_TEMP] = self
             .winding
             .rate_k_per_s(p.copper_w, y[WINDING_TEMP], self.ambient_c);
@@ -934,6 +999,8 @@ impl Plant {
         dy[E_OVERHEAD] = losses.overhead_w;
         dy[E_PASS] = losses.pass_w;
         dy[E_COGGING] = p.cogging_w;
+        dy[E_RECOMBINATION] = p.battery_powers.recombination_w;
+        dy[E_LEAKAGE] = p.battery_powers.leakage_w;
     }
 
     /// Energy in the fast electrical elements (detailed fidelity; 0 for fast), J.

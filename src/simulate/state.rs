@@ -3,7 +3,7 @@
 use ode_solvers::SVector;
 
 /// Number of integrated states (physics plus energy-ledger quadratures).
-pub const N_STATES: usize = 37;
+pub const N_STATES: usize = 39;
 
 /// The state vector type handed to the integrator.
 pub type State = SVector<f64, N_STATES>;
@@ -82,6 +82,11 @@ pub const E_PASS: usize = 35;
 /// as a quadrature so that Dopri5's step-size control resolves the cogging period (a step over
 /// several periods misses this integral by far more than the tolerance).
 pub const E_COGGING: usize = 36;
+/// Energy ledger, NiMH: heat of the oxygen the charge current evolves instead of storing,
+/// recombined in the sealed cell, J.
+pub const E_RECOMBINATION: usize = 37;
+/// Energy ledger, supercapacitor: heat of the leakage current, J.
+pub const E_LEAKAGE: usize = 38;
 
 /// Whether every entry is finite.
 pub fn all_finite(y: &State) -> bool {
@@ -127,4 +132,6 @@ pub const STATE_NAMES: [&str; N_STATES] = [
     "e_overhead_j",
     "e_pass_j",
     "e_cogging_j",
+    "e_recombination_j",
+    "e_leakage_j",
 ];

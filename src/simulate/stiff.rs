@@ -25,6 +25,8 @@ pub const fn is_ledger(k: usize) -> bool {
         || k == E_DEVICE
         || k == E_GAS
         || (k >= E_IRON && k <= E_COGGING)
+        || k == E_RECOMBINATION
+        || k == E_LEAKAGE
 }
 
 const fn ledger_count() -> usize {
@@ -455,13 +457,16 @@ mod tests {
         }
         let f = flat_of(&y);
         // The ledger: operator work through charge, the USB device's loss, the lead-acid gas,
-        // iron, gate-drive and core, pass-element losses and the cogging work.
+        // iron, gate-drive and core, pass-element losses, the cogging work, NiMH recombination
+        // and supercapacitor leakage.
         let expected: Vec<f64> = (0..N_STATES)
             .filter(|k| {
                 !(E_OPERATOR..=Q_BATTERY).contains(k)
                     && *k != E_DEVICE
                     && *k != E_GAS
                     && !(E_IRON..=E_COGGING).contains(k)
+                    && *k != E_RECOMBINATION
+                    && *k != E_LEAKAGE
             })
             .map(|k| k as f64 + 0.5)
             .collect();

@@ -2,7 +2,9 @@
 
 use crate::model::battery::BatteryModel;
 
-use super::plant::{Discrete, Plant, Point, Stage, OV_RELEASE_FRACTION};
+use super::plant::{
+    Discrete, Plant, Point, Stage, OV_RELEASE_FRACTION, PEAK_RESOLUTION_V_PER_CELL,
+};
 use super::state::*;
 
 /// Margin by which the input must exceed the battery before the charger wakes from sleep, V.
@@ -42,6 +44,14 @@ pub enum Transition {
     ToBuckMode,
     /// Buck-boost in buck mode: the buck duty rose past its limit; both switches switch again.
     ToBuckBoostMode,
+    /// NiMH: the pack voltage passed the stored peak by the charger's resolution; it stores
+    /// the new one.
+    NewPeak,
+    /// NiMH: the pack voltage fell the set drop below its stored peak (−ΔV): the fast charge
+    /// ends, the trickle begins.
+    EndOnVoltageDrop,
+    /// NiMH: the pack temperature rose faster than the set rate (dT/dt): the fast charge ends.
+    EndOnTemperatureRise,
 }
 
 /// Hysteresis of the buck-boost's mode change, in buck duty.
@@ -77,8 +87,11 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 return Some(tr);
             }
             let regulating = p.cv_active && !p.net.dropout && d.soft_done;
+            if let Some(tr) = nimh_end_due(plant, p, y, d) {
+                return Some(tr);
+            }
             match (&plant.battery, d.stage) {
-                (BatteryModel::LiIon(_), Stage::Charging)
+                (BatteryModel::LiIon(_) | BatteryModel::Supercap(_), Stage::Charging)
                     if regulating && p.net.battery_current_a < c.termination_current_a =>
                 {
                     return Some(Transition::Terminate);
@@ -123,6 +136,39 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
         }
     }
     None
+}
+
+/// Whether a NiMH charger watches its fast charge at this point: charging at its set current
+/// (enabled, ramped up, not in dropout, not held by its backup voltage limit) and past the
+/// hold-off since it last started.
+pub fn nimh_watching(plant: &Plant, p: &Point, d: &Discrete) -> bool {
+    plant.battery_is_nimh()
+        && plant.has_converter()
+        && d.stage == Stage::Charging
+        && d.enabled
+        && !d.ov_shutdown
+        && d.soft_done
+        && !p.net.dropout
+        && !p.cv_active
+        && p.t >= d.watch_from_s
+}
+
+/// NiMH: the end of the fast charge (−ΔV below the stored peak, or dT/dt above its rate), else a
+/// new peak to store, while the charger watches.
+fn nimh_end_due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transition> {
+    if !nimh_watching(plant, p, d) {
+        return None;
+    }
+    let c = &plant.charger;
+    let v = p.net.battery_v;
+    if c.end_drop_v > 0.0 && d.peak_v > 0.0 && v < d.peak_v - c.end_drop_v {
+        return Some(Transition::EndOnVoltageDrop);
+    }
+    if c.end_rise_k_per_s > 0.0 && plant.battery_temp_rate(p, y) > c.end_rise_k_per_s {
+        return Some(Transition::EndOnTemperatureRise);
+    }
+    let resolution = PEAK_RESOLUTION_V_PER_CELL * plant.battery.series_cells();
+    (v >= d.peak_v + resolution).then_some(Transition::NewPeak)
 }
 
 /// Buck-boost: into buck mode when the buck duty for the present input, battery voltage and
@@ -188,6 +234,12 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
             y[CTRL_V] = 0.0;
             y[CTRL_I] = 0.0;
             d.soft_done = plant.charger.soft_start_s <= 0.0;
+            // A NiMH charger still in its fast charge watches afresh after each start: a pack that
+            // rested reads below the peak it had reached while charging.
+            if d.stage == Stage::Charging {
+                d.peak_v = 0.0;
+                d.watch_from_s = t + plant.charger.end_holdoff_s;
+            }
         }
         Transition::Disable => {
             d.enabled = false;
@@ -209,7 +261,21 @@ pub fn apply(plant: &Plant, tr: Transition, t: f64, p: &Point, y: &mut State, d:
             y[SOFT_START] = 1.0;
             d.soft_done = true;
         }
-        Transition::Terminate => d.stage = Stage::Done,
+        Transition::Terminate => {
+            d.stage = Stage::Done;
+            d.end_cause = 1;
+        }
+        Transition::NewPeak => d.peak_v = p.net.battery_v,
+        Transition::EndOnVoltageDrop | Transition::EndOnTemperatureRise => {
+            d.stage = Stage::Trickle;
+            d.end_cause = if tr == Transition::EndOnVoltageDrop {
+                2
+            } else {
+                3
+            };
+            // The current loop's trim was for the fast-charge current.
+            y[CTRL_I] = 0.0;
+        }
         Transition::ToAbsorption => {
             d.stage = Stage::Absorption;
             d.absorption_since_s = t;

@@ -102,24 +102,34 @@ fn print_report(r: &Report, sc: &Scenario) {
         r.setup, sc.setup_source.name, r.profile, sc.profile_source.name
     ));
     let b = &sc.setup.battery;
+    let diode = match sc.setup.diode.kind {
+        crate::scenario::setup::DiodeKind::Shockley => "Shockley",
+        crate::scenario::setup::DiodeKind::Ideal => "fixed-drop",
+        crate::scenario::setup::DiodeKind::None => "no",
+    };
+    let generator = match &r.generator.alternator {
+        Some(a) => format!(
+            "three-phase alternator {} V/krpm line-to-line, {} pole pairs, {:.3} Ω in the current's path at {} °C; bridge of six {diode} diodes",
+            r.generator.back_emf_v_per_krpm, a.pole_pairs, r.generator.resistance_at_ambient_ohm, r.ambient_c
+        ),
+        None => format!(
+            "generator {} V/krpm, {:.3} Ω at {} °C; {diode} diode",
+            r.generator.back_emf_v_per_krpm, r.generator.resistance_at_ambient_ohm, r.ambient_c
+        ),
+    };
+    let storage = match (&r.battery.supercap, b.capacitance_f) {
+        (Some(_), Some(cf)) => format!("{cf} F a cell"),
+        _ => format!("{} Ah", r.battery.capacity_ah),
+    };
     say(&format!(
-        "  chain: {} stage(s), total ratio {:.3} (efficiency {:.1} %); generator {} V/krpm, {:.3} Ω at {} °C; {} diode; {}; {} {}S{}P {} Ah",
+        "  chain: {} stage(s), total ratio {:.3} (efficiency {:.1} %); {generator}; {}; {} {}S{}P {storage}",
         r.drive.stages,
         r.drive.total_ratio,
         100.0 * r.drive.efficiency,
-        r.generator.back_emf_v_per_krpm,
-        r.generator.resistance_at_ambient_ohm,
-        r.ambient_c,
-        match sc.setup.diode.kind {
-            crate::scenario::setup::DiodeKind::Shockley => "Shockley",
-            crate::scenario::setup::DiodeKind::Ideal => "fixed-drop",
-            crate::scenario::setup::DiodeKind::None => "no",
-        },
         r.topology,
         r.chemistry,
         b.cells_series,
         b.cells_parallel,
-        r.battery.capacity_ah
     ));
     say(&format!(
         "  inertia reflected to the generator shaft: {:.3e} kg·m²; open circuit {:.4} V per crank rpm",
@@ -132,6 +142,57 @@ fn print_report(r: &Report, sc: &Scenario) {
         r.battery.charge_limit_at_ambient_v,
         r.battery.temperature_band
     ));
+    if let Some(sf) = &r.battery.supercap {
+        say(&format!(
+            "  bank: {:.2} F, ESR {:.4} Ω; {:.3} Wh at its rated {:.2} V, {:.3} Wh at the start; {:.3} Wh ({:.0} %) usable down to {:.2} V{}",
+            sf.capacitance_f,
+            sf.esr_ohm,
+            sf.energy_at_rated_wh,
+            sf.rated_v,
+            sf.energy_at_start_wh,
+            sf.usable_wh,
+            100.0 * sf.usable_fraction,
+            sf.min_v,
+            sf.time_to_rated_at_charge_current_s
+                .map_or_else(String::new, |t| format!("; {t:.0} s to the rated voltage at the charge current"))
+        ));
+    }
+    if let Some(n) = &r.battery.nimh {
+        let drop = if n.end_voltage_drop_v > 0.0 {
+            format!(
+                "ends on a {:.1} mV ({:.1} mV/cell) drop below the peak (-dV)",
+                1e3 * n.end_voltage_drop_v,
+                1e3 * n.end_voltage_drop_v / f64::from(b.cells_series)
+            )
+        } else {
+            "no -dV end".to_string()
+        };
+        let rise = if n.end_temp_rise_c_per_min > 0.0 {
+            format!(
+                "or on a rise of {:.2} °C/min (dT/dt)",
+                n.end_temp_rise_c_per_min
+            )
+        } else {
+            "no dT/dt end".to_string()
+        };
+        say(&format!(
+            "  NiMH charger: fast charge at {:.2} C; {drop}; {rise}; watched from {:.0} s after each start; then a {:.3} A trickle",
+            n.charge_c_rate, n.end_holdoff_s, n.trickle_current_a
+        ));
+    }
+    if let Some(a) = &r.generator.alternator {
+        let opt = |v: Option<f64>, unit: &str| {
+            v.map_or_else(|| "—".to_string(), |v| format!("{v:.2} {unit}"))
+        };
+        say(&format!(
+            "  alternator at the profile's cadence: {} electrical, reactance {} a phase, bridge overlap mode {}{}; DC short-circuit current {} at any speed",
+            opt(a.electrical_hz_at_profile_cadence, "Hz"),
+            opt(a.reactance_ohm_at_profile_cadence, "Ω"),
+            a.overlap_mode_at_profile_cadence.map_or_else(|| "—".to_string(), |m| m.to_string()),
+            a.overlap_angle_deg_at_profile_cadence.map_or_else(String::new, |d| format!(" (overlap {d:.1}°)")),
+            opt(a.short_circuit_current_a, "A"),
+        ));
+    }
     say("");
     say("Crank cadences");
     let mut lines: Vec<(String, String)> = Vec::new();

@@ -15,6 +15,10 @@ use crate::simulate::plant::Plant;
 use crate::units::rpm_to_rad_s;
 
 use super::cautions::cautions;
+use super::check_kinds::{
+    alternator_figures, nimh_figures, storage_notes, supercap_figures, AlternatorFigures,
+    NimhFigures, SupercapFigures,
+};
 use super::check_usb::{self, UsbFigures, UsbStatics};
 use super::statics::{first_cadence, Statics, MAX_SEARCH_RPM};
 
@@ -107,10 +111,15 @@ pub struct DriveFigures {
 #[derive(Debug, Clone, Serialize, PartialEq)]
 pub struct GeneratorFigures {
     pub back_emf_v_per_krpm: f64,
-    /// Armature resistance at ambient (cold winding), Ω.
+    /// Armature resistance at ambient (cold winding), Ω; an alternator's: the two phases in the
+    /// current's path.
     pub resistance_at_ambient_ohm: f64,
-    /// Open-circuit voltage per crank rpm, V/rpm.
+    /// Open-circuit voltage per crank rpm, V/rpm (an alternator's: its bridge's no-load average).
     pub open_circuit_v_per_crank_rpm: f64,
+    /// `brushed_dc` or `three_phase_pm`.
+    pub kind: String,
+    /// Three-phase alternator figures (None for a DC machine).
+    pub alternator: Option<AlternatorFigures>,
 }
 
 /// Battery figures.
@@ -124,6 +133,10 @@ pub struct BatteryFigures {
     pub charge_limit_at_ambient_v: f64,
     /// Charge-temperature band at the start temperature (Li-ion), e.g. `standard`.
     pub temperature_band: String,
+    /// Supercapacitor energy figures (None for the other kinds).
+    pub supercap: Option<SupercapFigures>,
+    /// NiMH charger's end of charge (None for the other kinds).
+    pub nimh: Option<NimhFigures>,
 }
 
 /// Converter (buck) figures.
@@ -394,6 +407,10 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         ));
     }
 
+    let alternator = alternator_figures(&st, setup, at_profile.as_ref());
+    let nimh = nimh_figures(plant);
+    storage_notes(plant, &mut notes);
+
     Report {
         setup: setup.name.clone(),
         profile: sc.profile.name.clone(),
@@ -411,6 +428,8 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             back_emf_v_per_krpm: setup.generator.back_emf_v_per_krpm,
             resistance_at_ambient_ohm: st.resistance_ohm,
             open_circuit_v_per_crank_rpm: st.emf_v(1.0),
+            kind: setup.generator.kind.as_str().to_string(),
+            alternator,
         },
         battery: BatteryFigures {
             soc_start: setup.battery.soc_start,
@@ -418,6 +437,8 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             rest_v_at_start: battery.terminal_v(0.0, &bs_start).0,
             charge_limit_at_ambient_v: charge_limit,
             temperature_band: band_word(band).to_string(),
+            supercap: supercap_figures(plant, setup.battery.soc_start),
+            nimh,
         },
         converter,
         direct,

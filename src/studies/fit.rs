@@ -1,5 +1,6 @@
 //! `fit-generator`: back-EMF constant and armature resistance of a PMDC generator from measured
-//! points, by least squares on V = k_e·ω − R·I. Cost: reading one CSV file; no simulation.
+//! points, by least squares on V = k_e·ω − R·I; with `--kind three_phase_pm`, a three-phase
+//! alternator on its bridge (`fit_alternator`). Cost: reading one CSV file; no simulation.
 //!
 //! The file has a header with at least the columns `rpm`, `voltage_v` and `current_a` (any order,
 //! more columns are ignored; lines starting with `#` are comments). Open-circuit points have
@@ -35,6 +36,40 @@ pub struct FitArgs {
     /// Print the fit as JSON.
     #[arg(long)]
     pub json: bool,
+    /// The generator: brushed_dc (default) or three_phase_pm (voltages and currents measured on
+    /// the DC side of its six-diode bridge; open-circuit points are the no-load average, 1.35 ×
+    /// the line-to-line RMS voltage).
+    #[arg(long, value_enum, default_value = "brushed_dc")]
+    pub kind: FitKind,
+    /// three_phase_pm: the alternator's pole pairs (sets the electrical frequency, for its
+    /// inductance).
+    #[arg(long)]
+    pub pole_pairs: Option<u32>,
+    /// three_phase_pm: forward drop of each bridge diode at the loaded points, V (two conduct);
+    /// default 0 (voltages taken before the diodes' drop).
+    #[arg(long, default_value_t = 0.0, value_parser = parse_diode_drop)]
+    pub diode_drop_v: f64,
+}
+
+/// Which machine `fit-generator` fits.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum FitKind {
+    #[value(name = "brushed_dc")]
+    BrushedDc,
+    #[value(name = "three_phase_pm")]
+    ThreePhasePm,
+}
+
+fn parse_diode_drop(s: &str) -> Result<f64, String> {
+    let v: f64 = s
+        .trim()
+        .parse()
+        .map_err(|_| format!("'{s}' is not a voltage in V"))?;
+    if (0.0..=2.0).contains(&v) {
+        Ok(v)
+    } else {
+        Err(format!("{v} V is out of range; allowed 0 ..= 2"))
+    }
 }
 
 fn parse_winding_c(s: &str) -> Result<f64, String> {
@@ -76,6 +111,14 @@ pub fn run(a: &FitArgs) -> Result<i32, Failure> {
     let text = std::fs::read_to_string(&a.measurements)
         .map_err(|e| Failure::Input(anyhow!("could not read '{name}': {e}")))?;
     let points = parse_measurements(&name, &text).map_err(Failure::Input)?;
+    if a.kind == FitKind::ThreePhasePm {
+        return run_alternator(a, &name, &points);
+    }
+    if a.pole_pairs.is_some() {
+        return Err(Failure::Input(anyhow!(
+            "--pole-pairs: only with --kind three_phase_pm"
+        )));
+    }
     let fit = fit_generator(&points).map_err(|e| Failure::Input(anyhow!("{name}: {e}")))?;
     let report = report(&name, &fit, a.winding_c);
     if a.json {
@@ -84,6 +127,32 @@ pub fn run(a: &FitArgs) -> Result<i32, Failure> {
         say(&s);
     } else {
         print_fit(&report, &points);
+    }
+    Ok(EXIT_OK)
+}
+
+/// `fit-generator --kind three_phase_pm`.
+fn run_alternator(a: &FitArgs, name: &str, points: &[Measurement]) -> Result<i32, Failure> {
+    let Some(pole_pairs) = a.pole_pairs else {
+        return Err(Failure::Input(anyhow!(
+            "--pole-pairs: required with --kind three_phase_pm (1 ..= 100)"
+        )));
+    };
+    if !(1..=100).contains(&pole_pairs) {
+        return Err(Failure::Input(anyhow!(
+            "--pole-pairs {pole_pairs} is out of range; allowed 1 ..= 100"
+        )));
+    }
+    let fit = crate::studies::fit_alternator::fit_alternator(points, pole_pairs, a.diode_drop_v)
+        .map_err(|e| Failure::Input(anyhow!("{name}: {e}")))?;
+    let r =
+        crate::studies::fit_alternator::report(name, &fit, pole_pairs, a.diode_drop_v, a.winding_c);
+    if a.json {
+        let s = serde_json::to_string_pretty(&r)
+            .map_err(|e| Failure::Other(anyhow!("could not format JSON: {e}")))?;
+        say(&s);
+    } else {
+        crate::studies::fit_alternator::print(&r, points, sig);
     }
     Ok(EXIT_OK)
 }

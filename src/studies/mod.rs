@@ -4,12 +4,14 @@
 pub mod args;
 pub mod cautions;
 pub mod check;
+pub mod check_kinds;
 pub mod check_report;
 pub mod check_usb;
 pub mod compare;
 pub mod compare_measured;
 pub mod digest;
 pub mod fit;
+pub mod fit_alternator;
 pub mod fit_operator;
 pub mod goal;
 pub mod merge;

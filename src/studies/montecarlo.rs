@@ -21,7 +21,6 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use super::outcome::{say, Failure, EXIT_OK};
-use crate::analysis::events::EventKind;
 use crate::analysis::stats;
 use crate::analysis::summary::{fmt, Summary, MARGINAL, SCALAR_KEYS};
 use crate::output::csv::table_csv;
@@ -284,7 +283,7 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
     let n = done.len();
     let over = done
         .iter()
-        .filter(|m| m.alerts.iter().any(|e| e.kind == EventKind::Overcharge))
+        .filter(|m| m.alerts.iter().any(|e| e.kind.is_overcharge()))
         .count();
     let min_reg = sc.setup.alerts.min_in_regulation_fraction;
     let fails = reg.iter().filter(|&&f| f < min_reg).count();

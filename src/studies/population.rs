@@ -141,7 +141,7 @@ pub fn evaluate(
                 let m = s.summary;
                 let events = m.events();
                 RunFigures {
-                    overcharge: events.iter().any(|e| e.kind == EventKind::Overcharge),
+                    overcharge: events.iter().any(|e| e.kind.is_overcharge()),
                     overload: events.iter().any(|e| e.kind == EventKind::OperatorOverload),
                     in_regulation: m.in_regulation_fraction,
                     charge_ah: m.charge_delivered_ah,

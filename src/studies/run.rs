@@ -147,6 +147,33 @@ fn report(s: &Session, dir: &std::path::Path) {
             u.energy_to_bus_wh
         ));
     }
+    if let Some(c) = &m.supercap {
+        say(&format!(
+            "  supercapacitor bank {:.2} F: {:.3} V -> {:.3} V, {:.3} Wh -> {:.3} Wh ({:.3} Wh usable down to {:.2} V at the end); leakage {:.4} Wh, ESR {:.4} Wh",
+            c.capacitance_f,
+            c.voltage_start_v,
+            c.voltage_end_v,
+            c.energy_start_wh,
+            c.energy_end_wh,
+            c.usable_end_wh,
+            c.min_v,
+            c.leakage_wh,
+            c.esr_wh
+        ));
+    }
+    if let Some(n) = &m.nimh {
+        let end = match (&n.fast_charge_end, n.fast_charge_end_s) {
+            (Some(why), Some(t)) => format!(
+                "fast charge ended at {t:.1} s on the {}",
+                why.replace('_', " ")
+            ),
+            _ => "fast charge did not end".to_string(),
+        };
+        say(&format!(
+            "  NiMH: {end}; peak {:.4} V/cell; fastest temperature rise {:.2} °C/min; {:.3} Wh recombined as heat",
+            n.peak_v_per_cell, n.max_temp_rise_c_per_min, n.recombination_heat_wh
+        ));
+    }
     say(&format!(
         "  energy ledger closes to {:.2e}",
         m.energy_balance_error

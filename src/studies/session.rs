@@ -6,7 +6,9 @@ use std::time::Instant;
 use crate::analysis::episodes::{self, Timing};
 use crate::analysis::events::{Event, EventKind};
 use crate::analysis::invariants;
-use crate::analysis::summary::{self, ReplaySummary, Summary, UsbSummary, Verdict, MARGINAL};
+use crate::analysis::summary::{
+    self, NimhSummary, ReplaySummary, Summary, SupercapSummary, UsbSummary, Verdict, MARGINAL,
+};
 use crate::analysis::trace::Trace;
 use crate::model::jitter::JitterTrack;
 use crate::scenario::alerts::Alerts;
@@ -243,6 +245,11 @@ pub fn timing(a: &Alerts, kind: EventKind) -> Timing {
         EventKind::DeviceCutoff => (a.device_cutoff.dwell_s, a.device_cutoff.merge_gap_s),
         EventKind::ModelRange => (a.model_range.dwell_s, a.model_range.merge_gap_s),
         EventKind::ThermalFoldback => (a.thermal_foldback.dwell_s, a.thermal_foldback.merge_gap_s),
+        EventKind::MissedEndOfCharge => (
+            a.missed_end_of_charge.dwell_s,
+            a.missed_end_of_charge.merge_gap_s,
+        ),
+        EventKind::TemperatureRise => (a.temperature_rise.dwell_s, a.temperature_rise.merge_gap_s),
         // A period from the termination to the session end: every one is a row.
         EventKind::ChargeComplete => (0.0, 0.0),
     };
@@ -274,6 +281,20 @@ fn verdict_of(
         .iter()
         .map(|e| e.worst - e.threshold)
         .fold(f64::NEG_INFINITY, f64::max);
+    // NiMH: a full pack still fast-charged is overcharged whatever its voltage does.
+    let missed: Vec<&Event> = rows
+        .iter()
+        .filter(|e| e.kind == EventKind::MissedEndOfCharge)
+        .collect();
+    if !missed.is_empty() {
+        flags.push("overcharge");
+        let lowest = missed.iter().map(|e| e.worst).fold(f64::INFINITY, f64::min);
+        reasons.push(format!(
+            "overcharge: {} episode(s) of a full pack still fast-charged, storing as little as {:.0} % of the current (the end of charge was missed)",
+            missed.len(),
+            100.0 * lowest
+        ));
+    }
     if !over.is_empty() && deepest >= band_v {
         flags.push("overcharge");
         reasons.push(format!(
@@ -391,7 +412,7 @@ fn summarise(
     );
     for e in &mut rows {
         e.affects_verdict = match e.kind {
-            EventKind::Overcharge => true,
+            EventKind::Overcharge | EventKind::MissedEndOfCharge => true,
             EventKind::RegulationLoss | EventKind::Lockout => regulation_counts,
             _ => false,
         };
@@ -477,6 +498,8 @@ fn summarise(
         solver: r.stats,
         usb: usb_summary(sc, r),
         peak_instant_operator_power_w: fold_max(|r| r.operator_power_w).max(0.0),
+        supercap: supercap_summary(plant, r),
+        nimh: nimh_summary(plant, r),
         replay: sc.profile.recording.as_ref().map(|rec| ReplaySummary {
             log: rec.file.clone(),
             samples: rec.time_s.len(),
@@ -493,6 +516,61 @@ fn summarise(
             ),
         }),
     }
+}
+
+/// A supercapacitor bank's energy figures over the session (None for the other kinds).
+fn supercap_summary(plant: &Plant, r: &SimResult) -> Option<SupercapSummary> {
+    let crate::model::battery::BatteryModel::Supercap(m) = &plant.battery else {
+        return None;
+    };
+    let soc_start = r.trace.rows.first().map_or(0.0, |row| row.soc);
+    let soc_end = r.final_state[crate::simulate::state::SOC];
+    let led = &r.ledger;
+    Some(SupercapSummary {
+        capacitance_f: m.capacitance_f(),
+        rated_v: m.rated_v(),
+        voltage_start_v: m.voltage_v(soc_start),
+        voltage_end_v: m.voltage_v(soc_end),
+        energy_start_wh: m.energy_j(soc_start) / 3600.0,
+        energy_end_wh: m.energy_j(soc_end) / 3600.0,
+        stored_wh: led.stored_chemical_j / 3600.0,
+        min_v: m.min_v(),
+        usable_end_wh: m.usable_energy_j(soc_end) / 3600.0,
+        usable_fraction: m.usable_fraction(),
+        leakage_wh: led.leakage_j / 3600.0,
+        esr_wh: led.battery_ohmic_j / 3600.0,
+    })
+}
+
+/// A NiMH pack's end of charge over the session (None for the other kinds).
+fn nimh_summary(plant: &Plant, r: &SimResult) -> Option<NimhSummary> {
+    if !plant.battery_is_nimh() {
+        return None;
+    }
+    let end = r
+        .runs
+        .iter()
+        .find(|e| e.kind == EventKind::ChargeComplete && matches!(e.cause, 2 | 3));
+    let rows = &r.trace.rows;
+    let max_rise = rows
+        .windows(2)
+        .filter(|w| w[1].time_s > w[0].time_s)
+        .map(|w| 60.0 * (w[1].battery_temp_c - w[0].battery_temp_c) / (w[1].time_s - w[0].time_s))
+        .fold(0.0, f64::max);
+    Some(NimhSummary {
+        fast_charge_end_s: end.map(|e| e.start_s),
+        fast_charge_end: end.map(|e| {
+            if e.cause == 2 {
+                "voltage_drop".to_string()
+            } else {
+                "temperature_rise".to_string()
+            }
+        }),
+        peak_v_per_cell: rows.iter().map(|row| row.battery_v).fold(0.0, f64::max)
+            / plant.battery.series_cells(),
+        max_temp_rise_c_per_min: max_rise,
+        recombination_heat_wh: r.ledger.recombination_heat_j / 3600.0,
+    })
 }
 
 /// The overcharge tolerance of the whole battery, V (per-cell tolerance × series cells).

@@ -40,6 +40,10 @@ impl Statics<'_> {
             diode: &self.plant.diode,
             emf_v: self.emf_v(crank_rpm),
             resistance_ohm: self.resistance_ohm,
+            commutation_ohm: self
+                .plant
+                .generator
+                .commutation_ohm(rpm_to_rad_s(crank_rpm) * self.plant.drive.ratio),
         }
     }
 
@@ -112,7 +116,7 @@ impl Statics<'_> {
         let d = &self.plant.drive;
         let g = &self.plant.generator;
         let omega_g = rpm_to_rad_s(crank_rpm) * d.ratio;
-        (self.ke_v_s_per_rad * generator_current_a
+        (g.torque_at(self.ke_v_s_per_rad, omega_g, generator_current_a)
             + d.friction_n_m(omega_g)
             + g.iron_loss_torque_n_m(omega_g))
             * d.ratio

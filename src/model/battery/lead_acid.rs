@@ -197,7 +197,7 @@ impl LeadAcidModel {
         Self {
             kind: b.lead_acid_kind,
             cells: f64::from(b.cells_series),
-            capacity_ah: b.capacity_ah,
+            capacity_ah: b.capacity_ah.unwrap_or(0.0),
             absorption_v_per_cell: b
                 .charge_v_per_cell
                 .unwrap_or_else(|| default_absorption_v(b.lead_acid_kind)),

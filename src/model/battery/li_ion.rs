@@ -63,6 +63,9 @@ pub fn full_ocv_v_per_cell(b: &Battery) -> f64 {
     }
 }
 
+/// Default coulombic efficiency of a Li-ion cell (above 99 %, REFERENCES §2).
+pub const DEFAULT_COULOMBIC: f64 = 0.998;
+
 /// Default CV voltage per cell, V (BU-409: 4.20 for LCO/NMC/NCA; 3.65 for LiFePO4).
 pub fn default_cv_v_per_cell(chem: Chemistry) -> f64 {
     match chem {
@@ -114,12 +117,12 @@ impl LiIonModel {
             chemistry: b.chemistry,
             cells_series: f64::from(b.cells_series),
             cells_parallel: f64::from(b.cells_parallel),
-            capacity_ah: b.capacity_ah,
+            capacity_ah: b.capacity_ah.unwrap_or(0.0),
             cell_r0_ohm: b.cell_r0_ohm,
             cell_r1_ohm: b.cell_r1_ohm,
             cell_c1_f: b.cell_c1_f,
             activation_k: b.resistance_activation_k,
-            coulombic_efficiency: b.coulombic_efficiency,
+            coulombic_efficiency: b.coulombic_efficiency.unwrap_or(DEFAULT_COULOMBIC),
             cv_v_per_cell: b
                 .charge_v_per_cell
                 .unwrap_or_else(|| default_cv_v_per_cell(b.chemistry)),

@@ -1,13 +1,18 @@
-//! Battery models behind one interface: Li-ion Thevenin pack or lead-acid battery.
+//! Storage models behind one interface: Li-ion Thevenin pack, lead-acid battery, NiMH pack or
+//! supercapacitor bank.
 
 pub mod lead_acid;
 pub mod li_ion;
+pub mod nimh;
+pub mod supercap;
 
 use crate::model::thermal::Lumped;
 use crate::scenario::setup::{Battery, Chemistry};
 
 pub use lead_acid::LeadAcidModel;
 pub use li_ion::LiIonModel;
+pub use nimh::NimhModel;
+pub use supercap::SupercapModel;
 
 /// Slow battery states the integrator carries.
 #[derive(Debug, Clone, Copy, PartialEq)]
@@ -51,12 +56,17 @@ pub struct BatteryPowers {
     /// Lead-acid: chemical energy leaving as gas, thermoneutral voltage × gassing current that
     /// escapes, W (0 for Li-ion).
     pub gas_w: f64,
+    /// NiMH: heat of the oxygen that the charge current evolves instead of storing, recombined
+    /// inside the sealed cell, W (OCV × the current not stored).
+    pub recombination_w: f64,
+    /// Supercapacitor: heat of the leakage current across the capacitance, W.
+    pub leakage_w: f64,
 }
 
 impl BatteryPowers {
     /// Heat released in the battery, W.
     pub fn heat_w(&self) -> f64 {
-        self.ohmic_w + self.coulombic_loss_w
+        self.ohmic_w + self.coulombic_loss_w + self.recombination_w + self.leakage_w
     }
 }
 
@@ -71,11 +81,13 @@ pub struct BatteryRates {
     pub progress: f64,
 }
 
-/// Either battery kind.
+/// Any storage kind.
 #[derive(Debug, Clone, PartialEq)]
 pub enum BatteryModel {
     LiIon(LiIonModel),
     LeadAcid(LeadAcidModel),
+    Nimh(NimhModel),
+    Supercap(SupercapModel),
 }
 
 impl BatteryModel {
@@ -83,23 +95,37 @@ impl BatteryModel {
     pub fn from_config(b: &Battery) -> Self {
         match b.chemistry {
             Chemistry::LeadAcid => BatteryModel::LeadAcid(LeadAcidModel::from_config(b)),
-            _ => BatteryModel::LiIon(LiIonModel::from_config(b)),
+            Chemistry::Nimh => BatteryModel::Nimh(NimhModel::from_config(b)),
+            Chemistry::Supercap => BatteryModel::Supercap(SupercapModel::from_config(b)),
+            Chemistry::Nmc | Chemistry::Lco | Chemistry::Nca | Chemistry::Lfp => {
+                BatteryModel::LiIon(LiIonModel::from_config(b))
+            }
         }
     }
 
-    /// Capacity, A·s.
+    /// Capacity, A·s (a supercapacitor's: the charge at its rated voltage).
     pub fn capacity_as(&self) -> f64 {
         match self {
             BatteryModel::LiIon(m) => m.capacity_ah * 3600.0,
             BatteryModel::LeadAcid(m) => m.capacity_ah * 3600.0,
+            BatteryModel::Nimh(m) => m.capacity_ah * 3600.0,
+            BatteryModel::Supercap(m) => m.capacity_ah() * 3600.0,
         }
     }
 
-    /// Open-circuit voltage of the whole battery, V.
+    /// Open-circuit voltage of the whole battery at 25 °C, V (a supercapacitor's capacitor
+    /// voltage).
     pub fn ocv_v(&self, soc: f64) -> f64 {
+        self.ocv_at(soc, 25.0)
+    }
+
+    /// Open-circuit voltage of the whole battery at `temp_c`, V (only NiMH's depends on it).
+    pub fn ocv_at(&self, soc: f64, temp_c: f64) -> f64 {
         match self {
             BatteryModel::LiIon(m) => m.ocv_v(soc),
             BatteryModel::LeadAcid(m) => m.ocv_v(soc),
+            BatteryModel::Nimh(m) => m.ocv_v(soc, temp_c),
+            BatteryModel::Supercap(m) => m.voltage_v(soc),
         }
     }
 
@@ -120,11 +146,11 @@ impl BatteryModel {
     /// state's RC voltage, as the figures always were.
     pub fn static_terminal<'a>(&'a self, s: &BatteryState) -> Terminal<'a> {
         match self {
-            BatteryModel::LiIon(_) => self.terminal(s),
             BatteryModel::LeadAcid(m) => Terminal::Curve {
                 model: m,
                 state: *s,
             },
+            _ => self.terminal(s),
         }
     }
 
@@ -139,8 +165,8 @@ impl BatteryModel {
     /// Lead-acid: charge current beyond which the model runs outside its fitted range, A.
     pub fn fit_limit_a(&self) -> Option<f64> {
         match self {
-            BatteryModel::LiIon(_) => None,
             BatteryModel::LeadAcid(m) => Some(m.fit_limit_a()),
+            _ => None,
         }
     }
 
@@ -150,11 +176,13 @@ impl BatteryModel {
         let (r0_ohm, r1_ohm, c1_f) = match self {
             BatteryModel::LiIon(m) => m.pack_rc(s.temp_c),
             BatteryModel::LeadAcid(m) => (m.ohmic_r_ohm(), 0.0, 0.0),
+            BatteryModel::Nimh(m) => m.pack_rc(s.temp_c),
+            BatteryModel::Supercap(m) => (m.esr_ohm(), 0.0, 0.0),
         };
         Frozen {
             model: self,
             state: *s,
-            ocv_v: self.ocv_v(s.soc),
+            ocv_v: self.ocv_at(s.soc, s.temp_c),
             r0_ohm,
             r1_ohm,
             c1_f,
@@ -172,6 +200,8 @@ impl BatteryModel {
         match self {
             BatteryModel::LiIon(m) => m.charge_limit_v(temp_c),
             BatteryModel::LeadAcid(m) => m.absorption_v(temp_c),
+            BatteryModel::Nimh(m) => m.charge_limit_v(),
+            BatteryModel::Supercap(m) => m.rated_v(),
         }
     }
 
@@ -180,14 +210,16 @@ impl BatteryModel {
         match self {
             BatteryModel::LiIon(m) => m.cells_series,
             BatteryModel::LeadAcid(m) => m.cells,
+            BatteryModel::Nimh(m) => m.cells_series,
+            BatteryModel::Supercap(m) => m.cells_series,
         }
     }
 
-    /// Lead-acid float voltage at `temp_c`, V; None for Li-ion.
+    /// Lead-acid float voltage at `temp_c`, V; None for the other kinds.
     pub fn float_v(&self, temp_c: f64) -> Option<f64> {
         match self {
-            BatteryModel::LiIon(_) => None,
             BatteryModel::LeadAcid(m) => Some(m.float_v(temp_c)),
+            _ => None,
         }
     }
 
@@ -204,6 +236,8 @@ impl BatteryModel {
         match self {
             BatteryModel::LiIon(m) => m.charge_efficiency(s.soc),
             BatteryModel::LeadAcid(m) => m.charge_efficiency(i, s.soc),
+            BatteryModel::Nimh(m) => m.charge_efficiency(s.soc),
+            BatteryModel::Supercap(m) => m.charge_efficiency(s.soc),
         }
     }
 
@@ -225,7 +259,11 @@ impl BatteryModel {
                 let (_, _, c1) = m.pack_rc(s.temp_c);
                 0.5 * c1 * s.v_rc_v * s.v_rc_v
             }
-            BatteryModel::LeadAcid(_) => 0.0,
+            BatteryModel::Nimh(m) => {
+                let (_, _, c1) = m.pack_rc(s.temp_c);
+                0.5 * c1 * s.v_rc_v * s.v_rc_v
+            }
+            BatteryModel::LeadAcid(_) | BatteryModel::Supercap(_) => 0.0,
         }
     }
 
@@ -234,6 +272,8 @@ impl BatteryModel {
         match self {
             BatteryModel::LiIon(m) => m.thermal,
             BatteryModel::LeadAcid(m) => m.thermal,
+            BatteryModel::Nimh(m) => m.thermal,
+            BatteryModel::Supercap(m) => m.thermal,
         }
     }
 
@@ -314,7 +354,7 @@ impl<'a> Frozen<'a> {
                         coulombic_loss_w: ocv * (i - stored_a),
                         stored_w: ocv * stored_a,
                         rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / self.r1_ohm,
-                        gas_w: 0.0,
+                        ..BatteryPowers::default()
                     },
                     BatteryRates {
                         soc: stored_a / (3600.0 * m.capacity_ah),
@@ -333,13 +373,63 @@ impl<'a> Frozen<'a> {
                         ohmic_w: (v - ocv) * i,
                         coulombic_loss_w: ocv * f.gassing_a - gas_w,
                         stored_w: ocv * stored_a,
-                        rc_store_w: 0.0,
                         gas_w,
+                        ..BatteryPowers::default()
                     },
                     BatteryRates {
                         soc: f.soc_rate,
                         v_rc: f.v_rc_rate,
                         progress: f.progress_rate,
+                    },
+                )
+            }
+            BatteryModel::Nimh(m) => {
+                // What the cell does not store evolves oxygen, which recombines inside the
+                // sealed cell: its whole energy is heat.
+                let stored_a = if i > 0.0 {
+                    m.charge_efficiency(s.soc) * i
+                } else {
+                    i
+                };
+                (
+                    BatteryPowers {
+                        ohmic_w: i * i * self.r0_ohm + s.v_rc_v * s.v_rc_v / self.r1_ohm,
+                        stored_w: ocv * stored_a,
+                        rc_store_w: s.v_rc_v * i - s.v_rc_v * s.v_rc_v / self.r1_ohm,
+                        recombination_w: ocv * (i - stored_a),
+                        ..BatteryPowers::default()
+                    },
+                    BatteryRates {
+                        soc: stored_a / (3600.0 * m.capacity_ah),
+                        v_rc: li_ion::rc_branch_rate(i, s.v_rc_v, self.r1_ohm, self.c1_f),
+                        progress: 0.0,
+                    },
+                )
+            }
+            BatteryModel::Supercap(m) => {
+                // The leakage runs across the capacitance; of the net current beyond it, the
+                // capacitance takes the share η, which ends at the rated voltage, and the rest is
+                // heat (the acceptance construction keeps SOC ≤ 1). A CV charger's current then
+                // tapers to the leakage, with nothing wasted.
+                let leak_a = m.leakage_a(ocv);
+                let net_a = i - leak_a;
+                let stored_a = if net_a > 0.0 {
+                    m.charge_efficiency(s.soc) * net_a
+                } else {
+                    net_a
+                };
+                (
+                    BatteryPowers {
+                        ohmic_w: i * i * self.r0_ohm,
+                        coulombic_loss_w: ocv * (net_a - stored_a),
+                        stored_w: ocv * stored_a,
+                        leakage_w: ocv * leak_a,
+                        ..BatteryPowers::default()
+                    },
+                    BatteryRates {
+                        soc: stored_a / (3600.0 * m.capacity_ah()),
+                        v_rc: 0.0,
+                        progress: 0.0,
                     },
                 )
             }

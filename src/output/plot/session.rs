@@ -28,6 +28,7 @@ fn mode_style(m: Mode) -> (RGBColor, &'static str) {
         Mode::Float => (PLUM, "float"),
         Mode::Dropout => (BRICK, "dropout"),
         Mode::Done => (AMBER, "done"),
+        Mode::Trickle => (RGBColor(200, 170, 90), "trickle"),
         Mode::TempHold => (UMBER, "temperature hold"),
         Mode::Direct => (SLATE, "direct"),
         Mode::DeviceOff => (RGBColor(170, 170, 170), "device off"),
@@ -55,8 +56,11 @@ fn alert_panel(kind: EventKind) -> Option<usize> {
         | EventKind::Lockout
         | EventKind::DeviceCutoff
         | EventKind::ModelRange
-        | EventKind::ThermalFoldback => Some(1),
-        EventKind::BatteryOvertemp | EventKind::ChargeTempWindow => Some(2),
+        | EventKind::ThermalFoldback
+        | EventKind::MissedEndOfCharge => Some(1),
+        EventKind::BatteryOvertemp | EventKind::ChargeTempWindow | EventKind::TemperatureRise => {
+            Some(2)
+        }
         EventKind::OperatorOverload => Some(3),
         EventKind::RegulationLoss | EventKind::ChargeComplete => None,
     }
@@ -75,6 +79,8 @@ fn alert_label(kind: EventKind) -> &'static str {
         EventKind::DeviceCutoff => "device cut off",
         EventKind::ModelRange => "model range",
         EventKind::ThermalFoldback => "thermal foldback",
+        EventKind::MissedEndOfCharge => "missed end of charge",
+        EventKind::TemperatureRise => "battery heating fast",
     }
 }
 
@@ -91,6 +97,8 @@ pub(super) fn alert_color(kind: EventKind) -> RGBColor {
         EventKind::DeviceCutoff => RGBColor(20, 140, 120),
         EventKind::ModelRange => RGBColor(120, 120, 120),
         EventKind::ThermalFoldback => RGBColor(168, 84, 20),
+        EventKind::MissedEndOfCharge => RGBColor(150, 20, 60),
+        EventKind::TemperatureRise => RGBColor(214, 70, 40),
     }
 }
 
