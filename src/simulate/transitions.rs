@@ -83,7 +83,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             if !d.soft_done && y[SOFT_START] >= 1.0 {
                 return Some(Transition::SoftDone);
             }
-            if let Some(tr) = buck_mode_due(plant, p, d) {
+            if let Some(tr) = buck_mode_due(plant, p, y, d) {
                 return Some(tr);
             }
             let regulating = p.cv_active && !p.net.dropout && d.soft_done;
@@ -114,6 +114,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
                 || p.idle_input_v >= p.net.battery_v + c.sleep_margin_v + SLEEP_HYSTERESIS_V)
             && !usb_sleeps(plant, p, SLEEP_HYSTERESIS_V)
             && p.t - d.disabled_at_s >= c.restart_delay_s
+            && holds_on_start(plant, p, y, d)
         {
             return Some(Transition::Enable);
         }
@@ -171,23 +172,51 @@ fn nimh_end_due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Tra
     (v >= d.peak_v + resolution).then_some(Transition::NewPeak)
 }
 
+/// Whether the charger, started from this state, would keep its input above its UVLO off
+/// threshold (and, for one that sleeps, above the battery): a source too weak to carry even the
+/// starting converter's own currents would lock it out again at once. Where the input is a
+/// capacitor (the detailed fidelity) that is a hiccup the capacitor times; in the fast fidelity
+/// the input is algebraic, so without this look-ahead the start and the lock-out would follow
+/// each other at one instant. The averaged answer for such a source is the one kept: locked out.
+fn holds_on_start(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> bool {
+    let c = &plant.charger;
+    let mut ds = *d;
+    let mut ys = *y;
+    apply(plant, Transition::Enable, p.t, p, &mut ys, &mut ds);
+    let q = plant.eval(p.t, &ys, &ds);
+    q.net.input_v >= c.uvlo_off_v
+        && !(c.sleeps_below_battery && q.net.input_v < q.net.battery_v + c.sleep_margin_v)
+}
+
 /// Buck-boost: into buck mode when the buck duty for the present input, battery voltage and
-/// current is at or below the limit less [`BUCK_MODE_HYSTERESIS`]; back to switching both when it
-/// passes the limit or the buck stage is in dropout.
-fn buck_mode_due(plant: &Plant, p: &Point, d: &Discrete) -> Option<Transition> {
+/// current is at or below the limit less [`BUCK_MODE_HYSTERESIS`] and the chain, run as a buck
+/// from this state, would settle out of dropout within the limit; back to switching both when it
+/// passes the limit or the buck stage is in dropout. Checking the buck's own operating point
+/// first matters where the input sags once the buck draws its current (a weak source, a lossy
+/// switch): the duty read at the buck-boost's operating point alone would switch back and forth.
+fn buck_mode_due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transition> {
     let limit = plant.charger.buck_mode_max_duty;
     if limit <= 0.0 {
         return None;
     }
-    let duty = plant.buck_boost_as_buck.ccm_duty(
-        p.net.input_v,
-        p.net.battery_v,
-        p.net.battery_current_a.max(0.0),
-    );
+    let as_buck_duty = |q: &Point| {
+        plant.buck_boost_as_buck.ccm_duty(
+            q.net.input_v,
+            q.net.battery_v,
+            q.net.battery_current_a.max(0.0),
+        )
+    };
     if d.buck_mode {
-        (duty > limit || p.net.dropout).then_some(Transition::ToBuckBoostMode)
+        (as_buck_duty(p) > limit || p.net.dropout).then_some(Transition::ToBuckBoostMode)
     } else {
-        (duty <= limit - BUCK_MODE_HYSTERESIS).then_some(Transition::ToBuckMode)
+        if as_buck_duty(p) > limit - BUCK_MODE_HYSTERESIS {
+            return None;
+        }
+        let mut db = *d;
+        let mut yb = *y;
+        apply(plant, Transition::ToBuckMode, p.t, p, &mut yb, &mut db);
+        let q = plant.eval(p.t, &yb, &db);
+        (!q.net.dropout && as_buck_duty(&q) <= limit).then_some(Transition::ToBuckMode)
     }
 }
 
