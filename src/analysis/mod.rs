@@ -4,6 +4,7 @@ pub mod episodes;
 pub mod events;
 pub mod fit;
 pub mod invariants;
+pub mod ledger;
 pub mod measured;
 pub mod operator_fit;
 pub mod pareto;

@@ -3,9 +3,9 @@
 use serde::Serialize;
 
 use super::events::Event;
+use super::ledger::{Ledger, SolverStats};
 use super::trace::Trace;
 use crate::scenario::alerts::Alerts;
-use crate::simulate::engine::{Ledger, SolverStats};
 
 /// Verdict of a run: `ok`, one flag, or a list of flags.
 #[derive(Debug, Clone, PartialEq, Eq, Serialize)]

@@ -11,6 +11,7 @@ pub mod quantity;
 pub mod replay;
 pub mod ronpath;
 pub mod setup;
+pub mod source;
 pub mod suggest;
 pub mod validate;
 

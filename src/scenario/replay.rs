@@ -11,8 +11,8 @@ use crate::model::recording::Recording;
 use crate::units::{rad_s_to_rpm, RAD_S_PER_RPM};
 
 use super::error::InputError;
-use super::load::SourceText;
 use super::logfile::{self, Channel, Rules, Unit};
+use super::source::SourceText;
 
 /// Longest segment of the outline, s.
 pub const PIECE_S: f64 = 30.0;

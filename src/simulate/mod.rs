@@ -2,6 +2,7 @@
 
 pub mod engine;
 pub mod fidelity;
+pub mod mode;
 pub mod observe;
 pub mod plant;
 pub mod progress;
@@ -10,6 +11,7 @@ pub mod state;
 pub mod stiff;
 pub mod transitions;
 pub mod usb_port;
+pub mod usb_rules;
 
 pub use engine::{simulate, simulate_watched, Fidelity, Method, SimError, SimOptions, SimResult};
 pub use progress::Progress;

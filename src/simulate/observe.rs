@@ -12,7 +12,7 @@ use crate::scenario::setup::Topology;
 use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
 use super::transitions::SLEEP_HYSTERESIS_V;
-use super::usb_port::device_cut_off;
+use super::usb_rules::device_cut_off;
 
 /// The watched conditions, in a fixed order.
 pub const WATCHED: [EventKind; 13] = [

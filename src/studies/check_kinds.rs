@@ -9,7 +9,6 @@ use crate::scenario::setup::Topology;
 use crate::simulate::plant::Plant;
 use crate::units::rpm_to_rad_s;
 
-use super::check_report::OperatingFigures;
 use super::statics::Statics;
 
 /// A three-phase alternator on its bridge.
@@ -67,18 +66,19 @@ pub struct NimhFigures {
     pub trickle_current_a: f64,
 }
 
-/// A three-phase alternator's figures at the profile's operating point (None for a DC machine).
+/// A three-phase alternator's figures at the profile's operating point, given as the
+/// generator's speed (rpm) and current (A) there (None for a DC machine).
 pub fn alternator_figures(
     st: &Statics,
     setup: &crate::scenario::setup::Setup,
-    at: Option<&OperatingFigures>,
+    at: Option<(f64, f64)>,
 ) -> Option<AlternatorFigures> {
     let g = &st.plant.generator;
     let a = g.alternator?;
-    let omega = at.map(|at| rpm_to_rad_s(at.generator_rpm));
-    let x = at.and_then(|at| {
+    let omega = at.map(|(rpm, _)| rpm_to_rad_s(rpm));
+    let x = at.and_then(|(_, current_a)| {
         g.short_circuit_a(st.ke_v_s_per_rad)
-            .map(|isc| at.generator_current_a / isc * crate::model::bridge::SHORT_CIRCUIT)
+            .map(|isc| current_a / isc * crate::model::bridge::SHORT_CIRCUIT)
     });
     Some(AlternatorFigures {
         pole_pairs: setup.generator.pole_pairs.unwrap_or(1),

@@ -407,7 +407,13 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
         ));
     }
 
-    let alternator = alternator_figures(&st, setup, at_profile.as_ref());
+    let alternator = alternator_figures(
+        &st,
+        setup,
+        at_profile
+            .as_ref()
+            .map(|at| (at.generator_rpm, at.generator_current_a)),
+    );
     let nimh = nimh_figures(plant);
     storage_notes(plant, &mut notes);
 

@@ -14,8 +14,8 @@ use anyhow::anyhow;
 use clap::Args;
 use serde::Serialize;
 
+use super::outcome::{say, Failure, EXIT_OK};
 use crate::analysis::measured::{channel_error, percent_error, ChannelError, Series};
-use crate::cli::{say, Failure, EXIT_OK};
 use crate::output::json::to_json;
 use crate::output::plot::measured::{overlay_chart, OverlayPanel};
 use crate::output::report;
@@ -135,7 +135,7 @@ fn parse_offset(s: &str) -> Result<f64, String> {
         Some(r) => (-1.0, r),
         None => (1.0, t),
     };
-    crate::cli::parse_duration(rest).map(|v| sign * v)
+    super::outcome::parse_duration(rest).map(|v| sign * v)
 }
 
 /// The errors of every channel (`comparison.json` keys `rms` and `worst` repeat them by channel).

@@ -11,8 +11,8 @@
 
 use serde::Serialize;
 
+use super::outcome::say;
 use crate::analysis::fit::Measurement;
-use crate::cli::say;
 use crate::model::bridge;
 use crate::model::generator::{BRIDGE_DC_PER_LINE_RMS, COPPER_ALPHA_PER_K};
 use crate::units::{rpm_to_rad_s, v_s_per_rad_to_v_per_krpm};

@@ -12,10 +12,10 @@ use anyhow::anyhow;
 use clap::Args;
 use serde::Serialize;
 
+use super::outcome::{say, Failure, EXIT_OK};
 use crate::analysis::operator_fit::{
     self, Estimate, OperatorFit, CP_DURATIONS_S, END_MARGIN_S, SETTLE_S,
 };
-use crate::cli::{say, Failure, EXIT_OK};
 use crate::model::recording::{Recording, KNOT_SPACING_S};
 use crate::output::json::to_json;
 use crate::output::report;
