@@ -1,4 +1,17 @@
 //! Span-keeping reader for a RON subset: find values by dotted path and override them in the text.
+//!
+//! Why this exists beside the `ron` crate (reviewed against ron 0.8 and serde_path_to_error 0.1):
+//! - Typing and syntax belong to them: `ron` parses every file for real and reports the first
+//!   syntax or type error with its line:column; `serde_path_to_error` adds the field path of a
+//!   type error. This module never decides whether a file is valid RON of the right shape.
+//! - What neither gives, kept here: the span of a value that *parsed fine* but fails a range
+//!   check afterwards (`battery.capacity_ah = -2` must point at its line:column), the span of a
+//!   key for messages about it, and `--set` edits made in the user's text, so that every
+//!   position in a message is a position in the file the user has (an edit through a parsed value
+//!   tree would re-serialise the file and move every position, and lose its comments).
+//! - So the parser below is structural only (values, their spans, field names) and accepts the
+//!   subset of RON the setup and profile files use; anything it cannot read it reports, and the
+//!   `ron` parse that follows remains the judge.
 
 use std::fmt;
 use thiserror::Error;
@@ -1255,5 +1268,67 @@ Setup(
                 probe(&format!("{}{c}{rest}", DOC.get(..i).unwrap_or("")));
             }
         }
+    }
+}
+
+/// Agreement with the `ron` crate on every shipped file: each leaf that `ron` reads is found by
+/// path here, and the text of the span found parses (by `ron`) to the same value.
+#[cfg(test)]
+mod agreement_with_ron {
+    use super::*;
+    use ron::Value;
+
+    /// Every (path, leaf value) of a value tree as `ron` reads it.
+    fn leaves(v: &Value, path: &mut Vec<Segment>, out: &mut Vec<(Vec<Segment>, Value)>) {
+        match v {
+            Value::Map(m) => {
+                for (k, child) in m.iter() {
+                    let Value::String(name) = k else {
+                        continue;
+                    };
+                    path.push(Segment::Field(name.clone()));
+                    leaves(child, path, out);
+                    path.pop();
+                }
+            }
+            Value::Seq(items) => {
+                for (i, child) in items.iter().enumerate() {
+                    path.push(Segment::Index(i));
+                    leaves(child, path, out);
+                    path.pop();
+                }
+            }
+            Value::Option(Some(inner)) => leaves(inner, path, out),
+            leaf => out.push((path.clone(), leaf.clone())),
+        }
+    }
+
+    // Source: RON specification (ron-rs/ron, docs/grammar.md), read by the ron 0.8 crate itself:
+    // the reference reader decides what each value is; this module must only find it.
+    #[test]
+    fn every_leaf_of_every_shipped_file_is_located_where_ron_reads_it() {
+        let opts = ron::Options::default()
+            .with_default_extension(ron::extensions::Extensions::IMPLICIT_SOME);
+        let files = crate::scenario::demo::SETUPS
+            .iter()
+            .chain(crate::scenario::demo::PROFILES);
+        let mut checked = 0;
+        for f in files {
+            let tree: Value = opts
+                .from_str(f.text)
+                .unwrap_or_else(|e| panic!("{}: ron reads it: {e}", f.path));
+            let mut found = Vec::new();
+            leaves(&tree, &mut Vec::new(), &mut found);
+            for (path, want) in found {
+                let span = locate(f.text, &path)
+                    .unwrap_or_else(|| panic!("{}: `{}` not located", f.path, key_name(&path)));
+                let got: Value = opts
+                    .from_str(&f.text[span.start..span.end])
+                    .unwrap_or_else(|e| panic!("{}: `{}` span: {e}", f.path, key_name(&path)));
+                assert_eq!(got, want, "{}: `{}`", f.path, key_name(&path));
+                checked += 1;
+            }
+        }
+        assert!(checked > 200, "only {checked} leaves checked");
     }
 }
