@@ -14,6 +14,7 @@ use anyhow::anyhow;
 use clap::Args;
 use serde::Serialize;
 
+use super::fit_print::{residual_table, sig};
 use super::outcome::{say, Failure, EXIT_OK};
 use crate::analysis::fit::{fit_generator, GeneratorFit, Measurement};
 use crate::model::generator::COPPER_ALPHA_PER_K;
@@ -22,7 +23,6 @@ use crate::text::{excerpt, EXCERPT_CHARS};
 /// Column names the file must have.
 pub const COLUMNS: [&str; 3] = ["rpm", "voltage_v", "current_a"];
 /// Residual lines printed before the table is cut short.
-const MAX_RESIDUAL_LINES: usize = 40;
 
 /// Arguments of `fit-generator`.
 #[derive(Debug, Clone, Args)]
@@ -152,7 +152,7 @@ fn run_alternator(a: &FitArgs, name: &str, points: &[Measurement]) -> Result<i32
             .map_err(|e| Failure::Other(anyhow!("could not format JSON: {e}")))?;
         say(&s);
     } else {
-        crate::studies::fit_alternator::print(&r, points, sig);
+        crate::studies::fit_alternator::print(&r, points);
     }
     Ok(EXIT_OK)
 }
@@ -252,15 +252,6 @@ pub fn parse_measurements(name: &str, text: &str) -> anyhow::Result<Vec<Measurem
     Ok(points)
 }
 
-/// Number with about six significant digits, for the RON fragment.
-fn sig(v: f64) -> String {
-    if v == 0.0 || !v.is_finite() {
-        return "0.0".to_string();
-    }
-    let decimals = (5 - v.abs().log10().floor() as i32).clamp(1, 12) as usize;
-    format!("{v:.decimals$}")
-}
-
 fn print_fit(r: &FitReport, points: &[Measurement]) {
     say(&format!(
         "fit-generator: {} points from {} (model V = k_e·ω − R·I)",
@@ -292,24 +283,7 @@ fn print_fit(r: &FitReport, points: &[Measurement]) {
         r.correlation, r.rms_residual_v, r.max_abs_residual_v
     ));
     say("");
-    say(" point      rpm   voltage_v   current_a   residual_v");
-    for (k, (p, res)) in points.iter().zip(&r.residuals_v).enumerate() {
-        if k == MAX_RESIDUAL_LINES {
-            say(&format!(
-                "  ... {} more point(s); --json lists every residual",
-                points.len() - k
-            ));
-            break;
-        }
-        say(&format!(
-            "  {:>4} {:>8.1} {:>11.4} {:>11.4} {:>12.3e}",
-            k + 1,
-            p.rpm,
-            p.voltage_v,
-            p.current_a,
-            res
-        ));
-    }
+    residual_table(points, &r.residuals_v);
     say("");
     say("  RON fragment for the setup's generator section:");
     say("    generator: (");

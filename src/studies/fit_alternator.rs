@@ -11,6 +11,7 @@
 
 use serde::Serialize;
 
+use super::fit_print::{residual_table, sig};
 use super::outcome::say;
 use crate::analysis::fit::Measurement;
 use crate::model::bridge;
@@ -262,7 +263,7 @@ pub fn report(
 }
 
 /// Prints a fit with its residuals and a RON fragment.
-pub fn print(r: &AlternatorReport, points: &[Measurement], sig: impl Fn(f64) -> String) {
+pub fn print(r: &AlternatorReport, points: &[Measurement]) {
     say(&format!(
         "fit-generator: {} points from {} (three-phase alternator on its bridge, {} pole pairs: V = 1.35·V_LL − 2·R·I − (3·p·ω·L/π)·I − 2·V_F, V_F = {} V a diode)",
         r.n, r.file, r.pole_pairs, r.diode_drop_v
@@ -296,24 +297,7 @@ pub fn print(r: &AlternatorReport, points: &[Measurement], sig: impl Fn(f64) -> 
         }
     ));
     say("");
-    say(" point      rpm   voltage_v   current_a   residual_v");
-    for (k, (p, res)) in points.iter().zip(&r.residuals_v).enumerate() {
-        if k == 40 {
-            say(&format!(
-                "  ... {} more point(s); --json lists every residual",
-                points.len() - k
-            ));
-            break;
-        }
-        say(&format!(
-            "  {:>4} {:>8.1} {:>11.4} {:>11.4} {:>12.3e}",
-            k + 1,
-            p.rpm,
-            p.voltage_v,
-            p.current_a,
-            res
-        ));
-    }
+    residual_table(points, &r.residuals_v);
     say("");
     say("  RON fragment for the setup's generator section:");
     say("    generator: (");

@@ -13,6 +13,7 @@ pub mod digest;
 pub mod fit;
 pub mod fit_alternator;
 pub mod fit_operator;
+pub mod fit_print;
 pub mod goal;
 pub mod merge;
 pub mod montecarlo;
