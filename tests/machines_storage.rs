@@ -76,6 +76,7 @@ struct FileGenerator {
 #[derive(Debug, Deserialize)]
 struct FileBattery {
     cells_series: u32,
+    cell_r0_ohm: f64,
     #[serde(default)]
     cells_parallel: Option<u32>,
     #[serde(default)]
@@ -652,6 +653,55 @@ fn supercap_usable_energy_down_to_v_min_is_one_minus_the_square_of_the_ratio() {
         text.contains("Supercapacitors can deliver a very large current"),
         "{text}"
     );
+}
+
+/// Capacitance per cell that puts the shipped bank's cell at an RC time constant of `tau_s`.
+fn capacitance_for(tau_s: f64) -> String {
+    let r = file_setup("supercap-bank").battery.cell_r0_ohm;
+    format!("{}", tau_s / r)
+}
+
+// Common practice: double-layer cells have RC time constants of about 0.5–2 s (large cells) and
+// more (small ones). A bank below the setup's floor is refused at load with the relation named;
+// at the floor itself every shipped profile runs in both fidelities with SOC within [0, 1]
+// (below about 20 ms the fast fidelity's explicit steps overshot full and the run ended in exit 3).
+#[test]
+fn a_supercap_cell_faster_than_the_floor_is_refused_and_one_at_the_floor_runs_clean() {
+    use crankcharge::model::battery::supercap::MIN_TIME_CONSTANT_S;
+    let wd = WorkDir::new();
+    let fast = format!(
+        "battery.capacitance_f={}",
+        capacitance_for(0.5 * MIN_TIME_CONSTANT_S)
+    );
+    let err = run_code(
+        &wd,
+        &["run", "supercap-bank", "--no-plot", "--set", &fast],
+        2,
+    );
+    assert!(
+        err.contains("battery.cell_r0_ohm × battery.capacitance_f >= 0.05 s"),
+        "{err}"
+    );
+    let at_line = err.split("supercap-bank.ron").nth(1).unwrap_or("");
+    let at_line = at_line.trim_start_matches(" (built-in)");
+    assert!(at_line.starts_with(':'), "file, line:column first: {err}");
+    let at = capacitance_for(MIN_TIME_CONSTANT_S * (1.0 + 1e-9));
+    for profile in ["steady", "sprint-and-rest", "uneven", "tiring", "overreach"] {
+        let sc = scenario("supercap-bank", profile, &[("battery.capacitance_f", &at)]);
+        let fidelities: &[Fidelity] = if profile == "steady" {
+            &[Fidelity::Fast, Fidelity::Detailed]
+        } else {
+            &[Fidelity::Fast]
+        };
+        for &f in fidelities {
+            let s = session(&sc, None, f);
+            let socs = s.result.trace.rows.iter().map(|r| r.soc);
+            let (lo, hi) = socs.fold((f64::MAX, f64::MIN), |(a, b), v| (a.min(v), b.max(v)));
+            assert!(lo >= 0.0 && hi <= 1.0, "{profile} {f:?}: SOC {lo}..{hi}");
+            // The bank is small: it reaches full and the charger ends on the taper.
+            assert!(hi > 0.99, "{profile} {f:?}: SOC peaked at {hi}");
+        }
+    }
 }
 
 // ---------------------------------------------------------------------------------------------

@@ -221,7 +221,7 @@ fn storage_kind(c: &mut Checker, b: &Battery) {
 /// NiMH and supercapacitor cells: their charge limit per cell, no Li-ion curve and no lead-acid
 /// settings; a supercapacitor's lowest usable voltage below its rated one and a positive ESR.
 fn nimh_or_supercap(c: &mut Checker, b: &Battery) {
-    use crate::model::battery::supercap::DEFAULT_RATED_V_PER_CELL;
+    use crate::model::battery::supercap::{DEFAULT_RATED_V_PER_CELL, MIN_TIME_CONSTANT_S};
     let word = b.chemistry.as_str();
     c.rule(
         b.ocv_curve.is_none(),
@@ -275,6 +275,20 @@ fn nimh_or_supercap(c: &mut Checker, b: &Battery) {
         format!("{}", b.cell_r0_ohm),
         "> 0 for a supercapacitor cell (its ESR)",
     );
+    if let Some(cap) = b.capacitance_f {
+        let tau = b.cell_r0_ohm * cap;
+        c.rule(
+            tau >= MIN_TIME_CONSTANT_S,
+            "battery.cell_r0_ohm",
+            format!("{} Ω × {cap} F = {tau:.3e} s", b.cell_r0_ohm),
+            &format!(
+                "battery.cell_r0_ohm × battery.capacitance_f >= {MIN_TIME_CONSTANT_S} s (a double-layer \
+                 cell's RC time constant is about 0.5–2 s for large cells and longer for small \
+                 ones; a faster cell is outside what this model integrates: raise the ESR to the \
+                 maker's figure)"
+            ),
+        );
+    }
 }
 
 /// A NiMH charger's end of charge and trickle: in range, below the charge current, and only

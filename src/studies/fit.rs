@@ -22,7 +22,6 @@ use crate::text::{excerpt, EXCERPT_CHARS};
 
 /// Column names the file must have.
 pub const COLUMNS: [&str; 3] = ["rpm", "voltage_v", "current_a"];
-/// Residual lines printed before the table is cut short.
 
 /// Arguments of `fit-generator`.
 #[derive(Debug, Clone, Args)]

@@ -33,6 +33,12 @@ pub fn charge_acceptance(soc: f64) -> f64 {
 /// 2.5–2.7 V (2.7 V the most common; some newer cells 3.0 V).
 pub const DEFAULT_RATED_V_PER_CELL: f64 = 2.7;
 
+/// Least RC time constant ESR·C of one cell, s. Common practice: makers' tables give double-layer
+/// cells a time constant of about 0.5–2 s for large cells (350 F at 3.2 mΩ: 1.1 s) and longer
+/// for small ones, whose ESR is higher. Below about 20 ms the bank's taper outruns the fast
+/// fidelity's explicit steps (SOC overshoots full); the floor keeps a margin of more than two.
+pub const MIN_TIME_CONSTANT_S: f64 = 0.05;
+
 /// Supercapacitor bank parameters.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SupercapModel {
