@@ -93,6 +93,8 @@ const RUN_CYCLE: [RGBColor; 8] = [TEAL, BRICK, OLIVE, AMBER, PLUM, COBALT, SLATE
 
 /// At most this many points are drawn per series (long traces are thinned).
 const MAX_POINTS: usize = 4000;
+/// Fewest points a line is thinned to, whatever its panel's width.
+const MIN_LINE_POINTS: usize = 400;
 /// Magnitudes beyond this are clamped before drawing so that axis arithmetic stays finite.
 const MAG_LIMIT: f64 = 1e30;
 
@@ -206,36 +208,59 @@ fn de<E: std::error::Error + Send + Sync>(e: DrawingAreaErrorKind<E>) -> PlotErr
     PlotError::Draw(e.to_string())
 }
 
-fn render<F: Figure>(fig: &F) -> Result<Rendered, PlotError> {
+fn render<F: Figure + Sync>(fig: &F) -> Result<Rendered, PlotError> {
     font::ensure_registered().map_err(PlotError::Font)?;
     let (w, h) = fig.size();
-    let outcome = catch_unwind(AssertUnwindSafe(|| -> Result<Rendered, PlotError> {
-        let mut buf = vec![0u8; w as usize * h as usize * 3];
-        {
-            let root = BitMapBackend::with_buffer(&mut buf, (w, h)).into_drawing_area();
-            fig.draw(&root, Pen { raster: true })?;
-            root.present().map_err(de)?;
-        }
-        let png = encode_png(&buf, w, h)?;
-        let mut svg = String::new();
-        {
-            let root = SVGBackend::with_string(&mut svg, (w, h)).into_drawing_area();
-            fig.draw(&root, Pen { raster: false })?;
-            root.present().map_err(de)?;
-        }
-        Ok(Rendered { png, svg })
-    }));
-    match outcome {
-        Ok(result) => result,
-        Err(payload) => {
-            let msg = payload
-                .downcast_ref::<&str>()
-                .map(|s| s.to_string())
-                .or_else(|| payload.downcast_ref::<String>().cloned())
-                .unwrap_or_else(|| "unknown panic".to_string());
-            Err(PlotError::Draw(format!("plotting code panicked: {msg}")))
-        }
-    }
+    let raster = || {
+        guarded(|| {
+            let mut buf = vec![0u8; w as usize * h as usize * 3];
+            {
+                let root = BitMapBackend::with_buffer(&mut buf, (w, h)).into_drawing_area();
+                fig.draw(&root, Pen { raster: true })?;
+                root.present().map_err(de)?;
+            }
+            encode_png(&buf, w, h)
+        })
+    };
+    let vector = || {
+        guarded(|| {
+            let mut svg = String::new();
+            {
+                let root = SVGBackend::with_string(&mut svg, (w, h)).into_drawing_area();
+                fig.draw(&root, Pen { raster: false })?;
+                root.present().map_err(de)?;
+            }
+            Ok(svg)
+        })
+    };
+    // The two drawings share nothing but the figure: the bitmap (with its PNG encoding) is drawn
+    // beside the SVG, on a second core where there is one.
+    std::thread::scope(|scope| {
+        let png = scope.spawn(raster);
+        let svg = vector();
+        let png = png
+            .join()
+            .unwrap_or_else(|payload| Err(panicked(payload.as_ref())));
+        Ok(Rendered {
+            png: png?,
+            svg: svg?,
+        })
+    })
+}
+
+/// Runs drawing code, turning a panic inside the plotting crate into an error.
+fn guarded<T>(f: impl FnOnce() -> Result<T, PlotError>) -> Result<T, PlotError> {
+    catch_unwind(AssertUnwindSafe(f)).unwrap_or_else(|payload| Err(panicked(payload.as_ref())))
+}
+
+/// The error for a panic's payload.
+fn panicked(payload: &(dyn std::any::Any + Send)) -> PlotError {
+    let msg = payload
+        .downcast_ref::<&str>()
+        .map(|s| s.to_string())
+        .or_else(|| payload.downcast_ref::<String>().cloned())
+        .unwrap_or_else(|| "unknown panic".to_string());
+    PlotError::Draw(format!("plotting code panicked: {msg}"))
 }
 
 fn encode_png(buf: &[u8], w: u32, h: u32) -> Result<Vec<u8>, PlotError> {
@@ -588,7 +613,8 @@ fn build_panel<'a, DB: DrawingBackend>(
 /// How lines are stroked on the current backend.
 ///
 /// The raster backend turns a wide polyline into one polygon whose inner corners shoot far out at
-/// sharp turns (common in noisy or thinned data), so on bitmaps each segment is stroked on its own.
+/// sharp turns (common in noisy or thinned data), so on bitmaps a wide line is built from 1-px
+/// polylines instead.
 #[derive(Debug, Clone, Copy)]
 struct Pen {
     raster: bool,
@@ -606,7 +632,12 @@ impl Pen {
         let style = color.stroke_width(2);
         let base = area.get_base_pixel();
         let px_area = area.strip_coord_spec();
-        for seg in polylines(points, MAX_POINTS) {
+        // A minimum and a maximum per pixel column draw the same line as every point.
+        let (cols, _) = area.get_pixel_range();
+        let budget = usize::try_from(2 * (cols.end - cols.start))
+            .unwrap_or(MAX_POINTS)
+            .clamp(MIN_LINE_POINTS, MAX_POINTS);
+        for seg in polylines(points, budget) {
             let mut px: Vec<(i32, i32)> = seg
                 .iter()
                 .map(|p| {
@@ -628,10 +659,14 @@ impl Pen {
             };
             for piece in pieces {
                 if self.raster {
-                    for w in piece.windows(2) {
-                        px_area
-                            .draw(&PathElement::new(vec![w[0], w[1]], style))
-                            .map_err(de)?;
+                    // Two pixels wide as the 1-px polyline drawn three times, shifted right and
+                    // down by a pixel: Bresenham lines, where a wide stroke would fill a polygon
+                    // per segment (most of a chart's drawing time).
+                    let thin = color.stroke_width(1);
+                    for (dx, dy) in [(0, 0), (1, 0), (0, 1)] {
+                        let shifted: Vec<(i32, i32)> =
+                            piece.iter().map(|&(x, y)| (x + dx, y + dy)).collect();
+                        px_area.draw(&PathElement::new(shifted, thin)).map_err(de)?;
                     }
                 } else {
                     px_area.draw(&PathElement::new(piece, style)).map_err(de)?;
