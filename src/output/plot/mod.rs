@@ -266,7 +266,11 @@ fn panicked(payload: &(dyn std::any::Any + Send)) -> PlotError {
 fn encode_png(buf: &[u8], w: u32, h: u32) -> Result<Vec<u8>, PlotError> {
     use image::ImageEncoder;
     let mut out = Vec::new();
-    image::codecs::png::PngEncoder::new(&mut out)
+    use image::codecs::png::{CompressionType, FilterType, PngEncoder};
+    // Fast deflate with the Paeth filter on every row: on the session chart the adaptive choice
+    // of filter took 40 M instructions for 237 kB, Paeth 22 M for 247 kB, zlib's default level
+    // 300 M for 173 kB.
+    PngEncoder::new_with_quality(&mut out, CompressionType::Fast, FilterType::Paeth)
         .write_image(buf, w, h, image::ColorType::Rgb8)
         .map_err(|e| PlotError::Encode(e.to_string()))?;
     Ok(out)
