@@ -54,7 +54,7 @@ mod tests {
             assert_eq!(sign_and_slope(x), (sign(x), sign_slope(x)));
         }
         // The short cut past SATURATED gives the same bits as the quotient it skips.
-        for &x in &[18.99, 19.0, 19.000001, 19.5, 25.0, 700.0, 1e300] {
+        for &x in &[18.99_f64, 19.0, 19.000001, 19.5, 25.0, 700.0, 1e300] {
             let e = (-2.0 * x).exp();
             assert_eq!(sign(x), (1.0 - e) / (1.0 + e), "{x}");
             assert_eq!(sign(-x), -1.0, "{x}");
