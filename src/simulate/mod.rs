@@ -1,5 +1,6 @@
 //! Time integration of the plant: segments between located events, fixed-grid trace sampling.
 
+pub mod dopri;
 pub mod engine;
 pub mod fidelity;
 pub mod mode;
