@@ -1,4 +1,4 @@
-//! The integrator loop: segments between events, Dopri5 (`dopri`) for the fast fidelity and
+//! The integrator loop: segments between events, Dopri5 (ode_solvers) for the fast fidelity and
 //! Radau5 (differential-equations, see [`Method`]) for the detailed one. Each accepted step is
 //! checked (finite, physical, a due mode change); a switching time is located by bisection on
 //! the solver's dense output and the next segment restarts there, so no step crosses an event
@@ -6,12 +6,14 @@
 
 use std::cell::Cell;
 
+use ode_solvers::continuous_output_model::ContinuousOutputModel;
+use ode_solvers::{Dopri5, OutputType, System};
+
 use crate::analysis::events::Event;
 pub use crate::analysis::ledger::{Ledger, SolverStats};
 use crate::analysis::trace::{Mode, Trace, TraceRow};
 use crate::units::rad_s_to_rpm;
 
-use super::dopri::{self, DenseStep, Problem};
 pub use super::fidelity::Fidelity;
 use super::observe::{codes, Codes, Observer};
 use super::plant::{Discrete, Plant, Point, Stage};
@@ -81,7 +83,7 @@ const ENERGY_DEFECT_FLOOR_J: f64 = 1e-9;
 #[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Method {
-    /// Explicit Dormand–Prince 5(4) (`simulate::dopri`).
+    /// Explicit Dormand–Prince 5(4), ode_solvers.
     Dopri5,
     /// Radau IIA order 5, differential-equations.
     Radau5,
@@ -207,63 +209,45 @@ enum Stop {
 #[derive(Debug, Default)]
 struct Recorder {
     steps: Vec<StepEnd>,
-    /// Dense output of every accepted step (explicit segments), with the step's end time.
-    dense: Vec<(f64, DenseStep)>,
     stop: Option<Stop>,
     last_state: Option<State>,
 }
 
 impl Recorder {
-    /// Empties the recorder for the next segment, keeping its buffers.
+    /// Empties the recorder for the next segment, keeping its buffer.
     fn clear(&mut self) {
         self.steps.clear();
-        self.dense.clear();
         self.stop = None;
         self.last_state = None;
     }
-
-    /// The segment's dense output at t, clamped to [t0, last step end] (grid times a few ulps
-    /// past the last step must not fall back to a stale state); the step ending exactly at t
-    /// interpolates there.
-    fn dense_at(&self, t: f64) -> Option<State> {
-        let (first, last) = (self.dense.first()?, self.dense.last()?);
-        let t = t.clamp(first.1.t0, last.0);
-        let i = match self.dense.binary_search_by(|d| d.0.total_cmp(&t)) {
-            Ok(i) | Err(i) => i.min(self.dense.len() - 1),
-        };
-        Some(self.dense[i].1.at(t))
-    }
 }
 
-/// The right-hand side handed to the explicit integrator: the plant in a fixed mode.
+/// The right-hand side handed to ode_solvers: the plant in a fixed mode.
 struct Rhs<'a> {
     plant: &'a Plant,
     disc: Discrete,
     rec: &'a mut Recorder,
     /// Point of the latest evaluation (the FSAL stage is the accepted point).
-    cache: Option<(f64, Point)>,
+    cache: Cell<Option<(f64, Point)>>,
     evals: &'a Cell<u64>,
 }
 
-impl Problem for Rhs<'_> {
-    fn rhs(&mut self, t: f64, y: &State, dy: &mut State) {
+impl System<f64, State> for Rhs<'_> {
+    fn system(&self, t: f64, y: &State, dy: &mut State) {
         let p = self.plant.eval(t, y, &self.disc);
         self.plant.derivatives(&p, y, &self.disc, dy);
-        self.cache = Some((t, p));
+        self.cache.set(Some((t, p)));
         self.evals.set(self.evals.get() + 1);
     }
 
-    fn accepted(&mut self, t: f64, y: &State, dense: Option<&DenseStep>) -> bool {
-        if let Some(d) = dense {
-            self.rec.dense.push((t, *d));
-        }
+    fn solout(&mut self, t: f64, y: &State, _dy: &State) -> bool {
         if let Some(what) = unphysical(y) {
             self.rec.stop = Some(Stop::Bad(t, what));
             self.rec.last_state = Some(*y);
             return true;
         }
-        let p = match &self.cache {
-            Some((tc, p)) if *tc == t => *p,
+        let p = match self.cache.get() {
+            Some((tc, p)) if tc == t => p,
             _ => self.plant.eval(t, y, &self.disc),
         };
         self.rec.steps.push(StepEnd { t, y: *y, p });
@@ -569,7 +553,7 @@ impl Walk<'_> {
     }
 }
 
-/// One segment with Dopri5: the whole segment is integrated with the callback
+/// One segment with Dopri5 (ode_solvers): the whole segment is integrated with the callback
 /// stopping at the first step after which a mode change is due, then the recorded steps are
 /// walked with the segment's continuous output.
 #[allow(clippy::too_many_arguments)]
@@ -585,30 +569,37 @@ fn explicit_segment(
 ) -> Result<SegmentEnd, SimError> {
     let plant = run.plant;
     let (t, y, t_stop) = (seg.t, seg.y, seg.t_stop);
+    let mut model = ContinuousOutputModel::new();
     let result = {
-        let mut rhs = Rhs {
+        let rhs = Rhs {
             plant,
             disc: *disc,
             rec: &mut *rec,
-            cache: None,
+            cache: Cell::new(None),
             evals,
         };
         let h_max = opts.max_step_s.min(t_stop - t);
-        let settings = dopri::Settings {
-            rtol: opts.rtol,
-            atol: opts.atol,
-            safety: DOPRI5_SAFETY,
-            beta: DOPRI5_BETA,
-            fac_min: DOPRI5_FAC_MIN,
-            fac_max: DOPRI5_FAC_MAX,
+        let mut solver = Dopri5::from_param(
+            rhs,
+            t,
+            t_stop,
+            t_stop - t,
+            y,
+            opts.rtol,
+            opts.atol,
+            DOPRI5_SAFETY,
+            DOPRI5_BETA,
+            DOPRI5_FAC_MIN,
+            DOPRI5_FAC_MAX,
             h_max,
-            h0: seg.h_guess.min(h_max),
-            n_max: max_steps,
-            dense: true,
-        };
-        dopri::integrate(&mut rhs, t, t_stop, y, &settings)
+            seg.h_guess.min(h_max),
+            max_steps,
+            u32::MAX,
+            OutputType::Continuous,
+        );
+        solver.integrate_with_continuous_output_model(&mut model)
     };
-    let (solver_stats, _) = result.map_err(|e| SimError::Solver {
+    let solver_stats = result.map_err(|e| SimError::Solver {
         t_s: rec.steps.last().map_or(t, |s| s.t),
         reason: e.to_string(),
         state: describe(rec.last_state.as_ref().unwrap_or(&y)),
@@ -635,9 +626,11 @@ fn explicit_segment(
             located: None,
         });
     }
+    // Evaluate inside the model's range: grid times a few ulps past the last step must not fall
+    // back to a stale state.
+    let (lo_b, hi_b) = model.bounds();
     let last_y = rec.last_state.unwrap_or(y);
-    let rec = &*rec;
-    let dense = |tq: f64| rec.dense_at(tq).unwrap_or(last_y);
+    let dense = |tq: f64| model.evaluate(tq.clamp(lo_b, hi_b)).unwrap_or(last_y);
     let n = rec.steps.len();
     let h_last = rec.steps[n - 1].t - if n >= 2 { rec.steps[n - 2].t } else { t };
     let mut a = t;
@@ -931,15 +924,11 @@ struct Free<'a> {
     evals: &'a Cell<u64>,
 }
 
-impl Problem for Free<'_> {
-    fn rhs(&mut self, t: f64, y: &State, dy: &mut State) {
+impl System<f64, State> for Free<'_> {
+    fn system(&self, t: f64, y: &State, dy: &mut State) {
         let p = self.plant.eval(t, y, &self.disc);
         self.plant.derivatives(&p, y, &self.disc, dy);
         self.evals.set(self.evals.get() + 1);
-    }
-
-    fn accepted(&mut self, _t: f64, _y: &State, _dense: Option<&DenseStep>) -> bool {
-        false
     }
 }
 
@@ -965,25 +954,30 @@ fn step_to(
         return Some(y0);
     }
     let h = t1 - t0;
-    let settings = dopri::Settings {
-        rtol: opts.rtol,
-        atol: opts.atol,
-        safety: DOPRI5_SAFETY,
-        beta: DOPRI5_BETA,
-        fac_min: DOPRI5_FAC_MIN,
-        fac_max: DOPRI5_FAC_MAX,
-        h_max: h,
-        h0: h,
-        n_max: 1000,
-        dense: false,
-    };
-    let mut free = Free {
-        plant,
-        disc: *disc,
-        evals,
-    };
-    let (_, y1) = dopri::integrate(&mut free, t0, t1, y0, &settings).ok()?;
-    Some(y1).filter(all_finite)
+    let mut solver = Dopri5::from_param(
+        Free {
+            plant,
+            disc: *disc,
+            evals,
+        },
+        t0,
+        t1,
+        h,
+        y0,
+        opts.rtol,
+        opts.atol,
+        DOPRI5_SAFETY,
+        DOPRI5_BETA,
+        DOPRI5_FAC_MIN,
+        DOPRI5_FAC_MAX,
+        h,
+        h,
+        1000,
+        u32::MAX,
+        OutputType::Sparse,
+    );
+    solver.integrate().ok()?;
+    solver.y_out().last().copied().filter(all_finite)
 }
 
 /// Locates changes of the watched conditions inside (a, b] and applies them. Each condition's

@@ -1,6 +1,5 @@
 //! Time integration of the plant: segments between located events, fixed-grid trace sampling.
 
-pub mod dopri;
 pub mod engine;
 pub mod fidelity;
 pub mod mode;
