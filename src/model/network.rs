@@ -367,7 +367,11 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         // Bracketed by [0, x]: node_v(0) = E > v_edge (no current, no drop) and node_v(x) <
         // v_edge; Newton starts one source step below x.
         Some((x, v, slope)) => {
-            let x0 = if slope > 0.0 { x - (v_edge - v) / slope } else { 0.5 * x };
+            let x0 = if slope > 0.0 {
+                x - (v_edge - v) / slope
+            } else {
+                0.5 * x
+            };
             newton_bracketed(0.0, x, x0, CURRENT_TOL_A, edge)
         }
         None if src.emf_v > v_edge => {
