@@ -628,9 +628,18 @@ impl Pen {
             };
             for piece in pieces {
                 if self.raster {
-                    for w in piece.windows(2) {
+                    // A 2×2 square pen: the piece drawn as a one-pixel polyline at the four
+                    // offsets. One-pixel lines are plain line drawing, with no corner joins to
+                    // spike; stroking each segment as its own wide polygon cost more than the
+                    // whole simulation.
+                    let thin = color.stroke_width(1);
+                    let mut shifted = piece.clone();
+                    for (dx, dy) in [(0, 0), (1, 0), (0, 1), (1, 1)] {
+                        for (q, p) in shifted.iter_mut().zip(&piece) {
+                            *q = (p.0 + dx, p.1 + dy);
+                        }
                         px_area
-                            .draw(&PathElement::new(vec![w[0], w[1]], style))
+                            .draw(&PathElement::new(shifted.clone(), thin))
                             .map_err(de)?;
                     }
                 } else {
