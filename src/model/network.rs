@@ -147,12 +147,19 @@ impl Source<'_> {
 
     /// Node voltage and its slope −d(node_v)/di together, V and Ω.
     pub fn node(&self, i: f64) -> (f64, f64) {
+        let (v, slope, _) = self.node_and_brush(i);
+        (v, slope)
+    }
+
+    /// [`Self::node`] and the brush drop in it, V (an operating point reports it).
+    pub fn node_and_brush(&self, i: f64) -> (f64, f64, f64) {
         let (brush_v, brush_slope) = self.generator.brush(i);
         let (out_v, out_slope) = self.rectified(i);
         let n = self.generator.conducting_diodes();
         (
             out_v - i * self.resistance_ohm - brush_v - n * self.diode.forward_v(i),
             -out_slope + self.resistance_ohm + brush_slope + n * self.diode.slope(i),
+            brush_v,
         )
     }
 }
@@ -314,7 +321,7 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         let p = target * num;
         let mut x = (p / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
         for _ in 0..12 {
-            let (v, slope) = src.node(x);
+            let (v, slope, brush_v) = src.node_and_brush(x);
             let den = v - c;
             if den <= 0.0 {
                 break;
@@ -330,7 +337,17 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
             if (g / dg).abs() <= CURRENT_TOL_A {
                 if v >= v_edge {
                     let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
-                    return buck_report(src, buck, x, v, d, target, vo_target, false);
+                    let (duty, dcm) = buck.reported_duty(v, vo_target, target, d);
+                    return switching_point(
+                        src,
+                        x,
+                        (v, brush_v),
+                        (duty, d, dcm),
+                        target,
+                        vo_target,
+                        false,
+                        buck.losses(d, target, v),
+                    );
                 }
                 below_edge = Some((x, v, slope));
                 break;
@@ -440,7 +457,7 @@ fn buck_report(
     switching_point(
         src,
         i,
-        v,
+        (v, src.generator.brush_drop(i)),
         (duty, d, dcm),
         ib,
         vo,
@@ -451,19 +468,18 @@ fn buck_report(
 
 /// An operating point of a switching charger: generator side from `src` at current `i`, duty as
 /// (reported, balance, DCM), battery side (`ib`, `vo`), and the converter's losses; `v` is the
-/// node voltage at `i` (its diode drop is read off it).
+/// node voltage at `i` (its diode drop is read off it) and `brush_v` the brush drop there.
 #[allow(clippy::too_many_arguments)]
 fn switching_point(
     src: &Source,
     i: f64,
-    v: f64,
+    (v, brush_v): (f64, f64),
     (duty, balance_duty, dcm): (f64, f64, bool),
     ib: f64,
     vo: f64,
     dropout: bool,
     losses: ConverterLosses,
 ) -> NetworkPoint {
-    let brush_v = src.generator.brush_drop(i);
     NetworkPoint {
         generator_current_a: i,
         input_v: v,
@@ -593,7 +609,7 @@ fn bb_report(
     switching_point(
         src,
         i,
-        v,
+        (v, src.generator.brush_drop(i)),
         (duty, d, dcm),
         ib,
         vo,
