@@ -56,20 +56,40 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
 
 /// Writes the contract files of one run into the staging folder.
 pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> anyhow::Result<()> {
-    staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
     let events = s.summary.events();
-    staging.write("events.csv", &csv::events_csv(&events)?)?;
-    staging.write("summary.json", &json::to_json(&s.summary)?)?;
-    let mut svg = None;
-    if plots {
+    // The chart is drawn while the tables are formatted and written (two threads): it is the
+    // slower part, and the two share nothing but their inputs.
+    let chart = || -> anyhow::Result<Option<crate::output::plot::Rendered>> {
+        if !plots {
+            return Ok(None);
+        }
         let title = format!("{} / {}", s.summary.setup, s.summary.profile);
         let op = &sc.profile.operator;
         let marks = crate::output::plot::SessionMarks {
             critical_power_w: Some(op.critical_power_w),
             w_prime_j: (op.w_prime_j > 0.0).then_some(op.w_prime_j),
         };
-        let chart =
-            crate::output::plot::session_chart_with(&s.result.trace, &events, &title, &marks)?;
+        Ok(Some(crate::output::plot::session_chart_with(
+            &s.result.trace,
+            &events,
+            &title,
+            &marks,
+        )?))
+    };
+    let tables = || -> anyhow::Result<()> {
+        staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
+        staging.write("events.csv", &csv::events_csv(&events)?)?;
+        staging.write("summary.json", &json::to_json(&s.summary)?)?;
+        Ok(())
+    };
+    let (chart, tables) = if plots {
+        rayon::join(chart, tables)
+    } else {
+        (Ok(None), tables())
+    };
+    tables?;
+    let mut svg = None;
+    if let Some(chart) = chart? {
         staging.write("session.png", &chart.png)?;
         staging.write("session.svg", chart.svg.as_bytes())?;
         svg = Some(chart.svg);

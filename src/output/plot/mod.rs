@@ -206,24 +206,36 @@ fn de<E: std::error::Error + Send + Sync>(e: DrawingAreaErrorKind<E>) -> PlotErr
     PlotError::Draw(e.to_string())
 }
 
-fn render<F: Figure>(fig: &F) -> Result<Rendered, PlotError> {
+/// Draws the figure twice, as a PNG and as an SVG; the two are independent and drawn at once
+/// (two threads), so the slower raster sets the time a user waits.
+fn render<F: Figure + Sync>(fig: &F) -> Result<Rendered, PlotError> {
     font::ensure_registered().map_err(PlotError::Font)?;
     let (w, h) = fig.size();
     let outcome = catch_unwind(AssertUnwindSafe(|| -> Result<Rendered, PlotError> {
-        let mut buf = vec![0u8; w as usize * h as usize * 3];
-        {
-            let root = BitMapBackend::with_buffer(&mut buf, (w, h)).into_drawing_area();
-            fig.draw(&root, Pen { raster: true })?;
-            root.present().map_err(de)?;
-        }
-        let png = encode_png(&buf, w, h)?;
-        let mut svg = String::new();
-        {
-            let root = SVGBackend::with_string(&mut svg, (w, h)).into_drawing_area();
-            fig.draw(&root, Pen { raster: false })?;
-            root.present().map_err(de)?;
-        }
-        Ok(Rendered { png, svg })
+        let (png, svg) = rayon::join(
+            || -> Result<Vec<u8>, PlotError> {
+                let mut buf = vec![0u8; w as usize * h as usize * 3];
+                {
+                    let root = BitMapBackend::with_buffer(&mut buf, (w, h)).into_drawing_area();
+                    fig.draw(&root, Pen { raster: true })?;
+                    root.present().map_err(de)?;
+                }
+                encode_png(&buf, w, h)
+            },
+            || -> Result<String, PlotError> {
+                let mut svg = String::new();
+                {
+                    let root = SVGBackend::with_string(&mut svg, (w, h)).into_drawing_area();
+                    fig.draw(&root, Pen { raster: false })?;
+                    root.present().map_err(de)?;
+                }
+                Ok(svg)
+            },
+        );
+        Ok(Rendered {
+            png: png?,
+            svg: svg?,
+        })
     }));
     match outcome {
         Ok(result) => result,
