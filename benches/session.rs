@@ -1,9 +1,16 @@
 //! Session benchmark: wall time (and its equivalent per 10-minute session), steps, right-hand-side
 //! evaluations and ns per evaluation, Jacobians, LU decompositions and real-time factor per
 //! shipped setup, fidelity and integration method, peak memory of long runs, and a whole design
-//! search, and the fidelity matrix of the shipped files. Prints six tables; run with `cargo bench
-//! --bench session` (`-- --quick` for short spans, `-- --memory`, `-- --matrix` or `-- --search`
-//! for that table alone).
+//! search, and the fidelity matrix of the shipped files. Prints seven tables; run with `cargo bench
+//! --bench session` (`-- --quick` for short spans, `-- --figures`, `-- --memory`, `-- --matrix` or
+//! `-- --search` for that table alone).
+//!
+//! 0. The headline figures, as whole processes of the real binary (start-up, set-up and files
+//!    included), each the median and the spread (min … max) of at least 10 runs, with the
+//!    machine's CPU model and core count: the demo's 10-minute fast session without and with the
+//!    chart, the 200-operator Monte Carlo's aggregate real-time factor, and the peak resident
+//!    memory of an 8-hour session. Targets (issue #18, 2-core machine): ≤ 12 ms, ≤ 30 ms,
+//!    ≥ 80 000.
 //!
 //! 1. Whole sessions through the engine (events located, trace sampled, ledger), steady profile.
 //! 2. The golden 3-s detailed scenario against the committed scipy Radau reference: worst trace
@@ -90,6 +97,10 @@ fn scenario(setup: &str) -> Scenario {
 
 fn main() {
     let quick = std::env::args().any(|a| a == "--quick");
+    if std::env::args().any(|a| a == "--figures") {
+        figures(quick);
+        return;
+    }
     if std::env::args().any(|a| a == "--memory") {
         memory(quick);
         return;
@@ -100,6 +111,7 @@ fn main() {
     }
     // `-- --search` runs the search table alone.
     if !std::env::args().any(|a| a == "--search") {
+        figures(quick);
         sessions(quick);
         accuracy();
         stretch(quick);
@@ -218,31 +230,19 @@ fn memory(quick: bool) {
     );
     let out = tempfile::tempdir().expect("temp dir");
     for (name, arg) in spans {
-        let started = Instant::now();
-        let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
-            .args(["run", "--duration", arg, "--no-plot", "--quiet", "--out"])
-            .arg(out.path().join("run"))
-            .stdout(std::process::Stdio::null())
-            .stderr(std::process::Stdio::null())
-            .spawn()
-            .expect("spawn crankcharge");
-        let status = format!("/proc/{}/status", child.id());
-        let mut peak_kb: Option<u64> = None;
-        let code = loop {
-            if let Some(kb) = std::fs::read_to_string(&status).ok().and_then(|t| {
-                t.lines()
-                    .find(|l| l.starts_with("VmHWM:"))
-                    .and_then(|l| l.split_whitespace().nth(1))
-                    .and_then(|v| v.parse::<u64>().ok())
-            }) {
-                peak_kb = Some(peak_kb.map_or(kb, |p| p.max(kb)));
-            }
-            if let Some(st) = child.try_wait().expect("wait") {
-                break st.code();
-            }
-            std::thread::sleep(std::time::Duration::from_millis(5));
-        };
-        let wall = started.elapsed().as_secs_f64();
+        let dir = out.path().join("run");
+        let (wall, peak_kb, code) = peak_run(
+            &[
+                "run",
+                "--duration",
+                arg,
+                "--no-plot",
+                "--quiet",
+                "--force",
+                "--out",
+            ],
+            &dir,
+        );
         let peak = peak_kb.map_or_else(
             || "n/a".to_string(),
             |kb| format!("{:.1}", kb as f64 / 1024.0),
@@ -252,7 +252,150 @@ fn memory(quick: bool) {
     }
 }
 
-/// The CPU model and core count, for the memory table.
+/// One whole `crankcharge` process with `args` and then `out`: its wall time, s, its peak
+/// resident memory, kB (VmHWM from /proc/PID/status, polled while it runs; None where there is
+/// no /proc), and its exit code.
+fn peak_run(args: &[&str], out: &std::path::Path) -> (f64, Option<u64>, Option<i32>) {
+    let started = Instant::now();
+    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
+        .args(args)
+        .arg(out)
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .spawn()
+        .expect("spawn crankcharge");
+    let status = format!("/proc/{}/status", child.id());
+    let mut peak_kb: Option<u64> = None;
+    let code = loop {
+        if let Some(kb) = std::fs::read_to_string(&status).ok().and_then(|t| {
+            t.lines()
+                .find(|l| l.starts_with("VmHWM:"))
+                .and_then(|l| l.split_whitespace().nth(1))
+                .and_then(|v| v.parse::<u64>().ok())
+        }) {
+            peak_kb = Some(peak_kb.map_or(kb, |p| p.max(kb)));
+        }
+        if let Some(st) = child.try_wait().expect("wait") {
+            break st.code();
+        }
+        std::thread::sleep(std::time::Duration::from_millis(5));
+    };
+    (started.elapsed().as_secs_f64(), peak_kb, code)
+}
+
+/// Wall time of one whole `crankcharge` process with `args` then `out`, s (it must succeed).
+fn timed_run(args: &[&str], out: &std::path::Path) -> f64 {
+    let started = Instant::now();
+    let status = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
+        .args(args)
+        .arg(out)
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null())
+        .status()
+        .expect("spawn crankcharge");
+    let wall = started.elapsed().as_secs_f64();
+    assert!(status.success(), "crankcharge {args:?}: {status}");
+    wall
+}
+
+/// Median, min and max of `v` (sorted in place).
+fn spread(v: &mut [f64]) -> (f64, f64, f64) {
+    v.sort_by(f64::total_cmp);
+    let n = v.len();
+    let median = if n % 2 == 1 {
+        v[n / 2]
+    } else {
+        0.5 * (v[n / 2 - 1] + v[n / 2])
+    };
+    (median, v[0], v[n - 1])
+}
+
+/// Table 0: the headline figures as whole processes of the real binary (see the header). Wall
+/// times include start-up and writing the files, as a user sees them; on a shared machine the
+/// spread shows how busy it was. One unmeasured run of each first (file cache, page faults).
+fn figures(quick: bool) {
+    let runs = if quick { 10 } else { 20 };
+    let mc_runs = 10;
+    let operators = if quick { 40 } else { 200 };
+    let session_s = 600.0;
+    let out = tempfile::tempdir().expect("temp dir");
+    let dir = out.path().join("run");
+    println!();
+    println!("Whole-process figures (the real binary; median and min … max of the runs)");
+    println!("machine: {}", machine());
+    println!(
+        "{:<62} {:>6} {:>12} {:>12} {:>12}",
+        "figure", "runs", "median", "min", "max"
+    );
+    let row = |name: &str, runs: usize, unit: &str, (m, lo, hi): (f64, f64, f64), scale: f64| {
+        println!(
+            "{:<62} {:>6} {:>9.1} {unit:<2} {:>9.1} {unit:<2} {:>9.1} {unit:<2}",
+            name,
+            runs,
+            m * scale,
+            lo * scale,
+            hi * scale
+        );
+    };
+    let no_plot = ["run", "--no-plot", "--quiet", "--force", "--out"];
+    let chart = ["run", "--quiet", "--force", "--out"];
+    for (name, args) in [
+        (
+            "demo run, 10-min fast session, --no-plot [target ≤ 12 ms]",
+            &no_plot[..],
+        ),
+        (
+            "demo run, 10-min fast session, with chart [target ≤ 30 ms]",
+            &chart[..],
+        ),
+    ] {
+        timed_run(args, &dir);
+        let mut walls: Vec<f64> = (0..runs).map(|_| timed_run(args, &dir)).collect();
+        row(name, runs, "ms", spread(&mut walls), 1e3);
+    }
+    let ops = operators.to_string();
+    let mc = [
+        "montecarlo",
+        "--runs",
+        &ops,
+        "--no-plot",
+        "--quiet",
+        "--force",
+        "--out",
+    ];
+    timed_run(&mc, &dir);
+    let mut factors: Vec<f64> = (0..mc_runs)
+        .map(|_| operators as f64 * session_s / timed_run(&mc, &dir))
+        .collect();
+    let name = format!("montecarlo, {operators} operators x 10 min, real-time factor [≥ 80 000]");
+    let (m, lo, hi) = spread(&mut factors);
+    println!(
+        "{:<62} {:>6} {:>12.0} {:>12.0} {:>12.0}",
+        name, mc_runs, m, lo, hi
+    );
+    let (wall, peak_kb, code) = peak_run(
+        &[
+            "run",
+            "--duration",
+            "8h",
+            "--no-plot",
+            "--quiet",
+            "--force",
+            "--out",
+        ],
+        &dir,
+    );
+    let peak = peak_kb.map_or_else(
+        || "n/a".to_string(),
+        |kb| format!("{:.1} MB", kb as f64 / 1024.0),
+    );
+    let note = if code == Some(0) { "" } else { " (failed)" };
+    println!(
+        "8-hour fast session (demo, --no-plot): peak RSS {peak}, wall {wall:.2} s (1 run){note}"
+    );
+}
+
+/// The CPU model, core count, memory and OS, for the tables of whole processes.
 fn machine() -> String {
     let model = std::fs::read_to_string("/proc/cpuinfo")
         .ok()

@@ -147,12 +147,19 @@ impl Source<'_> {
 
     /// Node voltage and its slope −d(node_v)/di together, V and Ω.
     pub fn node(&self, i: f64) -> (f64, f64) {
+        let (v, slope, _) = self.node_and_brush(i);
+        (v, slope)
+    }
+
+    /// [`Self::node`] and the brush drop in it, V (an operating point reports it).
+    pub fn node_and_brush(&self, i: f64) -> (f64, f64, f64) {
         let (brush_v, brush_slope) = self.generator.brush(i);
         let (out_v, out_slope) = self.rectified(i);
         let n = self.generator.conducting_diodes();
         (
             out_v - i * self.resistance_ohm - brush_v - n * self.diode.forward_v(i),
             -out_slope + self.resistance_ohm + brush_slope + n * self.diode.slope(i),
+            brush_v,
         )
     }
 }
@@ -214,7 +221,8 @@ fn direct_point(src: &Source, term: &Terminal) -> NetworkPoint {
     // f(i) = V_batt(i) − node_v(i), increasing in i; its root is the generator current.
     let f = |i: f64| {
         let (vb, sb) = term.v(i);
-        (vb - src.node_v(i), sb + src.node_slope(i))
+        let (v, slope) = src.node(i);
+        (vb - v, sb + slope)
     };
     let rest = term.v(0.0).0;
     let r = src.resistance_ohm.max(1e-9);
@@ -306,28 +314,51 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     // regulated region, with the Newton step of g below the tolerance there (so the node voltage
     // found at that iterate is reused); otherwise the bracketed search below decides. The small
     // core-loss current is taken at each iterate's node voltage (lagged one iterate).
+    // A converged iterate below the dropout edge is kept (current, node voltage, slope): the
+    // edge current lies below it, one Newton step of the source away.
+    let mut below_edge = None;
     if src.emf_v > v_edge {
         let p = target * num;
         let mut x = (p / (src.emf_v - c).max(1e-12) + fixed).max(0.0);
         for _ in 0..12 {
-            let (v, slope) = src.node(x);
+            let (v, slope, brush_v) = src.node_and_brush(x);
             let den = v - c;
             if den <= 0.0 {
                 break;
             }
             let fixed = fixed + oh.core_current_a(v);
             let g = x - (p / den + fixed);
-            let dg = 1.0 - p / (den * den) * slope + oh.core_current_slope(v) * slope;
+            // The core-loss current's own slope in i, h' = −dI_core/dv·R_x ≥ 0.
+            let h1 = -oh.core_current_slope(v) * slope;
+            let dg = 1.0 - p / (den * den) * slope - h1;
             if dg.is_nan() || dg <= 0.0 {
                 break;
             }
             if (g / dg).abs() <= CURRENT_TOL_A {
                 if v >= v_edge {
                     let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
-                    return buck_report(src, buck, x, v, d, target, vo_target, false);
+                    let (duty, dcm) = buck.reported_duty(v, vo_target, target, d);
+                    return switching_point(
+                        src,
+                        x,
+                        (v, brush_v),
+                        (duty, d, dcm),
+                        target,
+                        vo_target,
+                        false,
+                        buck.losses(d, target, v),
+                    );
                 }
+                below_edge = Some((x, v, slope));
                 break;
             }
+            // The core-loss current linearised too, I_core(i) ≈ I_core(x) + h'·(i − x): the
+            // hyperbola becomes ((1 − h')·i − (I_fixed − h'·x))·(a − R_x·i) = P, the same form
+            // with I_fixed and P divided by 1 − h' (> 0 here since g' > 0), so the iteration
+            // converges quadratically instead of by the factor h' of a lagged core current.
+            let k = 1.0 - h1;
+            let fixed = (fixed - h1 * x) / k;
+            let p = p / k;
             let a = v + slope * x - c;
             let b = a + fixed * slope;
             let q = fixed * a + p;
@@ -345,13 +376,26 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     }
 
     // Generator current at the dropout edge (node voltage = v_edge).
-    let i_edge = if src.emf_v > v_edge {
-        let hi = (src.emf_v - v_edge) / r;
-        root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, |i| {
-            (v_edge - src.node_v(i), src.node_slope(i))
-        })
-    } else {
-        0.0
+    let edge = |i: f64| {
+        let (v, slope) = src.node(i);
+        (v_edge - v, slope)
+    };
+    let i_edge = match below_edge {
+        // Bracketed by [0, x]: node_v(0) = E > v_edge (no current, no drop) and node_v(x) <
+        // v_edge; Newton starts one source step below x.
+        Some((x, v, slope)) => {
+            let x0 = if slope > 0.0 {
+                x - (v_edge - v) / slope
+            } else {
+                0.5 * x
+            };
+            newton_bracketed(0.0, x, x0, CURRENT_TOL_A, edge)
+        }
+        None if src.emf_v > v_edge => {
+            let hi = (src.emf_v - v_edge) / r;
+            root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, edge)
+        }
+        None => 0.0,
     };
 
     if i_edge > 0.0 {
@@ -413,7 +457,7 @@ fn buck_report(
     switching_point(
         src,
         i,
-        v,
+        (v, src.generator.brush_drop(i)),
         (duty, d, dcm),
         ib,
         vo,
@@ -424,19 +468,18 @@ fn buck_report(
 
 /// An operating point of a switching charger: generator side from `src` at current `i`, duty as
 /// (reported, balance, DCM), battery side (`ib`, `vo`), and the converter's losses; `v` is the
-/// node voltage at `i` (its diode drop is read off it).
+/// node voltage at `i` (its diode drop is read off it) and `brush_v` the brush drop there.
 #[allow(clippy::too_many_arguments)]
 fn switching_point(
     src: &Source,
     i: f64,
-    v: f64,
+    (v, brush_v): (f64, f64),
     (duty, balance_duty, dcm): (f64, f64, bool),
     ib: f64,
     vo: f64,
     dropout: bool,
     losses: ConverterLosses,
 ) -> NetworkPoint {
-    let brush_v = src.generator.brush_drop(i);
     NetworkPoint {
         generator_current_a: i,
         input_v: v,
@@ -566,7 +609,7 @@ fn bb_report(
     switching_point(
         src,
         i,
-        v,
+        (v, src.generator.brush_drop(i)),
         (duty, d, dcm),
         ib,
         vo,
@@ -586,9 +629,10 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
     } else {
         let f = |ib: f64| {
             let (vb, sb) = term.v(ib);
+            let (v, slope) = src.node(ib + iq);
             (
-                vb + ib * lin.pass_resistance_ohm - src.node_v(ib + iq),
-                sb + lin.pass_resistance_ohm + src.node_slope(ib + iq),
+                vb + ib * lin.pass_resistance_ohm - v,
+                sb + lin.pass_resistance_ohm + slope,
             )
         };
         (root_in(0.0, target, 0.5 * target, CURRENT_TOL_A, f), true)
@@ -634,7 +678,8 @@ fn floored_point(
     let r = src.resistance_ohm.max(1e-9);
     let hi = (src.emf_v - floor_v) / r;
     let i_f = root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, |i| {
-        (floor_v - src.node_v(i), src.node_slope(i))
+        let (v, slope) = src.node(i);
+        (floor_v - v, slope)
     });
     // Duty and input current for battery current `ib` at the floor (None: beyond D_max).
     let at = |ib: f64| -> Option<(f64, f64, f64)> {

@@ -31,8 +31,12 @@ const MAX_SEGMENT_EXPLICIT_DETAILED_S: f64 = 0.05;
 /// the step count; a segment that reaches this many steps ends there and the next one goes on
 /// (a restart costs two evaluations). Shipped sessions take about 100 steps per 10-s segment.
 const MAX_SEGMENT_STEPS: usize = 4096;
-/// Located switching times are within this of the true crossing, s.
+/// Located switching times (mode changes, which change the dynamics) are within this of the
+/// true crossing, s.
 const EVENT_TOL_S: f64 = 1e-7;
+/// Located changes of the watched conditions (reporting only: episodes and alerts, whose times
+/// are written to 0.1 ms) are within this of the true crossing, s.
+const WATCH_TOL_S: f64 = 1e-5;
 /// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
 const MAX_CASCADE: usize = 8;
 /// Dopri5 step limit per segment.
@@ -516,7 +520,7 @@ impl Walk<'_> {
     ) -> Option<(f64, Option<Transition>)> {
         let plant = self.plant;
         let stop = due(plant, &end.p, &end.y, disc).map(|_| {
-            let ts = bisect(a, end.t, |tq| {
+            let ts = bisect(a, end.t, EVENT_TOL_S, |tq| {
                 let yq = dense(tq);
                 let pq = plant.eval(tq, &yq, disc);
                 due(plant, &pq, &yq, disc).is_some()
@@ -999,7 +1003,7 @@ fn watch(
         if codes(plant, pb, yb, disc, &now) == now {
             return;
         }
-        let tc = bisect(lo, b, |tq| {
+        let tc = bisect(lo, b, WATCH_TOL_S, |tq| {
             let yq = dense(tq);
             let pq = plant.eval(tq, &yq, disc);
             codes(plant, &pq, &yq, disc, &now) != now
@@ -1019,9 +1023,9 @@ fn watch(
 /// Most separate condition changes located inside one step.
 const WATCH_LIMIT: usize = 16;
 
-/// Earliest time in (lo, hi] at which `pred` holds, given it holds at `hi` (bisection).
-fn bisect(mut lo: f64, mut hi: f64, pred: impl Fn(f64) -> bool) -> f64 {
-    while hi - lo > EVENT_TOL_S {
+/// Earliest time in (lo, hi] at which `pred` holds, given it holds at `hi` (bisection to `tol`).
+fn bisect(mut lo: f64, mut hi: f64, tol: f64, pred: impl Fn(f64) -> bool) -> f64 {
+    while hi - lo > tol {
         let mid = 0.5 * (lo + hi);
         if pred(mid) {
             hi = mid;

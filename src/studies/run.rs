@@ -74,21 +74,27 @@ pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> 
             &marks,
         )?))
     };
-    // The chart is drawn while the tables are formatted and written.
-    let chart = std::thread::scope(|scope| -> anyhow::Result<_> {
-        let drawing = scope.spawn(chart);
-        let tables = (|| -> anyhow::Result<()> {
-            staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
-            staging.write("events.csv", &csv::events_csv(&events)?)?;
-            staging.write("summary.json", &json::to_json(&s.summary)?)?;
-            Ok(())
-        })();
-        let chart = drawing
-            .join()
-            .map_err(|_| anyhow::anyhow!("drawing the session chart panicked"))?;
-        tables?;
-        chart
-    })?;
+    let tables = || -> anyhow::Result<()> {
+        staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
+        staging.write("events.csv", &csv::events_csv(&events)?)?;
+        staging.write("summary.json", &json::to_json(&s.summary)?)?;
+        Ok(())
+    };
+    // The chart is drawn while the tables are formatted and written (they share only inputs).
+    let chart = if plots {
+        std::thread::scope(|scope| -> anyhow::Result<_> {
+            let drawing = scope.spawn(chart);
+            let written = tables();
+            let chart = drawing
+                .join()
+                .map_err(|_| anyhow::anyhow!("drawing the session chart panicked"))?;
+            written?;
+            chart
+        })?
+    } else {
+        tables()?;
+        None
+    };
     let mut svg = None;
     if let Some(chart) = chart {
         staging.write("session.png", &chart.png)?;
