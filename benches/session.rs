@@ -310,48 +310,72 @@ fn spread(v: &mut [f64]) -> (f64, f64, f64) {
     (median, v[0], v[n - 1])
 }
 
+/// One headline figure: its name, the number of runs, the median, min and max, and the unit.
+struct Figure {
+    name: String,
+    runs: usize,
+    spread: (f64, f64, f64),
+    unit: &'static str,
+    decimals: usize,
+}
+
 /// Table 0: the headline figures as whole processes of the real binary (see the header). Wall
 /// times include start-up and writing the files, as a user sees them; on a shared machine the
 /// spread shows how busy it was. One unmeasured run of each first (file cache, page faults).
+/// With `--markdown` the table is printed as the README's Markdown block instead (the script
+/// `.ci/performance-table` puts it into README.md).
 fn figures(quick: bool) {
+    let markdown = std::env::args().any(|a| a == "--markdown");
     let runs = if quick { 10 } else { 20 };
     let mc_runs = 10;
     let operators = if quick { 40 } else { 200 };
     let session_s = 600.0;
     let out = tempfile::tempdir().expect("temp dir");
     let dir = out.path().join("run");
-    println!();
-    println!("Whole-process figures (the real binary; median and min … max of the runs)");
-    println!("machine: {}", machine());
-    println!(
-        "{:<62} {:>6} {:>12} {:>12} {:>12}",
-        "figure", "runs", "median", "min", "max"
-    );
-    let row = |name: &str, runs: usize, unit: &str, (m, lo, hi): (f64, f64, f64), scale: f64| {
-        println!(
-            "{:<62} {:>6} {:>9.1} {unit:<2} {:>9.1} {unit:<2} {:>9.1} {unit:<2}",
-            name,
-            runs,
-            m * scale,
-            lo * scale,
-            hi * scale
-        );
-    };
+    let mut rows: Vec<Figure> = Vec::new();
     let no_plot = ["run", "--no-plot", "--quiet", "--force", "--out"];
     let chart = ["run", "--quiet", "--force", "--out"];
-    for (name, args) in [
+    let detailed = [
+        "run",
+        "lead-acid-buck",
+        "--profile",
+        "tiring",
+        "--fidelity",
+        "detailed",
+        "--no-plot",
+        "--quiet",
+        "--force",
+        "--out",
+    ];
+    for (name, args, n, (unit, scale, decimals)) in [
         (
-            "demo run, 10-min fast session, --no-plot [target ≤ 12 ms]",
+            "demo `run --no-plot`, 10-min fast session [target ≤ 12 ms]",
             &no_plot[..],
+            runs,
+            ("ms", 1e3, 1),
         ),
         (
-            "demo run, 10-min fast session, with chart [target ≤ 30 ms]",
+            "demo `run` with the chart, 10-min fast session [target ≤ 30 ms]",
             &chart[..],
+            runs,
+            ("ms", 1e3, 1),
+        ),
+        (
+            "slowest shipped detailed session, `run lead-acid-buck --profile tiring --fidelity detailed --no-plot` [target ≤ 20 s]",
+            &detailed[..],
+            if quick { 3 } else { 10 },
+            ("s", 1.0, 2),
         ),
     ] {
         timed_run(args, &dir);
-        let mut walls: Vec<f64> = (0..runs).map(|_| timed_run(args, &dir)).collect();
-        row(name, runs, "ms", spread(&mut walls), 1e3);
+        let mut walls: Vec<f64> = (0..n).map(|_| scale * timed_run(args, &dir)).collect();
+        rows.push(Figure {
+            name: name.to_string(),
+            runs: n,
+            spread: spread(&mut walls),
+            unit,
+            decimals,
+        });
     }
     let ops = operators.to_string();
     let mc = [
@@ -367,12 +391,15 @@ fn figures(quick: bool) {
     let mut factors: Vec<f64> = (0..mc_runs)
         .map(|_| operators as f64 * session_s / timed_run(&mc, &dir))
         .collect();
-    let name = format!("montecarlo, {operators} operators x 10 min, real-time factor [≥ 80 000]");
-    let (m, lo, hi) = spread(&mut factors);
-    println!(
-        "{:<62} {:>6} {:>12.0} {:>12.0} {:>12.0}",
-        name, mc_runs, m, lo, hi
-    );
+    rows.push(Figure {
+        name: format!(
+            "`montecarlo --runs {operators}` (10 min each, both cores), real-time factor [target ≥ 80 000]"
+        ),
+        runs: mc_runs,
+        spread: spread(&mut factors),
+        unit: "×",
+        decimals: 0,
+    });
     let (wall, peak_kb, code) = peak_run(
         &[
             "run",
@@ -390,9 +417,61 @@ fn figures(quick: bool) {
         |kb| format!("{:.1} MB", kb as f64 / 1024.0),
     );
     let note = if code == Some(0) { "" } else { " (failed)" };
-    println!(
-        "8-hour fast session (demo, --no-plot): peak RSS {peak}, wall {wall:.2} s (1 run){note}"
+    let memory = format!(
+        "8-hour fast session (demo, `--no-plot`): peak RSS {peak}, wall {wall:.2} s (1 run){note}"
     );
+    if markdown {
+        print_markdown(&rows, &memory);
+        return;
+    }
+    println!();
+    println!("Whole-process figures (the real binary; median and min … max of the runs)");
+    println!("machine: {}", machine());
+    println!(
+        "{:<86} {:>5} {:>12} {:>12} {:>12}",
+        "figure", "runs", "median", "min", "max"
+    );
+    for f in &rows {
+        let (m, lo, hi) = f.spread;
+        let d = f.decimals;
+        println!(
+            "{:<86} {:>5} {:>9.d$} {:<2} {:>9.d$} {:<2} {:>9.d$} {:<2}",
+            f.name, f.runs, m, f.unit, lo, f.unit, hi, f.unit
+        );
+    }
+    println!("{memory}");
+}
+
+/// The headline figures as the README's Markdown: the machine and date, then one row a figure.
+fn print_markdown(rows: &[Figure], memory: &str) {
+    let date = std::process::Command::new("date")
+        .args(["-u", "+%Y-%m-%d"])
+        .output()
+        .ok()
+        .map(|o| String::from_utf8_lossy(&o.stdout).trim().to_string())
+        .unwrap_or_default();
+    println!(
+        "Measured {date} on {} by `cargo bench --bench session -- --figures`:",
+        machine()
+    );
+    println!();
+    println!("| figure | runs | median | min … max |");
+    println!("|---|---:|---:|---:|");
+    for f in rows {
+        let (m, lo, hi) = f.spread;
+        let d = f.decimals;
+        let unit = if f.unit == "×" {
+            String::new()
+        } else {
+            format!(" {}", f.unit)
+        };
+        println!(
+            "| {} | {} | {m:.d$}{unit} | {lo:.d$} … {hi:.d$}{unit} |",
+            f.name, f.runs
+        );
+    }
+    println!();
+    println!("{memory}.");
 }
 
 /// The CPU model, core count, memory and OS, for the tables of whole processes.
