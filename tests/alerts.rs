@@ -6,49 +6,27 @@
 use std::path::Path;
 
 use crankcharge::analysis::events::{Event, EventKind};
-use crankcharge::scenario::load::{InputKind, Override};
-use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::scenario::Scenario;
 use crankcharge::simulate::Fidelity;
-use crankcharge::studies::session::{run_session, RunSettings, Session};
+use crankcharge::studies::session::Session;
 use serde_json::Value;
 
-use crate::common::{read_csv, repo, run_ok, WorkDir};
+use crate::common::{read_csv, repo, run_ok, session_of, shipped_scenario, WorkDir};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
 // ---------------------------------------------------------------------------------------------
 
 fn scenario(setup: &str, profile: &str, sets: &[(&str, &str)]) -> Scenario {
-    let path = |p: String| repo().join(p).to_string_lossy().into_owned();
-    let s = SourceText::resolve(
-        Some(&path(format!("profiles/setups/{setup}.ron"))),
-        InputKind::Setup,
-    )
-    .unwrap_or_else(|e| panic!("setup {setup}: {e}"));
-    let p = SourceText::resolve(
-        Some(&path(format!("profiles/cranking/{profile}.ron"))),
-        InputKind::Profile,
-    )
-    .unwrap_or_else(|e| panic!("profile {profile}: {e}"));
-    let ov: Vec<Override> = sets
-        .iter()
-        .map(|(k, v)| Override {
-            key: (*k).to_string(),
-            value: (*v).to_string(),
-        })
-        .collect();
-    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{setup}: {e}"))
+    shipped_scenario(setup, profile, sets)
 }
 
 fn session(setup: &str, profile: &str, duration_s: f64, sets: &[(&str, &str)]) -> Session {
-    let sc = scenario(setup, profile, sets);
-    let rs = RunSettings {
-        duration_s: Some(duration_s),
-        seed: None,
-        fidelity: Fidelity::Fast,
-        cadence_offset_rpm: 0.0,
-    };
-    run_session(&sc, &rs).unwrap_or_else(|e| panic!("{setup}/{profile}: {e}"))
+    session_of(
+        &scenario(setup, profile, sets),
+        Some(duration_s),
+        Fidelity::Fast,
+    )
 }
 
 fn of_kind(rows: &[Event], kind: EventKind) -> Vec<&Event> {

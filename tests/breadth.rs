@@ -17,10 +17,10 @@ use crankcharge::simulate::engine::{initial_discrete, initial_state};
 use crankcharge::simulate::plant::Plant;
 use crankcharge::simulate::state::{CRANK_SPEED, E_COGGING, GEN_SPEED, OP_INTEGRATOR, ROTOR_ANGLE};
 use crankcharge::simulate::Fidelity;
-use crankcharge::studies::session::{run_session, RunSettings, Session};
+use crankcharge::studies::session::Session;
 use crankcharge::units::rpm_to_rad_s;
 
-use crate::common::{read_csv, repo, run_code, run_ok, WorkDir, RUN_FILES};
+use crate::common::{load_paths, read_csv, repo, run_code, run_ok, session_of, WorkDir, RUN_FILES};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -31,29 +31,11 @@ fn setup_path(name: &str) -> PathBuf {
 }
 
 fn load(setup: &Path, sets: &[(&str, &str)]) -> Scenario {
-    let s = SourceText::resolve(Some(setup.to_str().expect("utf-8 path")), InputKind::Setup)
-        .unwrap_or_else(|e| panic!("setup {}: {e}", setup.display()));
-    let profile = repo().join("profiles/cranking/steady.ron");
-    let p = SourceText::resolve(Some(profile.to_str().expect("utf-8")), InputKind::Profile)
-        .unwrap_or_else(|e| panic!("profile: {e}"));
-    let ov: Vec<Override> = sets
-        .iter()
-        .map(|(k, v)| Override {
-            key: (*k).to_string(),
-            value: (*v).to_string(),
-        })
-        .collect();
-    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{}: {e}", setup.display()))
+    load_paths(setup, &repo().join("profiles/cranking/steady.ron"), sets)
 }
 
 fn run(sc: &Scenario, duration_s: Option<f64>, fidelity: Fidelity) -> Session {
-    let rs = RunSettings {
-        duration_s,
-        seed: None,
-        fidelity,
-        cadence_offset_rpm: 0.0,
-    };
-    run_session(sc, &rs).unwrap_or_else(|e| panic!("{}: {e}", sc.setup.name))
+    session_of(sc, duration_s, fidelity)
 }
 
 /// Names of the shipped setup files in profiles/setups.

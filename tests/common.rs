@@ -152,3 +152,59 @@ pub fn ideal_buck(
         overhead: crankcharge::model::converter::Overhead::default(),
     }
 }
+
+/// Loads a setup and a profile (paths) through the scenario loader with `--set`-style overrides
+/// given as (key, value) pairs; panics with the file on failure.
+pub fn load_paths(
+    setup: &Path,
+    profile: &Path,
+    sets: &[(&str, &str)],
+) -> crankcharge::scenario::Scenario {
+    use crankcharge::scenario::load::{InputKind, Override};
+    use crankcharge::scenario::{load_scenario, SourceText};
+    let s = SourceText::resolve(Some(setup.to_str().expect("utf-8 path")), InputKind::Setup)
+        .unwrap_or_else(|e| panic!("setup {}: {e}", setup.display()));
+    let p = SourceText::resolve(
+        Some(profile.to_str().expect("utf-8 path")),
+        InputKind::Profile,
+    )
+    .unwrap_or_else(|e| panic!("profile {}: {e}", profile.display()));
+    let ov: Vec<Override> = sets
+        .iter()
+        .map(|(k, v)| Override {
+            key: (*k).to_string(),
+            value: (*v).to_string(),
+        })
+        .collect();
+    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{}: {e}", setup.display()))
+}
+
+/// A shipped setup and a shipped crank profile, by file stem, with overrides.
+pub fn shipped_scenario(
+    setup: &str,
+    profile: &str,
+    sets: &[(&str, &str)],
+) -> crankcharge::scenario::Scenario {
+    load_paths(
+        &repo().join(format!("profiles/setups/{setup}.ron")),
+        &repo().join(format!("profiles/cranking/{profile}.ron")),
+        sets,
+    )
+}
+
+/// Runs one session (the profile's seed, no cadence offset); `duration_s` None is the profile's
+/// own length. Panics with the setup's name on failure.
+pub fn session_of(
+    sc: &crankcharge::scenario::Scenario,
+    duration_s: Option<f64>,
+    fidelity: crankcharge::simulate::Fidelity,
+) -> crankcharge::studies::session::Session {
+    use crankcharge::studies::session::{run_session, RunSettings};
+    let rs = RunSettings {
+        duration_s,
+        seed: None,
+        fidelity,
+        cadence_offset_rpm: 0.0,
+    };
+    run_session(sc, &rs).unwrap_or_else(|e| panic!("{}: {e}", sc.setup.name))
+}

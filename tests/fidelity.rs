@@ -18,12 +18,11 @@ use crankcharge::model::diode::DiodeModel;
 use crankcharge::model::drive::DriveModel;
 use crankcharge::model::generator::GeneratorModel;
 use crankcharge::model::network::{NetworkPoint, Source};
-use crankcharge::scenario::load::{InputKind, Override, SourceText};
-use crankcharge::scenario::{load_scenario, Scenario};
+use crankcharge::scenario::Scenario;
 use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::{run_session, RunSettings, Session};
 
-use crate::common::{ideal_buck, repo, shipped_setups};
+use crate::common::{ideal_buck, load_paths, repo, shipped_setups};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -31,21 +30,7 @@ use crate::common::{ideal_buck, repo, shipped_setups};
 
 /// Loads a setup and a profile by path with `--set`-style overrides.
 fn load(setup: &Path, profile: &Path, sets: &[(&str, &str)]) -> Scenario {
-    let s = SourceText::resolve(Some(setup.to_str().expect("utf-8 path")), InputKind::Setup)
-        .unwrap_or_else(|e| panic!("setup {}: {e}", setup.display()));
-    let p = SourceText::resolve(
-        Some(profile.to_str().expect("utf-8 path")),
-        InputKind::Profile,
-    )
-    .unwrap_or_else(|e| panic!("profile {}: {e}", profile.display()));
-    let ov: Vec<Override> = sets
-        .iter()
-        .map(|(k, v)| Override {
-            key: (*k).to_string(),
-            value: (*v).to_string(),
-        })
-        .collect();
-    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{}: {e}", setup.display()))
+    load_paths(setup, profile, sets)
 }
 
 /// One session to run: setup and profile files, fidelity, length (None: the profile's own).

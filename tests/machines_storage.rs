@@ -15,15 +15,14 @@ use crankcharge::model::diode::DiodeModel;
 use crankcharge::model::generator::GeneratorModel;
 use crankcharge::model::jitter::JitterTrack;
 use crankcharge::model::network::Source;
-use crankcharge::scenario::load::{InputKind, Override};
 use crankcharge::scenario::setup::Generator;
-use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::scenario::Scenario;
 use crankcharge::simulate::plant::Plant;
 use crankcharge::simulate::Fidelity;
-use crankcharge::studies::session::{run_session, RunSettings, Session};
+use crankcharge::studies::session::Session;
 use crankcharge::units::rpm_to_rad_s;
 
-use crate::common::{repo, run_code, run_ok, WorkDir};
+use crate::common::{repo, run_code, run_ok, session_of, shipped_scenario, WorkDir};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -34,30 +33,11 @@ fn setup_path(name: &str) -> PathBuf {
 }
 
 fn scenario(setup: &str, profile: &str, sets: &[(&str, &str)]) -> Scenario {
-    let path = setup_path(setup);
-    let s = SourceText::resolve(Some(path.to_str().expect("utf-8")), InputKind::Setup)
-        .unwrap_or_else(|e| panic!("setup {setup}: {e}"));
-    let pp = repo().join(format!("profiles/cranking/{profile}.ron"));
-    let p = SourceText::resolve(Some(pp.to_str().expect("utf-8")), InputKind::Profile)
-        .unwrap_or_else(|e| panic!("profile: {e}"));
-    let ov: Vec<Override> = sets
-        .iter()
-        .map(|(k, v)| Override {
-            key: (*k).to_string(),
-            value: (*v).to_string(),
-        })
-        .collect();
-    load_scenario(&s, &p, &ov).unwrap_or_else(|e| panic!("{setup}: {e}"))
+    shipped_scenario(setup, profile, sets)
 }
 
 fn session(sc: &Scenario, duration_s: Option<f64>, fidelity: Fidelity) -> Session {
-    let rs = RunSettings {
-        duration_s,
-        seed: None,
-        fidelity,
-        cadence_offset_rpm: 0.0,
-    };
-    run_session(sc, &rs).unwrap_or_else(|e| panic!("{}: {e}", sc.setup.name))
+    session_of(sc, duration_s, fidelity)
 }
 
 /// The parts of a shipped setup file the tests read themselves (not through the scenario code).
