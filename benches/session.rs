@@ -230,24 +230,8 @@ fn memory(quick: bool) {
     );
     let out = tempfile::tempdir().expect("temp dir");
     for (name, arg) in spans {
-        let dir = out.path().join("run");
-        let (wall, peak_kb, code) = peak_run(
-            &[
-                "run",
-                "--duration",
-                arg,
-                "--no-plot",
-                "--quiet",
-                "--force",
-                "--out",
-            ],
-            &dir,
-        );
-        let peak = peak_kb.map_or_else(
-            || "n/a".to_string(),
-            |kb| format!("{:.1}", kb as f64 / 1024.0),
-        );
-        let note = if code == Some(0) { "" } else { "  (failed)" };
+        let (wall, peak, ok) = long_run(arg, &out.path().join("run"));
+        let note = if ok { "" } else { "  (failed)" };
         println!("{name:<8} {wall:>10.2} {peak:>14}{note}");
     }
 }
@@ -281,6 +265,26 @@ fn peak_run(args: &[&str], out: &std::path::Path) -> (f64, Option<u64>, Option<i
         std::thread::sleep(std::time::Duration::from_millis(5));
     };
     (started.elapsed().as_secs_f64(), peak_kb, code)
+}
+
+/// One demo `run --no-plot` of `span` as a whole process: wall time, s, peak RSS in MB (`n/a`
+/// where the system does not say) and whether it succeeded.
+fn long_run(span: &str, out: &std::path::Path) -> (f64, String, bool) {
+    let args = [
+        "run",
+        "--duration",
+        span,
+        "--no-plot",
+        "--quiet",
+        "--force",
+        "--out",
+    ];
+    let (wall, peak_kb, code) = peak_run(&args, out);
+    let peak = peak_kb.map_or_else(
+        || "n/a".to_string(),
+        |kb| format!("{:.1}", kb as f64 / 1024.0),
+    );
+    (wall, peak, code == Some(0))
 }
 
 /// Wall time of one whole `crankcharge` process with `args` then `out`, s (it must succeed).
@@ -400,25 +404,10 @@ fn figures(quick: bool) {
         unit: "×",
         decimals: 0,
     });
-    let (wall, peak_kb, code) = peak_run(
-        &[
-            "run",
-            "--duration",
-            "8h",
-            "--no-plot",
-            "--quiet",
-            "--force",
-            "--out",
-        ],
-        &dir,
-    );
-    let peak = peak_kb.map_or_else(
-        || "n/a".to_string(),
-        |kb| format!("{:.1} MB", kb as f64 / 1024.0),
-    );
-    let note = if code == Some(0) { "" } else { " (failed)" };
+    let (wall, peak, ok) = long_run("8h", &dir);
+    let note = if ok { "" } else { " (failed)" };
     let memory = format!(
-        "8-hour fast session (demo, `--no-plot`): peak RSS {peak}, wall {wall:.2} s (1 run){note}"
+        "8-hour fast session (demo, `--no-plot`): peak RSS {peak} MB, wall {wall:.2} s (1 run){note}"
     );
     if markdown {
         print_markdown(&rows, &memory);
