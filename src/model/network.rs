@@ -20,6 +20,9 @@ use crate::scenario::setup::Topology;
 const CURRENT_TOL_A: f64 = 1e-11;
 /// Samples used to look for a regulated operating point when the dropout edge is short of current.
 const FOLD_SAMPLES: usize = 8;
+/// Residual evaluations spent trying to prove that no regulated point lies before the dropout
+/// edge before falling back to the samples.
+const FOLD_PROOF_EVALS: usize = 4;
 
 /// What loads the input node.
 #[derive(Debug, Clone, Copy)]
@@ -399,8 +402,12 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     };
 
     if i_edge > 0.0 {
+        let last_sample = i_edge * (FOLD_SAMPLES - 1) as f64 / FOLD_SAMPLES as f64;
         let bracket = if g_reg(i_edge).0 >= 0.0 {
             Some((0.0, i_edge))
+        } else if target * num >= 0.0 && short_up_to(last_sample, FOLD_PROOF_EVALS, g_reg) {
+            // Short of current everywhere before the edge: the samples below would all fail.
+            None
         } else {
             // Short of current at the edge: a regulated point may still exist before the fold.
             let mut prev = 0.0;
@@ -735,6 +742,30 @@ fn floored_point(
     p.diode_v = src.diode_drop(p.generator_current_a);
     p.brush_v = src.generator.brush_drop(p.generator_current_a);
     p
+}
+
+/// Whether g(i) = i − F(i) is negative on all of [0, `upto`] for a nondecreasing F (decided by
+/// at most `max_evals` evaluations; false means undecided). Since g' = 1 − F' ≤ 1, g(a) < 0
+/// gives g(x) ≤ g(a) + (x − a) < 0 on [a, F(a)): the iteration a ← F(a) climbs from 0 to the
+/// first root of g, or past `upto` if there is none. Each step keeps a relative margin of 1e-9
+/// of F(a), far above the rounding of g, so a point the proof covers also evaluates negative.
+fn short_up_to(upto: f64, max_evals: usize, g: impl Fn(f64) -> (f64, f64)) -> bool {
+    let mut a = 0.0;
+    for _ in 0..max_evals {
+        let ga = g(a).0;
+        if !(ga < 0.0) {
+            return false;
+        }
+        let next = (a - ga) * (1.0 - 1e-9);
+        if next > upto {
+            return true;
+        }
+        if next <= a {
+            return false;
+        }
+        a = next;
+    }
+    false
 }
 
 /// Maximum of a unimodal `f` on [lo, hi] by golden-section search: (argmax, max).
