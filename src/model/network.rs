@@ -301,13 +301,14 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     let num = buck.cell_v(vo_target) + buck.catch_drop_v + target * buck.inductor_resistance_ohm;
     let c = buck.switch_drop_v + target * buck.switch_resistance_ohm - buck.catch_drop_v;
     let fixed = buck.quiescent_current_a + buck.switching_current_a(target);
-    let g_reg = |i: f64| {
-        let (v, slope) = src.node(i);
+    // The residual at generator current `i` with the source's node voltage and slope there.
+    let g_reg_at = |i: f64, (v, slope): (f64, f64)| {
         let den = (v - c).max(1e-12);
         let g = i - (target * num / den + fixed + oh.core_current_a(v));
         let dg = 1.0 - target * num / (den * den) * slope + oh.core_current_slope(v) * slope;
         (g, dg)
     };
+    let g_reg = |i: f64| g_reg_at(i, src.node(i));
 
     // Fast path from the open-circuit estimate. Each iterate linearises only the source,
     // v(i) ≈ v(x) − R_x·(i − x), and keeps the constant-power hyperbola exact: the next iterate is
@@ -401,9 +402,11 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         None => 0.0,
     };
 
+    // The source at the edge, shared by both branches' residuals there.
+    let edge_node = src.node(i_edge);
     if i_edge > 0.0 {
         let last_sample = i_edge * (FOLD_SAMPLES - 1) as f64 / FOLD_SAMPLES as f64;
-        let bracket = if g_reg(i_edge).0 >= 0.0 {
+        let bracket = if g_reg_at(i_edge, edge_node).0 >= 0.0 {
             Some((0.0, i_edge))
         } else if target * num >= 0.0 && short_up_to(last_sample, FOLD_PROOF_EVALS, g_reg) {
             // Short of current everywhere before the edge: the samples below would all fail.
@@ -433,8 +436,7 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
 
     // Dropout branch: duty at D_max, the converter passes what the input allows.
     let k_in = buck.max_duty + buck.switching_current_a(1.0);
-    let g_drop = |i: f64| {
-        let (v, slope) = src.node(i);
+    let g_drop_at = |i: f64, (v, slope): (f64, f64)| {
         let (ib, dib) = dropout_current(buck, term, v, target);
         let g = i - (k_in * ib + buck.quiescent_current_a + oh.core_current_a(v));
         (
@@ -442,7 +444,16 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
             1.0 + k_in * dib * slope + oh.core_current_slope(v) * slope,
         )
     };
-    let i = root_in(i_edge, i_cap.max(i_edge), i_edge, CURRENT_TOL_A, g_drop);
+    let g_drop = |i: f64| g_drop_at(i, src.node(i));
+    // root_in(i_edge, i_cap, …) with the residual at the edge taken from the node found there.
+    let hi = i_cap.max(i_edge);
+    let i = if g_drop_at(i_edge, edge_node).0 >= 0.0 {
+        i_edge
+    } else if g_drop(hi).0 <= 0.0 {
+        hi
+    } else {
+        newton_bracketed(i_edge, hi, i_edge, CURRENT_TOL_A, g_drop)
+    };
     let v = src.node_v(i);
     let (ib, _) = dropout_current(buck, term, v, target);
     let vo = term.v(ib).0;
