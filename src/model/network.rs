@@ -428,9 +428,9 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         if let Some((lo, hi)) = bracket {
             let x0 = (target * num / (src.emf_v - c).max(1e-12) + fixed).clamp(lo, hi);
             let i = root_in(lo, hi, x0, CURRENT_TOL_A, g_reg);
-            let v = src.node_v(i);
+            let (v, _, brush_v) = src.node_and_brush(i);
             let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
-            return buck_report(src, buck, i, v, d, target, vo_target, false);
+            return buck_report(src, buck, i, (v, brush_v), d, target, vo_target, false);
         }
     }
 
@@ -454,10 +454,10 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     } else {
         newton_bracketed(i_edge, hi, i_edge, CURRENT_TOL_A, g_drop)
     };
-    let v = src.node_v(i);
+    let (v, _, brush_v) = src.node_and_brush(i);
     let (ib, _) = dropout_current(buck, term, v, target);
     let vo = term.v(ib).0;
-    buck_report(src, buck, i, v, buck.max_duty, ib, vo, ib < target)
+    buck_report(src, buck, i, (v, brush_v), buck.max_duty, ib, vo, ib < target)
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -465,7 +465,7 @@ fn buck_report(
     src: &Source,
     buck: &BuckModel,
     i: f64,
-    v: f64,
+    (v, brush_v): (f64, f64),
     d: f64,
     ib: f64,
     vo: f64,
@@ -475,7 +475,7 @@ fn buck_report(
     switching_point(
         src,
         i,
-        (v, src.generator.brush_drop(i)),
+        (v, brush_v),
         (duty, d, dcm),
         ib,
         vo,
@@ -552,8 +552,8 @@ fn buck_boost_point(
     let fixed_at = |i: f64| iq + oh.core_current_a(src.node_v(i));
     if target <= 0.0 {
         let i = fixed_at(fixed_at(iq));
-        let v = src.node_v(i);
-        return bb_report(src, bb, i, v, 0.0, 0.0, term.v(0.0).0, false);
+        let (v, _, brush_v) = src.node_and_brush(i);
+        return bb_report(src, bb, i, (v, brush_v), 0.0, 0.0, term.v(0.0).0, false);
     }
     let vo = term.v(target).0;
     let b = bb.off_v(vo);
@@ -583,10 +583,10 @@ fn buck_boost_point(
     };
     if let Some((lo, hi)) = bracket {
         let i = root_in(lo, hi, lo, CURRENT_TOL_A, g_reg);
-        let v = src.node_v(i);
+        let (v, _, brush_v) = src.node_and_brush(i);
         let il = ((i + target - iq - oh.core_current_a(v)) / (1.0 + s)).max(target);
         let d = (1.0 - target / il).clamp(0.0, d_max);
-        return bb_report(src, bb, i, v, d, target, vo, false);
+        return bb_report(src, bb, i, (v, brush_v), d, target, vo, false);
     }
 
     // Dropout: duty at D_max; generator current i = (D + s)/(1 − D)·I_b + I_q + P_core/v.
@@ -606,10 +606,10 @@ fn buck_boost_point(
     // An upper bound: the core-loss current is at most P_core/CORE_LOSS_MIN_V.
     let i_hi = k_in * target + iq + oh.core_current_a(CORE_LOSS_MIN_V);
     let i = root_in(i_min.min(iq), i_hi, i_top.min(i_hi), CURRENT_TOL_A, g_drop);
-    let v = src.node_v(i);
+    let (v, _, brush_v) = src.node_and_brush(i);
     let ib = bb_dropout_current(bb, term, v, target);
     let vo = term.v(ib).0;
-    bb_report(src, bb, i, v, d_max, ib, vo, ib < target)
+    bb_report(src, bb, i, (v, brush_v), d_max, ib, vo, ib < target)
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -617,7 +617,7 @@ fn bb_report(
     src: &Source,
     bb: &BuckBoostModel,
     i: f64,
-    v: f64,
+    (v, brush_v): (f64, f64),
     d: f64,
     ib: f64,
     vo: f64,
@@ -627,7 +627,7 @@ fn bb_report(
     switching_point(
         src,
         i,
-        (v, src.generator.brush_drop(i)),
+        (v, brush_v),
         (duty, d, dcm),
         ib,
         vo,
@@ -656,7 +656,7 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
         (root_in(0.0, target, 0.5 * target, CURRENT_TOL_A, f), true)
     };
     let i = ib + iq;
-    let v = src.node_v(i);
+    let (v, _, brush_v) = src.node_and_brush(i);
     let vo = term.v(ib).0;
     NetworkPoint {
         generator_current_a: i,
@@ -673,7 +673,7 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
         battery_v: vo,
         dropout,
         diode_v: src.diode_drop(i),
-        brush_v: src.generator.brush_drop(i),
+        brush_v,
         losses: lin.losses(ib, v, vo),
     }
 }
@@ -740,9 +740,10 @@ fn floored_point(
     let Some((d, _, vo)) = at(ib) else {
         return full;
     };
+    let at_floor = (floor_v, src.generator.brush_drop(i_f));
     let mut p = match conv.topology {
-        Topology::BuckBoost => bb_report(src, conv.buck_boost, i_f, floor_v, d, ib, vo, false),
-        _ => buck_report(src, conv.buck, i_f, floor_v, d, ib, vo, false),
+        Topology::BuckBoost => bb_report(src, conv.buck_boost, i_f, at_floor, d, ib, vo, false),
+        _ => buck_report(src, conv.buck, i_f, at_floor, d, ib, vo, false),
     };
     // Close the input balance exactly at the trimmed current (the bisection leaves ≤ 1e-11 A).
     p.generator_current_a = match conv.topology {
