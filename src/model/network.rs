@@ -457,7 +457,16 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     let (v, _, brush_v) = src.node_and_brush(i);
     let (ib, _) = dropout_current(buck, term, v, target);
     let vo = term.v(ib).0;
-    buck_report(src, buck, i, (v, brush_v), buck.max_duty, ib, vo, ib < target)
+    buck_report(
+        src,
+        buck,
+        i,
+        (v, brush_v),
+        buck.max_duty,
+        ib,
+        vo,
+        ib < target,
+    )
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -765,7 +774,7 @@ fn short_up_to(upto: f64, max_evals: usize, g: impl Fn(f64) -> (f64, f64)) -> bo
     let mut a = 0.0;
     for _ in 0..max_evals {
         let ga = g(a).0;
-        if !(ga < 0.0) {
+        if ga.is_nan() || ga >= 0.0 {
             return false;
         }
         let next = (a - ga) * (1.0 - 1e-9);
@@ -815,5 +824,45 @@ fn peak_of(mut lo: f64, mut hi: f64, f: impl Fn(f64) -> f64) -> (f64, f64) {
         (a, fa)
     } else {
         (b, fb)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Residual of a constant-power load P fed from a Thevenin source (E, R): the current the
+    /// load asks at the terminal voltage E − R·i, minus i; F(i) = P/(E − R·i) rises with i.
+    fn thevenin(e: f64, r: f64, p: f64) -> impl Fn(f64) -> (f64, f64) {
+        move |i: f64| {
+            let v = e - r * i;
+            (i - p / v, 1.0 - p * r / (v * v))
+        }
+    }
+
+    // Common practice: a constant-power load P on a Thevenin source (E, R) draws i with
+    // R·i² − E·i + P = 0; the smaller root (E − √(E² − 4RP))/(2R) is the stable operating point,
+    // and there is none when E² < 4RP.
+    #[test]
+    fn the_proof_of_no_operating_point_stops_short_of_the_first_root() {
+        let (e, r): (f64, f64) = (12.0, 2.0);
+        for p in [1.0, 5.0, 10.0, 17.0, 17.9] {
+            let first = (e - (e * e - 4.0 * r * p).sqrt()) / (2.0 * r);
+            // Never claimed at or past the root, however many evaluations are allowed.
+            for upto in [first, 1.0001 * first, 2.0 * first] {
+                assert!(
+                    !short_up_to(upto, 1000, thevenin(e, r, p)),
+                    "P {p} upto {upto}"
+                );
+            }
+            // Decided below it, where the residual is negative throughout.
+            assert!(short_up_to(0.9 * first, 1000, thevenin(e, r, p)), "P {p}");
+        }
+        // Past the fold (E² < 4RP) no operating point exists: decided on the whole range where
+        // the source still has voltage, in a few evaluations when the load is well past it.
+        let p = 36.0;
+        assert!(short_up_to(0.99 * e / r, 8, thevenin(e, r, p)));
+        // Undecided within the budget is reported as such, not as a proof.
+        assert!(!short_up_to(0.99 * e / r, 1, thevenin(e, r, p)));
     }
 }
