@@ -445,14 +445,21 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         )
     };
     let g_drop = |i: f64| g_drop_at(i, src.node(i));
-    // root_in(i_edge, i_cap, …) with the residual at the edge taken from the node found there.
-    let hi = i_cap.max(i_edge);
-    let i = if g_drop_at(i_edge, edge_node).0 >= 0.0 {
+    // The upper end needs no evaluation: the battery current is at most the target and the
+    // core-loss current at most P_core/CORE_LOSS_MIN_V, so g_drop(i_cap) ≥ 0 and a margin far
+    // above rounding makes it positive.
+    let hi = (i_cap * (1.0 + 1e-9) + 1e-9).max(i_edge);
+    let (g_edge, dg_edge) = g_drop_at(i_edge, edge_node);
+    let i = if g_edge >= 0.0 {
         i_edge
-    } else if g_drop(hi).0 <= 0.0 {
-        hi
     } else {
-        newton_bracketed(i_edge, hi, i_edge, CURRENT_TOL_A, g_drop)
+        // Newton's first step from the edge, where the residual and its slope are known.
+        let x0 = if dg_edge > 0.0 {
+            i_edge - g_edge / dg_edge
+        } else {
+            i_edge
+        };
+        newton_bracketed(i_edge, hi, x0, CURRENT_TOL_A, g_drop)
     };
     let (v, _, brush_v) = src.node_and_brush(i);
     let (ib, _) = dropout_current(buck, term, v, target);
