@@ -20,6 +20,9 @@ use crate::scenario::setup::Topology;
 const CURRENT_TOL_A: f64 = 1e-11;
 /// Samples used to look for a regulated operating point when the dropout edge is short of current.
 const FOLD_SAMPLES: usize = 8;
+/// Residual evaluations spent trying to prove that no regulated point lies before the dropout
+/// edge before falling back to the samples.
+const FOLD_PROOF_EVALS: usize = 4;
 
 /// What loads the input node.
 #[derive(Debug, Clone, Copy)]
@@ -298,13 +301,14 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
     let num = buck.cell_v(vo_target) + buck.catch_drop_v + target * buck.inductor_resistance_ohm;
     let c = buck.switch_drop_v + target * buck.switch_resistance_ohm - buck.catch_drop_v;
     let fixed = buck.quiescent_current_a + buck.switching_current_a(target);
-    let g_reg = |i: f64| {
-        let (v, slope) = src.node(i);
+    // The residual at generator current `i` with the source's node voltage and slope there.
+    let g_reg_at = |i: f64, (v, slope): (f64, f64)| {
         let den = (v - c).max(1e-12);
         let g = i - (target * num / den + fixed + oh.core_current_a(v));
         let dg = 1.0 - target * num / (den * den) * slope + oh.core_current_slope(v) * slope;
         (g, dg)
     };
+    let g_reg = |i: f64| g_reg_at(i, src.node(i));
 
     // Fast path from the open-circuit estimate. Each iterate linearises only the source,
     // v(i) ≈ v(x) − R_x·(i − x), and keeps the constant-power hyperbola exact: the next iterate is
@@ -398,9 +402,15 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         None => 0.0,
     };
 
+    // The source at the edge, shared by both branches' residuals there.
+    let edge_node = src.node(i_edge);
     if i_edge > 0.0 {
-        let bracket = if g_reg(i_edge).0 >= 0.0 {
+        let last_sample = i_edge * (FOLD_SAMPLES - 1) as f64 / FOLD_SAMPLES as f64;
+        let bracket = if g_reg_at(i_edge, edge_node).0 >= 0.0 {
             Some((0.0, i_edge))
+        } else if target * num >= 0.0 && short_up_to(last_sample, FOLD_PROOF_EVALS, g_reg) {
+            // Short of current everywhere before the edge: the samples below would all fail.
+            None
         } else {
             // Short of current at the edge: a regulated point may still exist before the fold.
             let mut prev = 0.0;
@@ -418,16 +428,15 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
         if let Some((lo, hi)) = bracket {
             let x0 = (target * num / (src.emf_v - c).max(1e-12) + fixed).clamp(lo, hi);
             let i = root_in(lo, hi, x0, CURRENT_TOL_A, g_reg);
-            let v = src.node_v(i);
+            let (v, _, brush_v) = src.node_and_brush(i);
             let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
-            return buck_report(src, buck, i, v, d, target, vo_target, false);
+            return buck_report(src, buck, i, (v, brush_v), d, target, vo_target, false);
         }
     }
 
     // Dropout branch: duty at D_max, the converter passes what the input allows.
     let k_in = buck.max_duty + buck.switching_current_a(1.0);
-    let g_drop = |i: f64| {
-        let (v, slope) = src.node(i);
+    let g_drop_at = |i: f64, (v, slope): (f64, f64)| {
         let (ib, dib) = dropout_current(buck, term, v, target);
         let g = i - (k_in * ib + buck.quiescent_current_a + oh.core_current_a(v));
         (
@@ -435,11 +444,36 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
             1.0 + k_in * dib * slope + oh.core_current_slope(v) * slope,
         )
     };
-    let i = root_in(i_edge, i_cap.max(i_edge), i_edge, CURRENT_TOL_A, g_drop);
-    let v = src.node_v(i);
+    let g_drop = |i: f64| g_drop_at(i, src.node(i));
+    // The upper end needs no evaluation: the battery current is at most the target and the
+    // core-loss current at most P_core/CORE_LOSS_MIN_V, so g_drop(i_cap) ≥ 0 and a margin far
+    // above rounding makes it positive.
+    let hi = (i_cap * (1.0 + 1e-9) + 1e-9).max(i_edge);
+    let (g_edge, dg_edge) = g_drop_at(i_edge, edge_node);
+    let i = if g_edge >= 0.0 {
+        i_edge
+    } else {
+        // Newton's first step from the edge, where the residual and its slope are known.
+        let x0 = if dg_edge > 0.0 {
+            i_edge - g_edge / dg_edge
+        } else {
+            i_edge
+        };
+        newton_bracketed(i_edge, hi, x0, CURRENT_TOL_A, g_drop)
+    };
+    let (v, _, brush_v) = src.node_and_brush(i);
     let (ib, _) = dropout_current(buck, term, v, target);
     let vo = term.v(ib).0;
-    buck_report(src, buck, i, v, buck.max_duty, ib, vo, ib < target)
+    buck_report(
+        src,
+        buck,
+        i,
+        (v, brush_v),
+        buck.max_duty,
+        ib,
+        vo,
+        ib < target,
+    )
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -447,7 +481,7 @@ fn buck_report(
     src: &Source,
     buck: &BuckModel,
     i: f64,
-    v: f64,
+    (v, brush_v): (f64, f64),
     d: f64,
     ib: f64,
     vo: f64,
@@ -457,7 +491,7 @@ fn buck_report(
     switching_point(
         src,
         i,
-        (v, src.generator.brush_drop(i)),
+        (v, brush_v),
         (duty, d, dcm),
         ib,
         vo,
@@ -534,8 +568,8 @@ fn buck_boost_point(
     let fixed_at = |i: f64| iq + oh.core_current_a(src.node_v(i));
     if target <= 0.0 {
         let i = fixed_at(fixed_at(iq));
-        let v = src.node_v(i);
-        return bb_report(src, bb, i, v, 0.0, 0.0, term.v(0.0).0, false);
+        let (v, _, brush_v) = src.node_and_brush(i);
+        return bb_report(src, bb, i, (v, brush_v), 0.0, 0.0, term.v(0.0).0, false);
     }
     let vo = term.v(target).0;
     let b = bb.off_v(vo);
@@ -565,10 +599,10 @@ fn buck_boost_point(
     };
     if let Some((lo, hi)) = bracket {
         let i = root_in(lo, hi, lo, CURRENT_TOL_A, g_reg);
-        let v = src.node_v(i);
+        let (v, _, brush_v) = src.node_and_brush(i);
         let il = ((i + target - iq - oh.core_current_a(v)) / (1.0 + s)).max(target);
         let d = (1.0 - target / il).clamp(0.0, d_max);
-        return bb_report(src, bb, i, v, d, target, vo, false);
+        return bb_report(src, bb, i, (v, brush_v), d, target, vo, false);
     }
 
     // Dropout: duty at D_max; generator current i = (D + s)/(1 − D)·I_b + I_q + P_core/v.
@@ -588,10 +622,10 @@ fn buck_boost_point(
     // An upper bound: the core-loss current is at most P_core/CORE_LOSS_MIN_V.
     let i_hi = k_in * target + iq + oh.core_current_a(CORE_LOSS_MIN_V);
     let i = root_in(i_min.min(iq), i_hi, i_top.min(i_hi), CURRENT_TOL_A, g_drop);
-    let v = src.node_v(i);
+    let (v, _, brush_v) = src.node_and_brush(i);
     let ib = bb_dropout_current(bb, term, v, target);
     let vo = term.v(ib).0;
-    bb_report(src, bb, i, v, d_max, ib, vo, ib < target)
+    bb_report(src, bb, i, (v, brush_v), d_max, ib, vo, ib < target)
 }
 
 #[allow(clippy::too_many_arguments)]
@@ -599,7 +633,7 @@ fn bb_report(
     src: &Source,
     bb: &BuckBoostModel,
     i: f64,
-    v: f64,
+    (v, brush_v): (f64, f64),
     d: f64,
     ib: f64,
     vo: f64,
@@ -609,7 +643,7 @@ fn bb_report(
     switching_point(
         src,
         i,
-        (v, src.generator.brush_drop(i)),
+        (v, brush_v),
         (duty, d, dcm),
         ib,
         vo,
@@ -638,7 +672,7 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
         (root_in(0.0, target, 0.5 * target, CURRENT_TOL_A, f), true)
     };
     let i = ib + iq;
-    let v = src.node_v(i);
+    let (v, _, brush_v) = src.node_and_brush(i);
     let vo = term.v(ib).0;
     NetworkPoint {
         generator_current_a: i,
@@ -655,7 +689,7 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
         battery_v: vo,
         dropout,
         diode_v: src.diode_drop(i),
-        brush_v: src.generator.brush_drop(i),
+        brush_v,
         losses: lin.losses(ib, v, vo),
     }
 }
@@ -722,9 +756,10 @@ fn floored_point(
     let Some((d, _, vo)) = at(ib) else {
         return full;
     };
+    let at_floor = (floor_v, src.generator.brush_drop(i_f));
     let mut p = match conv.topology {
-        Topology::BuckBoost => bb_report(src, conv.buck_boost, i_f, floor_v, d, ib, vo, false),
-        _ => buck_report(src, conv.buck, i_f, floor_v, d, ib, vo, false),
+        Topology::BuckBoost => bb_report(src, conv.buck_boost, i_f, at_floor, d, ib, vo, false),
+        _ => buck_report(src, conv.buck, i_f, at_floor, d, ib, vo, false),
     };
     // Close the input balance exactly at the trimmed current (the bisection leaves ≤ 1e-11 A).
     p.generator_current_a = match conv.topology {
@@ -735,6 +770,30 @@ fn floored_point(
     p.diode_v = src.diode_drop(p.generator_current_a);
     p.brush_v = src.generator.brush_drop(p.generator_current_a);
     p
+}
+
+/// Whether g(i) = i − F(i) is negative on all of [0, `upto`] for a nondecreasing F (decided by
+/// at most `max_evals` evaluations; false means undecided). Since g' = 1 − F' ≤ 1, g(a) < 0
+/// gives g(x) ≤ g(a) + (x − a) < 0 on [a, F(a)): the iteration a ← F(a) climbs from 0 to the
+/// first root of g, or past `upto` if there is none. Each step keeps a relative margin of 1e-9
+/// of F(a), far above the rounding of g, so a point the proof covers also evaluates negative.
+fn short_up_to(upto: f64, max_evals: usize, g: impl Fn(f64) -> (f64, f64)) -> bool {
+    let mut a = 0.0;
+    for _ in 0..max_evals {
+        let ga = g(a).0;
+        if ga.is_nan() || ga >= 0.0 {
+            return false;
+        }
+        let next = (a - ga) * (1.0 - 1e-9);
+        if next > upto {
+            return true;
+        }
+        if next <= a {
+            return false;
+        }
+        a = next;
+    }
+    false
 }
 
 /// Maximum of a unimodal `f` on [lo, hi] by golden-section search: (argmax, max).
@@ -772,5 +831,45 @@ fn peak_of(mut lo: f64, mut hi: f64, f: impl Fn(f64) -> f64) -> (f64, f64) {
         (a, fa)
     } else {
         (b, fb)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// Residual of a constant-power load P fed from a Thevenin source (E, R): the current the
+    /// load asks at the terminal voltage E − R·i, minus i; F(i) = P/(E − R·i) rises with i.
+    fn thevenin(e: f64, r: f64, p: f64) -> impl Fn(f64) -> (f64, f64) {
+        move |i: f64| {
+            let v = e - r * i;
+            (i - p / v, 1.0 - p * r / (v * v))
+        }
+    }
+
+    // Common practice: a constant-power load P on a Thevenin source (E, R) draws i with
+    // R·i² − E·i + P = 0; the smaller root (E − √(E² − 4RP))/(2R) is the stable operating point,
+    // and there is none when E² < 4RP.
+    #[test]
+    fn the_proof_of_no_operating_point_stops_short_of_the_first_root() {
+        let (e, r): (f64, f64) = (12.0, 2.0);
+        for p in [1.0, 5.0, 10.0, 17.0, 17.9] {
+            let first = (e - (e * e - 4.0 * r * p).sqrt()) / (2.0 * r);
+            // Never claimed at or past the root, however many evaluations are allowed.
+            for upto in [first, 1.0001 * first, 2.0 * first] {
+                assert!(
+                    !short_up_to(upto, 1000, thevenin(e, r, p)),
+                    "P {p} upto {upto}"
+                );
+            }
+            // Decided below it, where the residual is negative throughout.
+            assert!(short_up_to(0.9 * first, 1000, thevenin(e, r, p)), "P {p}");
+        }
+        // Past the fold (E² < 4RP) no operating point exists: decided on the whole range where
+        // the source still has voltage, in a few evaluations when the load is well past it.
+        let p = 36.0;
+        assert!(short_up_to(0.99 * e / r, 8, thevenin(e, r, p)));
+        // Undecided within the budget is reported as such, not as a proof.
+        assert!(!short_up_to(0.99 * e / r, 1, thevenin(e, r, p)));
     }
 }
