@@ -11,8 +11,7 @@ use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel,
 use crankcharge::model::jitter::JitterTrack;
 use crankcharge::model::network::{self, Source};
 use crankcharge::scenario::demo::SETUPS;
-use crankcharge::scenario::load::{InputKind, Override};
-use crankcharge::scenario::{load_scenario, Scenario, SourceText};
+use crankcharge::scenario::Scenario;
 use crankcharge::simulate::engine::{initial_discrete, initial_state};
 use crankcharge::simulate::plant::Plant;
 use crankcharge::simulate::state::{CRANK_SPEED, E_COGGING, GEN_SPEED, OP_INTEGRATOR, ROTOR_ANGLE};
@@ -1070,24 +1069,7 @@ const SLOW_MIDDLE: &str = r#"(
 /// The usb-phone setup under the [`SLOW_MIDDLE`] profile, with overrides.
 fn slow_usb_scenario(w: &WorkDir, sets: &[(&str, &str)]) -> Scenario {
     std::fs::write(w.path("slow.ron"), SLOW_MIDDLE).expect("profile");
-    let s = SourceText::resolve(
-        Some(setup_path("usb-phone").to_str().expect("utf-8")),
-        InputKind::Setup,
-    )
-    .expect("setup");
-    let p = SourceText::resolve(
-        Some(w.path("slow.ron").to_str().expect("utf-8")),
-        InputKind::Profile,
-    )
-    .expect("profile");
-    let ov: Vec<Override> = sets
-        .iter()
-        .map(|(k, v)| Override {
-            key: (*k).to_string(),
-            value: (*v).to_string(),
-        })
-        .collect();
-    load_scenario(&s, &p, &ov).expect("scenario")
+    load_paths(&setup_path("usb-phone"), &w.path("slow.ron"), sets)
 }
 
 #[test]

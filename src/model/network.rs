@@ -341,17 +341,7 @@ fn buck_point(src: &Source, buck: &BuckModel, target: f64, term: &Terminal) -> N
             if (g / dg).abs() <= CURRENT_TOL_A {
                 if v >= v_edge {
                     let d = buck.ccm_duty(v, vo_target, target).min(buck.max_duty);
-                    let (duty, dcm) = buck.reported_duty(v, vo_target, target, d);
-                    return switching_point(
-                        src,
-                        x,
-                        (v, brush_v),
-                        (duty, d, dcm),
-                        target,
-                        vo_target,
-                        false,
-                        buck.losses(d, target, v),
-                    );
+                    return buck_report(src, buck, x, (v, brush_v), d, target, vo_target, false);
                 }
                 below_edge = Some((x, v, slope));
                 break;
