@@ -161,22 +161,19 @@ fn matrix(quick: bool) {
                 let mut walls = Vec::new();
                 for _ in 0..repeats {
                     let started = Instant::now();
-                    let status = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
-                        .arg("run")
-                        .arg(s)
-                        .arg("--profile")
-                        .arg(p)
-                        .args([
-                            "--fidelity",
-                            fidelity,
-                            "--no-plot",
-                            "--quiet",
-                            "--force",
-                            "--out",
-                        ])
-                        .arg(&dir)
-                        .stdout(std::process::Stdio::null())
-                        .stderr(std::process::Stdio::null())
+                    let args = [
+                        "run",
+                        s.to_str().expect("utf-8 path"),
+                        "--profile",
+                        p.to_str().expect("utf-8 path"),
+                        "--fidelity",
+                        fidelity,
+                        "--no-plot",
+                        "--quiet",
+                        "--force",
+                        "--out",
+                    ];
+                    let status = crankcharge(&args, &dir)
                         .status()
                         .expect("spawn crankcharge");
                     walls.push(started.elapsed().as_secs_f64());
@@ -236,18 +233,22 @@ fn memory(quick: bool) {
     }
 }
 
+/// The real binary with `args` and then `out`, its output discarded.
+fn crankcharge(args: &[&str], out: &std::path::Path) -> std::process::Command {
+    let mut c = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"));
+    c.args(args)
+        .arg(out)
+        .stdout(std::process::Stdio::null())
+        .stderr(std::process::Stdio::null());
+    c
+}
+
 /// One whole `crankcharge` process with `args` and then `out`: its wall time, s, its peak
 /// resident memory, kB (VmHWM from /proc/PID/status, polled while it runs; None where there is
 /// no /proc), and its exit code.
 fn peak_run(args: &[&str], out: &std::path::Path) -> (f64, Option<u64>, Option<i32>) {
     let started = Instant::now();
-    let mut child = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
-        .args(args)
-        .arg(out)
-        .stdout(std::process::Stdio::null())
-        .stderr(std::process::Stdio::null())
-        .spawn()
-        .expect("spawn crankcharge");
+    let mut child = crankcharge(args, out).spawn().expect("spawn crankcharge");
     let status = format!("/proc/{}/status", child.id());
     let mut peak_kb: Option<u64> = None;
     let code = loop {
@@ -290,13 +291,7 @@ fn long_run(span: &str, out: &std::path::Path) -> (f64, String, bool) {
 /// Wall time of one whole `crankcharge` process with `args` then `out`, s (it must succeed).
 fn timed_run(args: &[&str], out: &std::path::Path) -> f64 {
     let started = Instant::now();
-    let status = std::process::Command::new(env!("CARGO_BIN_EXE_crankcharge"))
-        .args(args)
-        .arg(out)
-        .stdout(std::process::Stdio::null())
-        .stderr(std::process::Stdio::null())
-        .status()
-        .expect("spawn crankcharge");
+    let status = crankcharge(args, out).status().expect("spawn crankcharge");
     let wall = started.elapsed().as_secs_f64();
     assert!(status.success(), "crankcharge {args:?}: {status}");
     wall

@@ -434,6 +434,10 @@ fn a_buck_boost_does_not_enter_a_buck_mode_that_would_be_in_dropout() {
         20.0,
         &[("converter.switch_resistance_ohm", "3.13")],
     );
+    // No chatter: about as many mode changes as the shipped twin makes in the same 20 s (its
+    // start-up), where trading modes at one instant ran into the thousands.
+    let twin = session("demo-buck-boost", "steady", 20.0, &[]);
+    let (changes, twin_changes) = (s.result.stats.mode_changes, twin.result.stats.mode_changes);
+    assert!(changes <= 2 * twin_changes, "{changes} vs {twin_changes}");
     assert!(s.summary.energy_balance_error < 1e-3);
-    assert!(s.summary.in_regulation_fraction.is_some());
 }

@@ -74,10 +74,7 @@ pub fn due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Transiti
             }
             // UVLO, or sleep: an input below the battery (plus a buck's switch drop) cannot
             // charge it.
-            if p.net.input_v < c.uvlo_off_v
-                || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v + c.sleep_margin_v)
-                || usb_sleeps(plant, p, 0.0)
-            {
+            if input_too_low(plant, p) || usb_sleeps(plant, p, 0.0) {
                 return Some(Transition::Disable);
             }
             if !d.soft_done && y[SOFT_START] >= 1.0 {
@@ -179,13 +176,23 @@ fn nimh_end_due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Tra
 /// the input is algebraic, so without this look-ahead the start and the lock-out would follow
 /// each other at one instant. The averaged answer for such a source is the one kept: locked out.
 fn holds_on_start(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> bool {
+    !input_too_low(plant, &after(plant, Transition::Enable, p, y, d))
+}
+
+/// A running charger's input below its UVLO off threshold, or (one that sleeps) below the
+/// battery plus its switch drop, where it cannot charge.
+fn input_too_low(plant: &Plant, p: &Point) -> bool {
     let c = &plant.charger;
+    p.net.input_v < c.uvlo_off_v
+        || (c.sleeps_below_battery && p.net.input_v < p.net.battery_v + c.sleep_margin_v)
+}
+
+/// The operating point right after `tr` were applied at this instant (on copies of the state).
+fn after(plant: &Plant, tr: Transition, p: &Point, y: &State, d: &Discrete) -> Point {
     let mut ds = *d;
     let mut ys = *y;
-    apply(plant, Transition::Enable, p.t, p, &mut ys, &mut ds);
-    let q = plant.eval(p.t, &ys, &ds);
-    q.net.input_v >= c.uvlo_off_v
-        && !(c.sleeps_below_battery && q.net.input_v < q.net.battery_v + c.sleep_margin_v)
+    apply(plant, tr, p.t, p, &mut ys, &mut ds);
+    plant.eval(p.t, &ys, &ds)
 }
 
 /// Buck-boost: into buck mode when the buck duty for the present input, battery voltage and
@@ -212,10 +219,7 @@ fn buck_mode_due(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> Option<Tr
         if as_buck_duty(p) > limit - BUCK_MODE_HYSTERESIS {
             return None;
         }
-        let mut db = *d;
-        let mut yb = *y;
-        apply(plant, Transition::ToBuckMode, p.t, p, &mut yb, &mut db);
-        let q = plant.eval(p.t, &yb, &db);
+        let q = after(plant, Transition::ToBuckMode, p, y, d);
         (!q.net.dropout && as_buck_duty(&q) <= limit).then_some(Transition::ToBuckMode)
     }
 }

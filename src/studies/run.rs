@@ -57,22 +57,19 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
 /// Writes the contract files of one run into the staging folder.
 pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> anyhow::Result<()> {
     let events = s.summary.events();
-    let chart = || -> anyhow::Result<Option<crate::output::plot::Rendered>> {
-        if !plots {
-            return Ok(None);
-        }
+    let chart = || -> anyhow::Result<crate::output::plot::Rendered> {
         let title = format!("{} / {}", s.summary.setup, s.summary.profile);
         let op = &sc.profile.operator;
         let marks = crate::output::plot::SessionMarks {
             critical_power_w: Some(op.critical_power_w),
             w_prime_j: (op.w_prime_j > 0.0).then_some(op.w_prime_j),
         };
-        Ok(Some(crate::output::plot::session_chart_with(
+        Ok(crate::output::plot::session_chart_with(
             &s.result.trace,
             &events,
             &title,
             &marks,
-        )?))
+        )?)
     };
     let tables = || -> anyhow::Result<()> {
         staging.write("trace.csv", &csv::trace_csv(&s.result.trace)?)?;
@@ -80,9 +77,9 @@ pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> 
         staging.write("summary.json", &json::to_json(&s.summary)?)?;
         Ok(())
     };
-    // The chart is drawn while the tables are formatted and written (they share only inputs).
-    let chart = if plots {
-        std::thread::scope(|scope| -> anyhow::Result<_> {
+    let svg = if plots {
+        // The chart is drawn while the tables are formatted and written (they share only inputs).
+        let chart = std::thread::scope(|scope| -> anyhow::Result<_> {
             let drawing = scope.spawn(chart);
             let written = tables();
             let chart = drawing
@@ -90,17 +87,14 @@ pub fn write_run(staging: &Staging, sc: &Scenario, s: &Session, plots: bool) -> 
                 .map_err(|_| anyhow::anyhow!("drawing the session chart panicked"))?;
             written?;
             chart
-        })?
+        })?;
+        staging.write("session.png", &chart.png)?;
+        staging.write("session.svg", chart.svg.as_bytes())?;
+        Some(chart.svg)
     } else {
         tables()?;
         None
     };
-    let mut svg = None;
-    if let Some(chart) = chart {
-        staging.write("session.png", &chart.png)?;
-        staging.write("session.svg", chart.svg.as_bytes())?;
-        svg = Some(chart.svg);
-    }
     let page = super::pages::run_page(sc, &s.summary, svg.as_deref());
     staging.write("report.html", report::render(&page).as_bytes())?;
     Ok(())
