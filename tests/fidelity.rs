@@ -1217,3 +1217,110 @@ fn fast_and_detailed_agree_on_whole_sessions_of_every_setup_and_profile() {
     }
     assert!(failures.is_empty(), "{}", failures.join("\n"));
 }
+
+// ---------------------------------------------------------------------------------------------
+// Observation on a second core
+// ---------------------------------------------------------------------------------------------
+
+/// A single session takes its trace rows and watched conditions on a worker thread while the
+/// integrator goes on; that must change nothing. Every shipped setup, with steady cranking and
+/// with rests (time events), two minutes each, run both ways: the same trace, the same runs of
+/// watched conditions, the same ledger, solver counts and final state, to the bit.
+#[test]
+fn observing_on_a_second_core_changes_no_result() {
+    use crankcharge::model::jitter::JitterTrack;
+    use crankcharge::simulate::engine::{initial_state, simulate_with, SimOptions};
+    use crankcharge::simulate::plant::Plant;
+    use crankcharge::simulate::Method;
+
+    let mut compared = 0;
+    for setup in shipped_setups() {
+        for profile in ["steady", "sprint-and-rest"] {
+            let sc = load(
+                &setup,
+                &repo().join(format!("profiles/cranking/{profile}.ron")),
+                &[],
+            );
+            let duration_s = 120.0;
+            let jitter = JitterTrack::draw(&sc.profile.jitter, sc.profile.seed, duration_s);
+            let plant = Plant::with_fidelity(&sc.setup, &sc.profile, jitter, 0.0, Fidelity::Fast)
+                .expect("shipped plant");
+            let b = &sc.setup.battery;
+            let y0 = initial_state(
+                &plant,
+                b.soc_start,
+                b.temp_start_c.unwrap_or(sc.setup.ambient_c),
+            );
+            let opts = SimOptions {
+                duration_s,
+                fidelity: Fidelity::Fast,
+                trace_interval_s: 0.1,
+                rtol: sc.setup.solver.rtol,
+                atol: sc.setup.solver.atol,
+                max_step_s: sc.setup.solver.max_step_s,
+                method: Method::Dopri5,
+            };
+            let name = format!("{} / {profile}", sc.setup.name);
+            let inline = simulate_with(&plant, y0, &opts, None, false)
+                .unwrap_or_else(|e| panic!("{name}: {e}"));
+            let overlapped = simulate_with(&plant, y0, &opts, None, true)
+                .unwrap_or_else(|e| panic!("{name}: {e}"));
+            assert_eq!(
+                inline.trace.rows.len(),
+                overlapped.trace.rows.len(),
+                "{name}"
+            );
+            assert!(
+                inline.trace.rows.len() > 1000,
+                "{name}: a short trace proves little"
+            );
+            assert_eq!(inline.trace.rows, overlapped.trace.rows, "{name}: trace");
+            assert_eq!(inline.runs, overlapped.runs, "{name}: watched runs");
+            assert_eq!(inline.ledger, overlapped.ledger, "{name}: ledger");
+            assert_eq!(inline.stats, overlapped.stats, "{name}: solver counts");
+            assert_eq!(
+                inline.final_state, overlapped.final_state,
+                "{name}: final state"
+            );
+            compared += 1;
+        }
+    }
+    assert!(compared >= 16, "only {compared} sessions compared");
+}
+
+/// `trace.csv` is formatted in two halves on two cores when it is long; the bytes must be those
+/// of the rows written one after another. A 10-minute demo trace (6 001 rows, past the split)
+/// against the same rows written in short pieces (each below the split, on one thread).
+#[test]
+fn a_long_trace_is_written_the_same_on_two_cores() {
+    use crankcharge::analysis::trace::Trace;
+    use crankcharge::output::csv::trace_csv;
+
+    let sc = load(
+        &repo().join("profiles/setups/demo.ron"),
+        &steady_profile(),
+        &[],
+    );
+    let session = crate::common::session_of(&sc, None, Fidelity::Fast);
+    let rows = &session.result.trace.rows;
+    assert!(rows.len() > 6000, "{} rows", rows.len());
+    let whole = trace_csv(&session.result.trace).expect("trace csv");
+    let mut pieces: Vec<u8> = Vec::new();
+    for (k, chunk) in rows.chunks(500).enumerate() {
+        let piece = trace_csv(&Trace {
+            rows: chunk.to_vec(),
+        })
+        .expect("trace csv");
+        let body_from = if k == 0 {
+            0
+        } else {
+            piece.iter().position(|&b| b == b'\n').expect("header line") + 1
+        };
+        pieces.extend_from_slice(&piece[body_from..]);
+    }
+    assert_eq!(whole.len(), pieces.len());
+    assert!(
+        whole == pieces,
+        "split trace bytes differ from the rows written in order"
+    );
+}

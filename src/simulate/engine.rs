@@ -11,15 +11,14 @@ use ode_solvers::{Dopri5, OutputType, System};
 
 use crate::analysis::events::Event;
 pub use crate::analysis::ledger::{Ledger, SolverStats};
-use crate::analysis::trace::{Mode, Trace, TraceRow};
-use crate::units::rad_s_to_rpm;
+use crate::analysis::trace::Trace;
 
 pub use super::fidelity::Fidelity;
-use super::observe::{codes, Codes, Observer};
 use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
 use super::stiff::{self, Attempt, Implicit, Limits, StiffRhs};
 use super::transitions::{apply, due, Transition};
+use super::watcher::{self, bisect, row, Job, SegmentSteps, Sink, StepEnd, Watcher};
 
 /// Longest Dopri5 segment between restarts, s: the segment's continuous output is kept in memory
 /// until the segment is walked, so it is bounded. The fast fidelity steps in milliseconds; Dopri5
@@ -34,9 +33,6 @@ const MAX_SEGMENT_STEPS: usize = 4096;
 /// Located switching times (mode changes, which change the dynamics) are within this of the
 /// true crossing, s.
 const EVENT_TOL_S: f64 = 1e-7;
-/// Located changes of the watched conditions (reporting only: episodes and alerts, whose times
-/// are written to 0.1 ms) are within this of the true crossing, s.
-const WATCH_TOL_S: f64 = 1e-5;
 /// Most mode changes applied at one instant (a cascade longer than this is a modelling error).
 const MAX_CASCADE: usize = 8;
 /// Dopri5 step limit per segment.
@@ -191,14 +187,6 @@ pub struct SimResult {
     pub duration_s: f64,
 }
 
-/// One accepted step end.
-#[derive(Debug, Clone, Copy)]
-struct StepEnd {
-    t: f64,
-    y: State,
-    p: Point,
-}
-
 /// Why a segment stopped early.
 #[derive(Debug, Clone, Copy, PartialEq)]
 enum Stop {
@@ -320,13 +308,92 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     simulate_watched(plant, y0, opts, None)
 }
 
-/// Runs one session, storing the simulated time reached in `progress` after every segment.
+/// Runs one session, storing the simulated time reached in `progress` after every segment. A
+/// single Dopri5 session outside a thread pool observes on a second core (see [`simulate_with`]).
 pub fn simulate_watched(
     plant: &Plant,
     y0: State,
     opts: &SimOptions,
     progress: Option<&super::Progress>,
 ) -> Result<SimResult, SimError> {
+    let spare_core = rayon::current_thread_index().is_none()
+        && std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2);
+    simulate_with(
+        plant,
+        y0,
+        opts,
+        progress,
+        opts.method == Method::Dopri5 && spare_core,
+    )
+}
+
+/// Runs one session; with `overlap` (Dopri5 only) the trace rows and watched conditions are
+/// taken on a worker thread while the integrator goes on. Results are the same either way.
+pub fn simulate_with(
+    plant: &Plant,
+    y0: State,
+    opts: &SimOptions,
+    progress: Option<&super::Progress>,
+    overlap: bool,
+) -> Result<SimResult, SimError> {
+    let watcher = Watcher::new(plant, opts.trace_interval_s, opts.duration_s);
+    let (done, watcher) = if overlap && opts.method == Method::Dopri5 {
+        std::thread::scope(|s| {
+            let (tx, rx) = watcher::queue();
+            let worker = s.spawn(move || watcher::work(watcher, rx));
+            // The integrator's end of the queue is dropped when it returns; the worker then ends.
+            let done = integrate(plant, y0, opts, progress, Sink::Queue(tx)).map(|(d, _)| d);
+            match worker.join() {
+                Ok(w) => (done, w),
+                Err(panic) => std::panic::resume_unwind(panic),
+            }
+        })
+    } else {
+        match integrate(plant, y0, opts, progress, Sink::Inline(watcher)) {
+            Ok((d, Sink::Inline(w))) => (Ok(d), w),
+            Ok((_, Sink::Queue(_))) => unreachable!("an inline run keeps its watcher"),
+            Err(e) => return Err(e),
+        }
+    };
+    let Integrated { y, disc, stats } = done?;
+    let t_end = opts.duration_s;
+    let Watcher {
+        mut sampler,
+        observer,
+        ..
+    } = watcher;
+    let runs = observer.finish(t_end);
+    if sampler.rows.last().is_none_or(|r| r.time_s < t_end) {
+        let p = plant.eval(t_end, &y, &disc);
+        sampler.rows.push(row(plant, &p, &y, &disc));
+    }
+    let ledger = ledger_of(plant, &y0, &y);
+    Ok(SimResult {
+        trace: Trace { rows: sampler.rows },
+        runs,
+        ledger,
+        stats,
+        final_state: y,
+        duration_s: t_end,
+    })
+}
+
+/// Where the integration ended.
+struct Integrated {
+    y: State,
+    disc: Discrete,
+    stats: SolverStats,
+}
+
+/// The segment loop: integrates from y0 to the session's end, sending every accepted stretch and
+/// every mode change to `sink` for observation. Returns the end and the sink.
+fn integrate<'a>(
+    plant: &'a Plant,
+    y0: State,
+    opts: &SimOptions,
+    progress: Option<&super::Progress>,
+    sink: Sink<'a>,
+) -> Result<(Integrated, Sink<'a>), SimError> {
     let t_end = opts.duration_s;
     let mut time_events: Vec<f64> = plant
         .segment_boundaries()
@@ -344,29 +411,18 @@ pub fn simulate_watched(
         method: opts.method.as_str(),
         ..SolverStats::default()
     };
-    let mut observer = Observer::new();
-    let sampler = Sampler::new(opts.trace_interval_s, t_end);
     let evals = Cell::new(0u64);
-
-    cascade(plant, t, &mut y, &mut disc, &mut stats, None)?;
-    let p0 = plant.eval(t, &y, &disc);
-    let open = observer.current();
-    observer.set(
-        t,
-        &codes(plant, &p0, &y, &disc, &open),
-        plant,
-        (&p0, &y, &disc),
-    );
-    let mut h_guess: f64 = 0.0;
-    let mut next_event = 0usize;
-    let mut rec = Recorder::default();
 
     let mut run = Walk {
         plant,
-        sampler,
-        observer,
+        sink,
         progress: (0, 0.0),
     };
+    cascade(plant, t, &mut y, &mut disc, &mut stats, None)?;
+    run.mark(t, &disc, &y);
+    let mut h_guess: f64 = 0.0;
+    let mut next_event = 0usize;
+    let mut rec = Recorder::default();
     while t < t_end {
         if t_end - t <= 1e-9 * t_end.max(1.0) {
             break;
@@ -444,35 +500,10 @@ pub fn simulate_watched(
             stats.mode_changes += 1;
         }
         cascade(plant, t, &mut y, &mut disc, &mut stats, end.located)?;
-        let p = plant.eval(t, &y, &disc);
-        let open = run.observer.current();
-        run.observer.set(
-            t,
-            &codes(plant, &p, &y, &disc, &open),
-            plant,
-            (&p, &y, &disc),
-        );
+        run.mark(t, &disc, &y);
     }
-    let Walk {
-        mut sampler,
-        observer,
-        ..
-    } = run;
     stats.evaluations = evals.get();
-    let runs = observer.finish(t_end);
-    if sampler.rows.last().is_none_or(|r| r.time_s < t_end) {
-        let p = plant.eval(t_end, &y, &disc);
-        sampler.rows.push(row(plant, &p, &y, &disc));
-    }
-    let ledger = ledger_of(plant, &y0, &y);
-    Ok(SimResult {
-        trace: Trace { rows: sampler.rows },
-        runs,
-        ledger,
-        stats,
-        final_state: y,
-        duration_s: t_end,
-    })
+    Ok((Integrated { y, disc, stats }, run.sink))
 }
 
 /// Where a segment starts.
@@ -493,24 +524,20 @@ struct SegmentEnd {
     located: Option<Transition>,
 }
 
-/// Per-step bookkeeping shared by every integrator: trace sampling, watched conditions and the
-/// location of due mode changes, all from one accepted step and its dense output.
+/// Per-step bookkeeping shared by every integrator: the location of due mode changes, and the
+/// observation (trace rows, watched conditions) of every accepted stretch, sent to `sink`.
 struct Walk<'a> {
     plant: &'a Plant,
-    sampler: Sampler,
-    observer: Observer,
+    sink: Sink<'a>,
     /// Implicit step attempts since the last progress mark, and the time of that mark.
     progress: (u64, f64),
 }
 
 impl Walk<'_> {
-    /// Handles the accepted step (a, end.t]. If a mode change is due at its end, the switching
-    /// time is located by bisection on `dense` and the step is used only up to there; that time
-    /// and the transition found due there are returned (the segment ends; the caller supplies
-    /// the state to restart from). Trace rows are taken up to the end of the valid part, and
-    /// watched conditions are checked at every grid time and at the step end, each change located
-    /// between the two check points around it (a condition that comes and goes inside one long
-    /// step is still caught when it holds at a grid time).
+    /// Handles the accepted step (a, end.t] of an implicit method, observed at once with the
+    /// solver's own dense output. If a mode change is due at its end, the switching time is
+    /// located and the step is used only up to there; that time and the transition found due
+    /// there are returned (the segment ends; the caller supplies the state to restart from).
     fn step(
         &mut self,
         disc: &Discrete,
@@ -518,43 +545,41 @@ impl Walk<'_> {
         end: &StepEnd,
         dense: &dyn Fn(f64) -> State,
     ) -> Option<(f64, Option<Transition>)> {
-        let plant = self.plant;
-        let stop = due(plant, &end.p, &end.y, disc).map(|_| {
-            let ts = bisect(a, end.t, EVENT_TOL_S, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, disc);
-                due(plant, &pq, &yq, disc).is_some()
-            });
-            let yd = dense(ts);
-            (ts, due(plant, &plant.eval(ts, &yd, disc), &yd, disc))
-        });
-        let b = stop.map_or(end.t, |(ts, _)| ts);
-        let mut a = a;
-        if b > a {
-            let observer = &mut self.observer;
-            self.sampler.sample_until(b, |tq| {
-                let yq = dense(tq);
-                let pq = plant.eval(tq, &yq, disc);
-                if tq > a {
-                    watch(plant, disc, observer, a, tq, &yq, &pq, dense);
-                    a = tq;
-                }
-                observer.touch(plant, &pq, &yq, disc);
-                row(plant, &pq, &yq, disc)
-            });
-            let (yb, pb) = if b < end.t {
-                let yb = dense(b);
-                (yb, plant.eval(b, &yb, disc))
-            } else {
-                (end.y, end.p)
-            };
-            if b > a {
-                watch(plant, disc, &mut self.observer, a, b, &yb, &pb, dense);
-            }
-            self.observer.touch(plant, &pb, &yb, disc);
+        let stop = locate(self.plant, disc, a, end, dense);
+        if let Some(w) = self.sink.inline() {
+            w.observe(disc, a, stop.map_or(end.t, |(ts, _)| ts), end, dense);
         }
         stop
     }
+
+    /// The mode after the transitions applied at t.
+    fn mark(&mut self, t: f64, disc: &Discrete, y: &State) {
+        self.sink.send(Job::Mark {
+            t,
+            disc: *disc,
+            y: Box::new(*y),
+        });
+    }
+}
+
+/// The mode change due at the end of the accepted step (a, end.t], if any, located by bisection
+/// on `dense`: its time and the transition found due there.
+fn locate(
+    plant: &Plant,
+    disc: &Discrete,
+    a: f64,
+    end: &StepEnd,
+    dense: &dyn Fn(f64) -> State,
+) -> Option<(f64, Option<Transition>)> {
+    due(plant, &end.p, &end.y, disc).map(|_| {
+        let ts = bisect(a, end.t, EVENT_TOL_S, |tq| {
+            let yq = dense(tq);
+            let pq = plant.eval(tq, &yq, disc);
+            due(plant, &pq, &yq, disc).is_some()
+        });
+        let yd = dense(ts);
+        (ts, due(plant, &plant.eval(ts, &yd, disc), &yd, disc))
+    })
 }
 
 /// One segment with Dopri5 (ode_solvers): the whole segment is integrated with the callback
@@ -619,9 +644,10 @@ fn explicit_segment(
     }
     if rec.steps.is_empty() {
         // Nothing was stepped (cannot normally happen): hold the state to the segment end.
-        run.sampler.sample_until(t_stop, |tq| {
-            let pq = plant.eval(tq, &y, disc);
-            row(plant, &pq, &y, disc)
+        run.sink.send(Job::Hold {
+            disc: *disc,
+            y: Box::new(y),
+            t_stop,
         });
         return Ok(SegmentEnd {
             t: t_stop,
@@ -630,42 +656,55 @@ fn explicit_segment(
             located: None,
         });
     }
-    // Evaluate inside the model's range: grid times a few ulps past the last step must not fall
-    // back to a stale state.
-    let (lo_b, hi_b) = model.bounds();
-    let last_y = rec.last_state.unwrap_or(y);
-    let dense = |tq: f64| model.evaluate(tq.clamp(lo_b, hi_b)).unwrap_or(last_y);
-    let n = rec.steps.len();
-    let h_last = rec.steps[n - 1].t - if n >= 2 { rec.steps[n - 2].t } else { t };
-    let mut a = t;
-    let mut y_a = y;
-    for step in &rec.steps {
-        if let Some((ts, located)) = run.step(disc, a, step, &dense) {
+    let steps = std::mem::take(&mut rec.steps);
+    let n = steps.len();
+    let (a, y_a) = if n >= 2 {
+        (steps[n - 2].t, steps[n - 2].y)
+    } else {
+        (t, y)
+    };
+    let h_last = steps[n - 1].t - a;
+    let seg_steps = SegmentSteps {
+        disc: *disc,
+        t0: t,
+        steps,
+        model,
+        last_y: rec.last_state.unwrap_or(y),
+        cut: None,
+    };
+    // Only the last step can end with a mode change due: the callback stopped the solver there.
+    let dense = |tq: f64| seg_steps.dense(tq);
+    let located = locate(plant, disc, a, &seg_steps.steps[n - 1], &dense);
+    let end = match located {
+        Some((ts, located)) => {
             // The state at the switching time comes from one integration step from the last
             // accepted step, not from the dense output: the dense output interpolates each state
             // on its own, and restarting from it opened the energy ledger a little at every
             // event (8.9e-4 after 24 000 restarts at rtol 1e-4; 5.5e-6 this way).
             let ys = step_to(plant, disc, a, y_a, ts, opts, evals).unwrap_or_else(|| dense(ts));
-            return Ok(SegmentEnd {
+            SegmentEnd {
                 t: ts,
                 y: ys,
                 h_last: h_last.max(1e-6),
                 located,
-            });
+            }
         }
-        a = step.t;
-        y_a = step.y;
-    }
-    Ok(SegmentEnd {
-        t: if rec.stop == Some(Stop::Full) {
-            rec.steps[n - 1].t
-        } else {
-            t_stop
+        None => SegmentEnd {
+            t: if rec.stop == Some(Stop::Full) {
+                seg_steps.steps[n - 1].t
+            } else {
+                t_stop
+            },
+            y: seg_steps.last_y,
+            h_last: h_last.max(1e-6),
+            located: None,
         },
-        y: last_y,
-        h_last: h_last.max(1e-6),
-        located: None,
-    })
+    };
+    run.sink.send(Job::Segment(Box::new(SegmentSteps {
+        cut: located.map(|(ts, _)| ts),
+        ..seg_steps
+    })));
+    Ok(end)
 }
 
 /// One segment with an implicit method, one step at a time: each accepted step is checked
@@ -982,160 +1021,6 @@ fn step_to(
     );
     solver.integrate().ok()?;
     solver.y_out().last().copied().filter(all_finite)
-}
-
-/// Locates changes of the watched conditions inside (a, b] and applies them. Each condition's
-/// hysteresis depends on which runs are open, so the end codes are taken afresh after each change.
-#[allow(clippy::too_many_arguments)]
-fn watch(
-    plant: &Plant,
-    disc: &Discrete,
-    observer: &mut Observer,
-    a: f64,
-    b: f64,
-    yb: &State,
-    pb: &Point,
-    dense: &dyn Fn(f64) -> State,
-) {
-    let mut lo = a;
-    for _ in 0..WATCH_LIMIT {
-        let now: Codes = observer.current();
-        if codes(plant, pb, yb, disc, &now) == now {
-            return;
-        }
-        let tc = bisect(lo, b, WATCH_TOL_S, |tq| {
-            let yq = dense(tq);
-            let pq = plant.eval(tq, &yq, disc);
-            codes(plant, &pq, &yq, disc, &now) != now
-        });
-        let yc = dense(tc);
-        let pc = plant.eval(tc, &yc, disc);
-        observer.set(
-            tc,
-            &codes(plant, &pc, &yc, disc, &now),
-            plant,
-            (&pc, &yc, disc),
-        );
-        lo = tc;
-    }
-}
-
-/// Most separate condition changes located inside one step.
-const WATCH_LIMIT: usize = 16;
-
-/// Earliest time in (lo, hi] at which `pred` holds, given it holds at `hi` (bisection to `tol`).
-fn bisect(mut lo: f64, mut hi: f64, tol: f64, pred: impl Fn(f64) -> bool) -> f64 {
-    while hi - lo > tol {
-        let mid = 0.5 * (lo + hi);
-        if pred(mid) {
-            hi = mid;
-        } else {
-            lo = mid;
-        }
-    }
-    hi
-}
-
-/// Fixed-grid sampler: row k at k·Δt, plus the final time.
-struct Sampler {
-    dt: f64,
-    t_end: f64,
-    k: u64,
-    rows: Vec<TraceRow>,
-}
-
-impl Sampler {
-    fn new(dt: f64, t_end: f64) -> Self {
-        let n = (t_end / dt).ceil() as usize + 2;
-        Self {
-            dt,
-            t_end,
-            k: 0,
-            rows: Vec::with_capacity(n.min(10_000_000)),
-        }
-    }
-
-    /// Samples every grid time ≤ `b` not yet sampled.
-    fn sample_until(&mut self, b: f64, mut f: impl FnMut(f64) -> TraceRow) {
-        loop {
-            let tk = self.k as f64 * self.dt;
-            if tk > b + 1e-12 || tk > self.t_end + 1e-12 {
-                break;
-            }
-            let tq = tk.min(self.t_end);
-            let mut r = f(tq);
-            r.time_s = tq;
-            self.rows.push(r);
-            self.k += 1;
-        }
-    }
-}
-
-/// Mode word of a point.
-fn mode_of(plant: &Plant, p: &Point, d: &Discrete) -> Mode {
-    use crate::model::battery::li_ion::TempBand;
-    if !plant.has_converter() {
-        return Mode::Direct;
-    }
-    if !d.enabled || d.ov_shutdown {
-        return Mode::Lockout;
-    }
-    if plant.usb.is_some() && !d.device_on && d.soft_done {
-        return Mode::DeviceOff;
-    }
-    if d.stage == Stage::Done {
-        return Mode::Done;
-    }
-    if d.stage == Stage::Trickle {
-        return Mode::Trickle;
-    }
-    if matches!(p.band, TempBand::TooCold | TempBand::TooHot) {
-        return Mode::TempHold;
-    }
-    if p.net.dropout && p.target_current_a > 0.0 {
-        return Mode::Dropout;
-    }
-    if !d.soft_done {
-        return Mode::SoftStart;
-    }
-    if d.stage == Stage::Float {
-        return Mode::Float;
-    }
-    if p.cv_active {
-        Mode::Cv
-    } else {
-        Mode::Cc
-    }
-}
-
-/// A trace row from a point.
-fn row(plant: &Plant, p: &Point, y: &State, d: &Discrete) -> TraceRow {
-    TraceRow {
-        time_s: p.t,
-        crank_rpm: rad_s_to_rpm(p.crank_speed),
-        target_rpm: p.target_rpm,
-        generator_rpm: rad_s_to_rpm(p.gen_speed),
-        emf_v: p.emf_v,
-        generator_current_a: p.net.generator_current_a,
-        input_v: p.net.input_v,
-        duty: p.net.duty,
-        output_v: p.bus.bus_v,
-        battery_v: p.net.battery_v,
-        battery_current_a: p.net.battery_current_a,
-        soc: y[SOC],
-        battery_temp_c: y[BATTERY_TEMP],
-        operator_power_w: p.operator_power_w,
-        mode: mode_of(plant, p, d),
-        charge_limit_v: p.charge_limit_v,
-        operator_torque_n_m: p.operator_torque_n_m,
-        w_prime_balance_j: y[W_PRIME],
-        winding_temp_c: y[WINDING_TEMP],
-        in_regulation: p.in_regulation,
-        bus_v: p.bus.bus_v,
-        bus_current_a: p.bus.bus_current_a,
-        operator_mean_power_w: p.operator_mean_power_w,
-        junction_temp_c: y[JUNCTION_TEMP],
-    }
 }
 
 /// Ledger totals from the initial and final states.

@@ -12,6 +12,7 @@ pub mod stiff;
 pub mod transitions;
 pub mod usb_port;
 pub mod usb_rules;
+mod watcher;
 
 pub use engine::{simulate, simulate_watched, Fidelity, Method, SimError, SimOptions, SimResult};
 pub use progress::Progress;
