@@ -342,6 +342,8 @@ pub fn simulate_watched(
     let mut t = 0.0;
     let mut stats = SolverStats {
         method: opts.method.as_str(),
+        rtol: opts.rtol,
+        max_step_s: opts.max_step_s,
         ..SolverStats::default()
     };
     let mut observer = Observer::new();
