@@ -100,7 +100,8 @@ pub struct SolverStats {
     /// Times the session was run again at a tighter tolerance because its energy ledger did not
     /// close at the setup's (0 or 1; `studies::session::run_session_watched`).
     pub tolerance_reruns: u32,
-    /// The integration that was run again: its tolerance and ledger closure (None without a
-    /// rerun).
+    /// The integration that was run again: its tolerance and ledger closure (absent without a
+    /// rerun: a `null` in `summary.json` would read as a non-finite figure).
+    #[serde(skip_serializing_if = "Option::is_none")]
     pub first_attempt: Option<super::invariants::Attempt>,
 }
