@@ -150,6 +150,12 @@ fn every_shipped_setup_closes_its_ledger_and_the_fidelities_agree_on_20_s() {
                 "{n} ({}): ledger closes to {e}",
                 s.summary.fidelity
             );
+            // At the shipped tolerance, without the automatic rerun at a tighter one.
+            assert_eq!(
+                s.summary.solver.tolerance_reruns, 0,
+                "{n} ({}): {:?}",
+                s.summary.fidelity, s.summary.solver
+            );
         }
         let qf = fast.summary.charge_delivered_ah;
         let qd = detailed.summary.charge_delivered_ah;
@@ -170,6 +176,10 @@ fn every_shipped_setup_runs_a_full_session_in_the_fast_fidelity() {
             s.summary.energy_balance_error < 1e-3,
             "{n}: full session ledger {}",
             s.summary.energy_balance_error
+        );
+        assert_eq!(
+            s.summary.solver.tolerance_reruns, 0,
+            "{n}: closes at the shipped tolerance"
         );
         assert!(s.summary.charge_delivered_ah > 0.0, "{n}: delivers charge");
         assert!(

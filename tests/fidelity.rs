@@ -590,13 +590,19 @@ fn fast_and_detailed_agree_on_every_shipped_setup() {
             fast.in_regulation_fraction,
             det.in_regulation_fraction
         );
-        // Requirement (DESIGN §3, issue 3): both energy ledgers close under 0.1 %.
+        // Requirement (DESIGN §3, issue 3): both energy ledgers close under 0.1 %, at the
+        // shipped tolerance (no automatic rerun at a tighter one).
         for s in [fast, det] {
             assert!(
                 s.energy_balance_error < 1e-3,
                 "{name} ({}): energy_balance_error {}",
                 s.fidelity,
                 s.energy_balance_error
+            );
+            assert_eq!(
+                s.solver.tolerance_reruns, 0,
+                "{name} ({}): {:?}",
+                s.fidelity, s.solver
             );
         }
     }
@@ -1124,6 +1130,8 @@ fn the_energy_ledger_stays_closed_through_lead_acid_lockouts() {
     // above), and (almost) no step had to be retaken for energy.
     assert!(st.explicit_bridges <= 3, "{st:?}");
     assert!(st.energy_retries <= 5, "{st:?}");
+    // All of it at the setup's tolerance, not after the automatic rerun at a tighter one.
+    assert_eq!(st.tolerance_reruns, 0, "{st:?}");
 }
 
 // ---------------------------------------------------------------------------------------------

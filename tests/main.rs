@@ -10,6 +10,7 @@ mod machines_storage;
 mod measured;
 mod messages;
 mod report_browser;
+mod rerun;
 mod run_cli;
 mod safety;
 mod search_cli;

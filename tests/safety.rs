@@ -448,9 +448,17 @@ fn finding_3_a_tolerance_too_loose_for_the_ledger_is_refused_with_its_range() {
             "o",
         ],
     );
-    let err = summary(&wd, "o")["energy_balance_error"].as_f64().unwrap();
+    let s = summary(&wd, "o");
+    let err = s["energy_balance_error"].as_f64().unwrap();
     // Source: DESIGN.md §3, the ledger's closure bound (0.1 %).
     assert!(err < 1e-3, "ledger {err}");
+    // ... at that tolerance itself, not after the automatic rerun at a tighter one.
+    assert_eq!(
+        s["solver"]["tolerance_reruns"].as_u64(),
+        Some(0),
+        "{}",
+        s["solver"]
+    );
 }
 
 // 4. Interrupted runs leave no staging folder, and stale ones are cleaned.

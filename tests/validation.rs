@@ -2457,6 +2457,8 @@ fn energy_balance_every_shipped_setup_steady_120_s() {
             "{name}: closure {}",
             s.summary.energy_balance_error
         );
+        // ... at the shipped tolerance, not after the automatic rerun at a tighter one.
+        assert_eq!(s.summary.solver.tolerance_reruns, 0, "{name}");
         let sum = l.kinetic_change_j
             + l.drive_loss_j
             + l.friction_j
@@ -2501,6 +2503,13 @@ fn energy_balance_every_shipped_setup_every_profile_60_s() {
                 setup.display(),
                 profile.display(),
                 s.summary.energy_balance_error
+            );
+            assert_eq!(
+                s.summary.solver.tolerance_reruns,
+                0,
+                "{} × {}: closes at the shipped tolerance",
+                setup.display(),
+                profile.display()
             );
         }
     }

@@ -28,10 +28,39 @@ pub enum Broken {
     Ledger { error: f64, bound: f64 },
     #[error("the figure `{figure}` is not finite ({value}); no result written")]
     NonFinite { figure: String, value: String },
+    /// The ledger stayed open when the session was run again once at a tighter tolerance.
+    #[error(
+        "the energy ledger closes only to {:.2e} at solver.rtol {:e} and solver.max_step_s {} s, \
+         and only to {:.2e} when run again at {:e} and {} s, past its bound {bound:e} (a closure \
+         that falls with the tolerance may close at a tighter one still; one that does not points \
+         at an energy flow the ledger misses; no result written)",
+        first.energy_balance_error,
+        first.rtol,
+        first.max_step_s,
+        rerun.energy_balance_error,
+        rerun.rtol,
+        rerun.max_step_s
+    )]
+    LedgerAfterRerun {
+        first: Attempt,
+        rerun: Attempt,
+        bound: f64,
+    },
 }
 
-/// Checks a session's trace, final SOC, ledger closure and its figures (any serialisable
-/// summary: every number in it must be finite).
+/// One integration of a session whose ledger did not close: its tolerance and its closure.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct Attempt {
+    /// Relative tolerance, and the largest step, s.
+    pub rtol: f64,
+    pub max_step_s: f64,
+    /// Relative closure error of the energy ledger.
+    pub energy_balance_error: f64,
+}
+
+/// Checks a session's trace, final SOC, figures (any serialisable summary: every number in it
+/// must be finite) and ledger closure, in that order: a [`Broken::Ledger`] means the closure is
+/// the only law the result breaks (integration error, which a tighter tolerance reduces).
 pub fn check<S: Serialize>(
     trace: &Trace,
     soc_end: f64,
@@ -52,15 +81,16 @@ pub fn check<S: Serialize>(
             t_s: duration_s,
         });
     }
+    if let Some((figure, value)) = non_finite(figures) {
+        return Err(Broken::NonFinite { figure, value });
+    }
     if ledger_error.is_nan() || ledger_error > LEDGER_BOUND {
         return Err(Broken::Ledger {
             error: ledger_error,
             bound: LEDGER_BOUND,
         });
     }
-    non_finite(figures).map_or(Ok(()), |(figure, value)| {
-        Err(Broken::NonFinite { figure, value })
-    })
+    Ok(())
 }
 
 /// The first non-finite number of a serialisable value, with its field name: the value is written
@@ -159,5 +189,23 @@ mod tests {
             Err(Broken::Ledger { .. })
         ));
         assert_eq!(check(&trace, 1.0, 600.0, 9e-4, &0.0), Ok(()));
+    }
+
+    #[test]
+    fn an_open_ledger_is_reported_as_such_only_when_every_figure_is_finite() {
+        // The session reruns a `Ledger` result at a tighter tolerance: it must mean that the
+        // closure is the one law broken.
+        let trace = Trace { rows: Vec::new() };
+        let bad = Inner {
+            bad_value: f64::NAN,
+        };
+        assert!(matches!(
+            check(&trace, 0.5, 600.0, 7e-3, &bad),
+            Err(Broken::NonFinite { .. })
+        ));
+        assert!(matches!(
+            check(&trace, 0.5, 600.0, 7e-3, &Inner { bad_value: 1.0 }),
+            Err(Broken::Ledger { .. })
+        ));
     }
 }

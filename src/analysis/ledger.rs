@@ -93,4 +93,15 @@ pub struct SolverStats {
     /// Integration method (`dopri5`, `radau5`); after the figures that came first, so their
     /// order in `summary.json` is unchanged.
     pub method: &'static str,
+    /// The relative tolerance and the largest step, s, this result was integrated with: the
+    /// setup's, or the tighter pair of a rerun.
+    pub rtol: f64,
+    pub max_step_s: f64,
+    /// Times the session was run again at a tighter tolerance because its energy ledger did not
+    /// close at the setup's (0 or 1; `studies::session::run_session_watched`).
+    pub tolerance_reruns: u32,
+    /// The integration that was run again: its tolerance and ledger closure (absent without a
+    /// rerun: a `null` in `summary.json` would read as a non-finite figure).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub first_attempt: Option<super::invariants::Attempt>,
 }

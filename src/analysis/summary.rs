@@ -246,7 +246,7 @@ pub fn battery_peak(trace: &Trace) -> (f64, f64) {
 
 /// Names of the scalar summary keys, in order (CSV columns of the studies). Wall time is left out
 /// so that study files are identical for identical inputs.
-pub const SCALAR_KEYS: [&str; 36] = [
+pub const SCALAR_KEYS: [&str; 37] = [
     "duration_s",
     "fidelity",
     "soc_start",
@@ -283,6 +283,7 @@ pub const SCALAR_KEYS: [&str; 36] = [
     "marginal_figures",
     "overrides",
     "peak_instant_operator_power_w",
+    "tolerance_reruns",
 ];
 
 impl Summary {
@@ -332,6 +333,7 @@ impl Summary {
             self.marginal_figures().join("+"),
             self.overrides.join(";"),
             fmt(self.peak_instant_operator_power_w),
+            self.solver.tolerance_reruns.to_string(),
         ]
     }
 

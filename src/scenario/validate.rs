@@ -67,6 +67,12 @@ impl Checker {
 /// 3e-4 and 1.4e-3 at 5e-4, against the 1e-3 bound every result is held to.
 pub const MAX_RTOL: f64 = 2e-4;
 
+/// Tightest relative tolerance accepted (the floor of a session's automatic rerun too).
+pub const MIN_RTOL: f64 = 1e-10;
+
+/// Shortest largest step accepted, s (the floor of a session's automatic rerun too).
+pub const MIN_MAX_STEP_S: f64 = 1e-4;
+
 /// The ordered lead-acid settings, with their defaults filled in: the compensation's clamp
 /// (min ≤ max; the clamp would otherwise have no valid value) and float at or below absorption.
 fn lead_acid_order(c: &mut Checker, b: &super::setup::Battery) {
@@ -857,13 +863,13 @@ pub fn setup(s: &Setup) -> Vec<Violation> {
     alerts(&mut c, &s.alerts);
     let so = &s.solver;
     c.rule(
-        so.rtol.is_finite() && (1e-10..=MAX_RTOL).contains(&so.rtol),
+        so.rtol.is_finite() && (MIN_RTOL..=MAX_RTOL).contains(&so.rtol),
         "solver.rtol",
         format!("{}", so.rtol),
         "1e-10 ..= 2e-4 (looser tolerances let the energy ledger drift past its 0.1 % bound)",
     );
     c.range("solver.atol", so.atol, 1e-12, 1e-2);
-    c.range("solver.max_step_s", so.max_step_s, 1e-4, 1.0);
+    c.range("solver.max_step_s", so.max_step_s, MIN_MAX_STEP_S, 1.0);
     c.range("solver.trace_interval_s", so.trace_interval_s, 1e-3, 60.0);
     c.out
 }

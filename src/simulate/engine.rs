@@ -409,6 +409,8 @@ fn integrate<'a>(
     let mut t = 0.0;
     let mut stats = SolverStats {
         method: opts.method.as_str(),
+        rtol: opts.rtol,
+        max_step_s: opts.max_step_s,
         ..SolverStats::default()
     };
     let evals = Cell::new(0u64);

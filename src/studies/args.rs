@@ -94,10 +94,14 @@ pub fn session_with_bar(sc: &Scenario, rs: &RunSettings, quiet: bool) -> Result<
 }
 
 /// Failures by exit code: bad input 2, a failed or law-breaking simulation 3.
-fn classify(sc: &Scenario, r: Result<Session, SessionError>) -> Result<Session, Failure> {
+pub(super) fn classify(
+    sc: &Scenario,
+    r: Result<Session, SessionError>,
+) -> Result<Session, Failure> {
     r.map_err(|e| match e {
         SessionError::Setup(m) => Failure::Input(anyhow!("{}: {m}", sc.setup_source.name)),
         SessionError::Sim(s) => Failure::Sim(anyhow!("simulation failed: {s}")),
         SessionError::Broken(b) => Failure::Sim(anyhow!("simulation failed: {b}")),
+        e @ SessionError::Rerun { .. } => Failure::Sim(anyhow!("simulation failed: {e}")),
     })
 }

@@ -12,6 +12,7 @@ use anyhow::anyhow;
 use clap::Args;
 use rayon::prelude::*;
 
+use super::digest::reruns_note;
 use super::outcome::{parse_duration, say, Failure, EXIT_OK, EXIT_SIM};
 use crate::analysis::summary::{Summary, SCALAR_KEYS};
 use crate::output::csv::table_csv;
@@ -199,6 +200,11 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
     let summaries: Vec<&Summary> = done.iter().map(|(_, s)| &s.summary).collect();
     let (th, tr, _) = summary_rows(&summaries);
     let scenarios: Vec<&Scenario> = done.iter().map(|(j, _)| &j.scenario).collect();
+    let reruns = summaries
+        .iter()
+        .filter(|m| m.solver.tolerance_reruns > 0)
+        .count();
+    let rerun_note = reruns_note(reruns, summaries.len(), "compare.csv");
     let page = pages::study_page(
         &scenarios,
         "crankcharge compare",
@@ -208,6 +214,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         failed
             .iter()
             .map(|f| format!("Failed and left out: {f}"))
+            .chain(rerun_note.iter().map(|n| format!("Note: {n}.")))
             .collect(),
     );
     staging
@@ -223,6 +230,7 @@ pub fn run(a: &CompareArgs) -> Result<i32, Failure> {
         done.len(),
         dir.display()
     ));
+    super::progress::note(rerun_note);
     if failed.is_empty() {
         Ok(EXIT_OK)
     } else {

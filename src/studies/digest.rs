@@ -56,3 +56,49 @@ pub fn replay_line(r: &crate::analysis::summary::ReplaySummary) -> String {
         r.log, r.samples, r.span_s, r.follows
     )
 }
+
+/// The energy ledger's closure, with the tolerance it was reached at when the session was run
+/// again (the run's line and its report).
+pub fn ledger_digest(m: &Summary) -> String {
+    let s = &m.solver;
+    match s.first_attempt {
+        Some(f) => format!(
+            "closes to {:.2e} at solver.rtol {:e} and solver.max_step_s {} s, run again once after \
+             it closed only to {:.2e} at {:e} and {} s",
+            m.energy_balance_error, s.rtol, s.max_step_s, f.energy_balance_error, f.rtol, f.max_step_s
+        ),
+        None => format!("closes to {:.2e}", m.energy_balance_error),
+    }
+}
+
+/// The note a run prints on stderr when its session was run again at a tighter tolerance.
+pub fn rerun_note(m: &Summary) -> Option<String> {
+    let s = &m.solver;
+    s.first_attempt.map(|f| {
+        format!(
+            "the energy ledger closed only to {:.2e} at solver.rtol {:e}, past its bound {:e}; the \
+             session was run again at solver.rtol {:e} and solver.max_step_s {} s, where it closes \
+             to {:.2e}, and that result is written (summary.json: solver.tolerance_reruns)",
+            f.energy_balance_error,
+            f.rtol,
+            crate::analysis::invariants::LEDGER_BOUND,
+            s.rtol,
+            s.max_step_s,
+            m.energy_balance_error
+        )
+    })
+}
+
+/// The note a study of many sessions prints on stderr when some were run again at a tighter
+/// tolerance: how many of how many, and the column that marks them in `table`.
+pub fn reruns_note(reruns: usize, sessions: usize, table: &str) -> Option<String> {
+    (reruns > 0).then(|| {
+        format!(
+            "{reruns} of {sessions} session(s) were run again once at a tighter tolerance \
+             (solver.rtol / {}, solver.max_step_s / {}) because their energy ledger did not close \
+             at the setup's (column tolerance_reruns in {table})",
+            super::session::RERUN_RTOL_DIVISOR,
+            super::session::RERUN_STEP_DIVISOR
+        )
+    })
+}

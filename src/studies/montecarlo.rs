@@ -188,6 +188,9 @@ pub struct Report {
     pub marginal_probability: f64,
     /// Fraction of completed runs with verdict `ok`.
     pub ok_probability: f64,
+    /// Completed runs that were run again at a tighter tolerance because their energy ledger did
+    /// not close at the setup's (`tolerance_reruns` in `runs.csv`).
+    pub tolerance_reruns: usize,
     /// Spreads used for the operator draws (standard deviations).
     pub spread_critical_power_w: f64,
     pub spread_w_prime_j: f64,
@@ -312,6 +315,10 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         regulation_failure_probability_95: regulated.then(|| ci(fails)),
         marginal_probability: marginal as f64 / n as f64,
         ok_probability: ok as f64 / n as f64,
+        tolerance_reruns: done
+            .iter()
+            .filter(|m| m.solver.tolerance_reruns > 0)
+            .count(),
         spread_critical_power_w: spread.critical_power_w,
         spread_w_prime_j: spread.w_prime_j,
         spread_cadence_rpm: spread.cadence_rpm,
@@ -369,6 +376,7 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
             f.run, f.seed, f.error
         )
     }));
+    notes.extend(rerun_note(&report).map(|n| format!("Note: {n}.")));
     let page = pages::study_page(
         &[&sc],
         "crankcharge montecarlo",
@@ -413,6 +421,12 @@ fn print_report(r: &Report, dir: &std::path::Path) {
         }
     }
     say(&format!("  wrote {}", dir.display()));
+    super::progress::note(rerun_note(r));
+}
+
+/// The note on the runs that were run again at a tighter tolerance (None when none was).
+fn rerun_note(r: &Report) -> Option<String> {
+    super::digest::reruns_note(r.tolerance_reruns, r.runs, "runs.csv")
 }
 
 /// Columns of the spread table.

@@ -138,7 +138,7 @@ pub fn run_page(sc: &Scenario, m: &Summary, svg: Option<&str>) -> Page {
         ),
         (
             "energy ledger".into(),
-            format!("closes to {:.2e}", m.energy_balance_error),
+            super::digest::ledger_digest(m),
         ),
     ]);
     if let Some(u) = &m.usb {

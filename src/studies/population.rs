@@ -37,7 +37,7 @@ const fn fig(name: &'static str, better: Sense, about: &'static str) -> FigureDe
 }
 
 /// The figures, in `points.csv` column order.
-pub const FIGURES: [FigureDef; 18] = [
+pub const FIGURES: [FigureDef; 19] = [
     fig("operators", Sense::Max, "operators whose session completed"),
     fig("runs_failed", Sense::Min, "operators whose session failed (left out of the figures)"),
     fig("p_overcharge", Sense::Min, "share of operators with at least one overcharge row"),
@@ -75,6 +75,11 @@ pub const FIGURES: [FigureDef; 18] = [
         "generator_mass_proxy_n2m2_per_w",
         Sense::Min,
         "generator size proxy k_t²/R (the motor constant squared), N²·m²/W",
+    ),
+    fig(
+        "tolerance_reruns",
+        Sense::Min,
+        "operators whose session was run again at a tighter tolerance (its energy ledger did not close at the setup's)",
     ),
 ];
 
@@ -116,6 +121,7 @@ struct RunFigures {
     energy_wh: f64,
     power_w: f64,
     regulation_cadence_rpm: Option<f64>,
+    rerun: bool,
 }
 
 /// Runs `operators` sessions of a scenario (operator i as montecarlo's run i from `base_seed`)
@@ -148,6 +154,7 @@ pub fn evaluate(
                     energy_wh: m.energy_to_battery_wh,
                     power_w: m.mean_operator_power_w,
                     regulation_cadence_rpm: m.regulation_cadence_rpm,
+                    rerun: m.solver.tolerance_reruns > 0,
                 }
             });
             tick();
@@ -201,6 +208,7 @@ pub fn evaluate(
             g.back_emf_v_per_krpm,
             g.resistance_ohm,
         )),
+        Some(done.iter().filter(|r| r.rerun).count() as f64),
     ]);
     debug_assert_eq!(v.len(), FIGURES.len());
     Ok(Figures(v))

@@ -33,6 +33,13 @@ pub fn warn(message: Option<String>) {
     }
 }
 
+/// Prints a note on stderr: something the program did on its own that the user should know
+/// (it changes no result the files do not state).
+pub fn note(message: Option<String>) {
+    let Some(m) = message else { return };
+    let _ = writeln!(std::io::stderr().lock(), "crankcharge: note: {m}");
+}
+
 /// A bar counting finished items (runs of a study) with their rate and the time left, hidden
 /// until [`SHOW_AFTER`] has passed. Clones share the bar.
 #[derive(Clone)]

@@ -10,7 +10,7 @@ use crate::output::{csv, json, report, rundir::Staging};
 use crate::scenario::Scenario;
 
 use super::args::{scenario_from, session_with_bar, settings_from, SessionArgs};
-use super::digest::{replay_line, rows_digest, thresholds_digest};
+use super::digest::{ledger_digest, replay_line, rerun_note, rows_digest, thresholds_digest};
 use super::session::Session;
 
 /// Arguments of `run`.
@@ -47,6 +47,7 @@ pub fn run(a: &RunArgs) -> Result<i32, Failure> {
     write_run(&staging, &sc, &session, !a.no_plot).map_err(Failure::Other)?;
     let dir = staging.commit().map_err(|e| Failure::Other(e.into()))?;
     report(&session, &dir);
+    super::progress::note(rerun_note(&session.summary));
     Ok(if a.strict && session.summary.verdict.flagged() {
         EXIT_FLAGGED
     } else {
@@ -195,10 +196,7 @@ fn report(s: &Session, dir: &std::path::Path) {
             n.peak_v_per_cell, n.max_temp_rise_c_per_min, n.recombination_heat_wh
         ));
     }
-    say(&format!(
-        "  energy ledger closes to {:.2e}",
-        m.energy_balance_error
-    ));
+    say(&format!("  energy ledger {}", ledger_digest(m)));
     say(&format!("  {}", rows_digest(m)));
     say(&format!("  thresholds: {}", thresholds_digest(m)));
     say(&format!("  verdict: {}", m.verdict.words().join(", ")));

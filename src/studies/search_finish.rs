@@ -234,6 +234,16 @@ pub fn finish(
         say(l);
     }
     say(&format!("  wrote {}", out.display()));
+    let total = |figure: &str| -> usize {
+        all.iter()
+            .filter_map(|r| r.figures.get(figure))
+            .sum::<f64>() as usize
+    };
+    super::progress::note(super::digest::reruns_note(
+        total("tolerance_reruns"),
+        total("operators"),
+        POINTS_FILE,
+    ));
     let page = super::pages::study_page(
         &[&study.base],
         "crankcharge search",

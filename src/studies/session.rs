@@ -5,13 +5,15 @@ use std::time::Instant;
 
 use crate::analysis::episodes::{self, Timing};
 use crate::analysis::events::{Event, EventKind};
-use crate::analysis::invariants;
+use crate::analysis::invariants::{self, Attempt, Broken, LEDGER_BOUND};
 use crate::analysis::summary::{
     self, NimhSummary, ReplaySummary, Summary, SupercapSummary, UsbSummary, Verdict, MARGINAL,
 };
 use crate::analysis::trace::Trace;
 use crate::model::jitter::JitterTrack;
 use crate::scenario::alerts::Alerts;
+use crate::scenario::limits::MAX_IMPLIED_STEPS;
+use crate::scenario::validate::{MIN_MAX_STEP_S, MIN_RTOL};
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
 use crate::simulate::observe::{REGULATION_CAUSES_COUNTED_ONLY, USB_OUT_OF_BAND};
@@ -72,6 +74,22 @@ pub enum SessionError {
     /// The result breaks one of its own laws (analysis::invariants); nothing is written.
     #[error(transparent)]
     Broken(#[from] crate::analysis::invariants::Broken),
+    /// The rerun at a tighter tolerance, after the first attempt's ledger did not close, failed
+    /// in another way.
+    #[error(
+        "{source} (in the run again at solver.rtol {:e} and solver.max_step_s {} s, after the \
+         energy ledger closed only to {:.2e} at solver.rtol {:e} and solver.max_step_s {} s)",
+        rerun.rtol,
+        rerun.max_step_s,
+        first.energy_balance_error,
+        first.rtol,
+        first.max_step_s
+    )]
+    Rerun {
+        first: Attempt,
+        rerun: Tolerance,
+        source: Box<SessionError>,
+    },
 }
 
 /// Runs one session and summarises it.
@@ -89,7 +107,62 @@ pub fn run_session_with(
     run_session_watched(sc, rs, method, None)
 }
 
+/// The rerun's relative tolerance is the first attempt's divided by this (floored at
+/// [`MIN_RTOL`]).
+pub const RERUN_RTOL_DIVISOR: f64 = 10.0;
+
+/// The rerun's largest step is the first attempt's divided by this (floored at
+/// [`MIN_MAX_STEP_S`] and at the step the session's step limit allows).
+pub const RERUN_STEP_DIVISOR: f64 = 2.0;
+
+/// The integrator's tolerance pair a session runs with.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Tolerance {
+    pub rtol: f64,
+    /// Largest step, s.
+    pub max_step_s: f64,
+}
+
+impl Tolerance {
+    /// The setup's pair.
+    pub fn of(sc: &Scenario) -> Self {
+        Self {
+            rtol: sc.setup.solver.rtol,
+            max_step_s: sc.setup.solver.max_step_s,
+        }
+    }
+
+    /// The pair of a rerun: rtol / [`RERUN_RTOL_DIVISOR`], the step / [`RERUN_STEP_DIVISOR`], each
+    /// kept inside its validated range, the step also long enough for the session's step limit
+    /// over `duration_s` ([`MAX_IMPLIED_STEPS`]); never looser than `self`.
+    pub fn tighter(self, duration_s: f64) -> Self {
+        let floor_step = MIN_MAX_STEP_S.max(duration_s / MAX_IMPLIED_STEPS);
+        Self {
+            rtol: (self.rtol / RERUN_RTOL_DIVISOR)
+                .max(MIN_RTOL)
+                .min(self.rtol),
+            max_step_s: (self.max_step_s / RERUN_STEP_DIVISOR)
+                .max(floor_step)
+                .min(self.max_step_s),
+        }
+    }
+
+    fn attempt(self, energy_balance_error: f64) -> Attempt {
+        Attempt {
+            rtol: self.rtol,
+            max_step_s: self.max_step_s,
+            energy_balance_error,
+        }
+    }
+}
+
 /// Runs one session, storing the simulated time reached in `progress` (for a progress bar).
+///
+/// When the energy ledger's closure is the only law the result breaks (integration error: SOC in
+/// range, every figure finite, the solver done), the whole session is run once more, same seed,
+/// profile and overrides, at [`Tolerance::tighter`]; that result is published with
+/// `solver.tolerance_reruns` 1, or, if its ledger is still open, the session fails naming both
+/// attempts.
 pub fn run_session_watched(
     sc: &Scenario,
     rs: &RunSettings,
@@ -97,10 +170,74 @@ pub fn run_session_watched(
     progress: Option<&Progress>,
 ) -> Result<Session, SessionError> {
     let started = Instant::now();
+    let asked = Tolerance::of(sc);
+    run_with_one_rerun(asked, session_duration_s(sc, rs), |tol| {
+        run_once(sc, rs, method, progress, tol, started)
+    })
+}
+
+/// The rerun rule of [`run_session_watched`], apart from the integration (`run` runs the
+/// session once at a tolerance).
+fn run_with_one_rerun(
+    asked: Tolerance,
+    duration_s: f64,
+    mut run: impl FnMut(Tolerance) -> Result<Session, SessionError>,
+) -> Result<Session, SessionError> {
+    let first = match run(asked) {
+        Err(SessionError::Broken(Broken::Ledger { error, .. })) if error.is_finite() => {
+            asked.attempt(error)
+        }
+        other => return other,
+    };
+    let tighter = asked.tighter(duration_s);
+    if tighter == asked {
+        // Already at the tightest tolerance: a rerun would repeat the same integration.
+        return Err(SessionError::Broken(Broken::Ledger {
+            error: first.energy_balance_error,
+            bound: LEDGER_BOUND,
+        }));
+    }
+    match run(tighter) {
+        Ok(mut s) => {
+            for stats in [&mut s.result.stats, &mut s.summary.solver] {
+                stats.tolerance_reruns = 1;
+                stats.first_attempt = Some(first);
+            }
+            Ok(s)
+        }
+        Err(SessionError::Broken(Broken::Ledger { error, bound })) => {
+            Err(SessionError::Broken(Broken::LedgerAfterRerun {
+                first,
+                rerun: tighter.attempt(error),
+                bound,
+            }))
+        }
+        Err(e) => Err(SessionError::Rerun {
+            first,
+            rerun: tighter,
+            source: Box::new(e),
+        }),
+    }
+}
+
+/// The session's length, s: the run's duration, else the profile's.
+fn session_duration_s(sc: &Scenario, rs: &RunSettings) -> f64 {
+    rs.duration_s
+        .unwrap_or_else(|| sc.profile.total_duration_s())
+}
+
+/// One integration of a session at a tolerance, summarised and held to its laws
+/// (`analysis::invariants`). `started`: when the session's work began (its wall time).
+fn run_once(
+    sc: &Scenario,
+    rs: &RunSettings,
+    method: Method,
+    progress: Option<&Progress>,
+    tol: Tolerance,
+    started: Instant,
+) -> Result<Session, SessionError> {
     let seed = rs.seed.unwrap_or(sc.profile.seed);
-    let duration = rs
-        .duration_s
-        .unwrap_or_else(|| sc.profile.total_duration_s());
+    let duration = session_duration_s(sc, rs);
     let jitter = JitterTrack::draw(&sc.profile.jitter, seed, duration);
     let plant = Plant::with_fidelity(
         &sc.setup,
@@ -115,9 +252,9 @@ pub fn run_session_watched(
         duration_s: duration,
         fidelity: rs.fidelity,
         trace_interval_s: trace_interval_s(so.trace_interval_s, duration),
-        rtol: so.rtol,
+        rtol: tol.rtol,
         atol: so.atol,
-        max_step_s: so.max_step_s,
+        max_step_s: tol.max_step_s,
         method,
     };
     let b = &sc.setup.battery;
@@ -624,4 +761,177 @@ fn usb_summary(sc: &Scenario, r: &SimResult) -> Option<UsbSummary> {
         energy_to_bus_wh: (led.battery_terminal_j + led.device_loss_j) / 3600.0,
         device_loss_wh: led.device_loss_j / 3600.0,
     })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::scenario::load::InputKind;
+    use crate::scenario::{load_scenario, SourceText};
+    use crate::studies::outcome::EXIT_SIM;
+
+    const SHIPPED: Tolerance = Tolerance {
+        rtol: 1e-4,
+        max_step_s: 0.1,
+    };
+
+    fn demo() -> Scenario {
+        let s = SourceText::resolve(None, InputKind::Setup).expect("demo setup");
+        let p = SourceText::resolve(None, InputKind::Profile).expect("demo profile");
+        load_scenario(&s, &p, &[]).expect("demo scenario")
+    }
+
+    /// Runs the rerun rule over a stand-in integration that fails with `fail(k, tolerance)` on
+    /// its k-th call; returns the outcome and the tolerances it was asked for.
+    fn rule(
+        asked: Tolerance,
+        duration_s: f64,
+        fail: impl Fn(usize, Tolerance) -> SessionError,
+    ) -> (SessionError, Vec<Tolerance>) {
+        let mut calls = Vec::new();
+        let r = run_with_one_rerun(asked, duration_s, |tol| {
+            calls.push(tol);
+            Err(fail(calls.len() - 1, tol))
+        });
+        match r {
+            Err(e) => (e, calls),
+            Ok(_) => unreachable!("the stand-in never succeeds"),
+        }
+    }
+
+    fn ledger(error: f64) -> SessionError {
+        SessionError::Broken(Broken::Ledger {
+            error,
+            bound: LEDGER_BOUND,
+        })
+    }
+
+    #[test]
+    fn a_ledger_still_open_after_the_rerun_fails_with_exit_3_naming_both_attempts() {
+        let (e, calls) = rule(SHIPPED, 600.0, |k, _| {
+            ledger(if k == 0 { 2.4e-3 } else { 1.5e-3 })
+        });
+        // Once at the setup's tolerance, once at rtol / 10 and half the step, then no more.
+        let tighter = Tolerance {
+            rtol: 1e-5,
+            max_step_s: 0.05,
+        };
+        assert_eq!(calls, vec![SHIPPED, tighter]);
+        assert!(
+            matches!(
+                e,
+                SessionError::Broken(Broken::LedgerAfterRerun { first, rerun, .. })
+                    if first.rtol == 1e-4 && rerun.rtol == 1e-5
+            ),
+            "{e:?}"
+        );
+        let f = crate::studies::args::classify(&demo(), Err(e)).expect_err("a failure");
+        assert_eq!(f.code(), EXIT_SIM);
+        let text = f.to_string();
+        assert!(
+            text.starts_with(
+                "simulation failed: the energy ledger closes only to 2.40e-3 at solver.rtol 1e-4 \
+                 and solver.max_step_s 0.1 s, and only to 1.50e-3 when run again at 1e-5 and \
+                 0.05 s, past its bound 1e-3"
+            ),
+            "{text}"
+        );
+        assert!(text.contains("no result written"), "{text}");
+    }
+
+    #[test]
+    fn only_a_ledger_open_alone_is_run_again() {
+        let others: [fn() -> SessionError; 5] = [
+            || {
+                SessionError::Broken(Broken::Soc {
+                    soc: 1.2,
+                    t_s: 30.0,
+                })
+            },
+            || {
+                SessionError::Broken(Broken::NonFinite {
+                    figure: "max_input_v".into(),
+                    value: "NaN".into(),
+                })
+            },
+            || {
+                SessionError::Sim(SimError::NonFinite {
+                    t_s: 1.0,
+                    state: "soc".into(),
+                })
+            },
+            || SessionError::Setup("no plant".into()),
+            || ledger(f64::NAN),
+        ];
+        for make in others {
+            let (e, calls) = rule(SHIPPED, 600.0, |_, _| make());
+            assert_eq!(calls, vec![SHIPPED], "{e:?} is not rerun");
+            assert_eq!(e.to_string(), make().to_string());
+        }
+    }
+
+    #[test]
+    fn a_rerun_that_fails_otherwise_says_why_it_ran() {
+        let (e, calls) = rule(SHIPPED, 600.0, |k, _| {
+            if k == 0 {
+                ledger(1.7e-3)
+            } else {
+                SessionError::Sim(SimError::NonFinite {
+                    t_s: 12.5,
+                    state: "soc".into(),
+                })
+            }
+        });
+        assert_eq!(calls.len(), 2);
+        let f = crate::studies::args::classify(&demo(), Err(e)).expect_err("a failure");
+        assert_eq!(f.code(), EXIT_SIM);
+        let text = f.to_string();
+        assert!(text.contains("non-finite at t = 12.500000 s"), "{text}");
+        assert!(
+            text.contains(
+                "in the run again at solver.rtol 1e-5 and solver.max_step_s 0.05 s, after the \
+                 energy ledger closed only to 1.70e-3 at solver.rtol 1e-4 and solver.max_step_s \
+                 0.1 s"
+            ),
+            "{text}"
+        );
+    }
+
+    #[test]
+    fn the_rerun_tolerance_stays_inside_the_validated_ranges() {
+        // At both floors there is nothing tighter: one attempt, the plain message.
+        let floor = Tolerance {
+            rtol: MIN_RTOL,
+            max_step_s: MIN_MAX_STEP_S,
+        };
+        assert_eq!(floor.tighter(600.0), floor);
+        let (e, calls) = rule(floor, 600.0, |_, _| ledger(2e-3));
+        assert_eq!(calls, vec![floor]);
+        assert!(
+            matches!(e, SessionError::Broken(Broken::Ledger { .. })),
+            "{e:?}"
+        );
+        // Near the floors each is clamped on its own.
+        let near = Tolerance {
+            rtol: 5e-10,
+            max_step_s: 1.5e-4,
+        };
+        assert_eq!(
+            near.tighter(600.0),
+            Tolerance {
+                rtol: MIN_RTOL,
+                max_step_s: MIN_MAX_STEP_S
+            }
+        );
+        // A long session keeps the step its step limit allows (duration / 1e8 steps).
+        let week = crate::scenario::limits::MAX_SESSION_S;
+        let t = Tolerance {
+            rtol: 1e-4,
+            max_step_s: 0.01,
+        }
+        .tighter(week);
+        assert_eq!(t.rtol, 1e-5);
+        assert_eq!(t.max_step_s, week / MAX_IMPLIED_STEPS);
+        assert!(t.max_step_s > 0.005 && t.max_step_s < 0.01);
+    }
 }

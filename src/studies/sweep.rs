@@ -29,6 +29,7 @@ use crate::scenario::Scenario;
 use super::args::{scenario_from, session_or_failure, settings_from, SessionArgs};
 use super::check::build_plant;
 use super::compare::aligned_table;
+use super::digest::reruns_note;
 use super::pages;
 use super::session::Session;
 
@@ -260,6 +261,11 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
         .iter()
         .map(|(k, s)| table_row(&values[*k], &s.summary))
         .collect();
+    let reruns = done
+        .iter()
+        .filter(|(_, s)| s.summary.solver.tolerance_reruns > 0)
+        .count();
+    let rerun_note = reruns_note(reruns, done.len(), "sweep.csv");
     if let Some((k0, _)) = done.first() {
         let page = pages::study_page(
             &scenarios.iter().collect::<Vec<_>>()[*k0..=*k0],
@@ -270,6 +276,7 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
             failed
                 .iter()
                 .map(|f| format!("Failed and left out: {f}"))
+                .chain(rerun_note.iter().map(|n| format!("Note: {n}.")))
                 .collect(),
         );
         write_renamed(&out, "report.html", report::render(&page).as_bytes())
@@ -287,6 +294,7 @@ pub fn run(a: &SweepArgs) -> Result<i32, Failure> {
         values.len(),
         out.display()
     ));
+    super::progress::note(rerun_note);
     if failed.is_empty() {
         return Ok(EXIT_OK);
     }
