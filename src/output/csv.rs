@@ -157,45 +157,14 @@ pub fn trace_csv(trace: &Trace) -> Result<Vec<u8>, CsvError> {
     let mut w = writer();
     w.write_record(TRACE_COLUMNS)?;
     let mut out = finish(w)?;
-    let rows = &trace.rows;
-    out.reserve(rows.len() * ROW_BYTES);
-    if rows.len() < 2 * SPLIT_ROWS {
-        push_rows(&mut out, rows);
-        return Ok(out);
-    }
-    // The second half on a second core: the bytes are the same, in the same order.
-    let (first, second) = rows.split_at(rows.len() / 2);
-    let tail = std::thread::scope(|s| {
-        let worker = s.spawn(|| {
-            let mut tail = Vec::with_capacity(second.len() * ROW_BYTES);
-            push_rows(&mut tail, second);
-            tail
-        });
-        push_rows(&mut out, first);
-        worker.join()
-    });
-    match tail {
-        Ok(tail) => out.extend_from_slice(&tail),
-        Err(panic) => std::panic::resume_unwind(panic),
-    }
-    Ok(out)
-}
-
-/// Bytes a trace row takes, about (to reserve the buffer).
-const ROW_BYTES: usize = 160;
-/// A trace of fewer than twice this many rows is written on one thread (a thread costs about
-/// as much as formatting a few hundred rows).
-const SPLIT_ROWS: usize = 2048;
-
-/// Appends the rows' CSV lines to `out`.
-fn push_rows(out: &mut Vec<u8>, rows: &[TraceRow]) {
-    for r in rows {
+    out.reserve(trace.rows.len() * 160);
+    for r in &trace.rows {
         for (k, c) in trace_record(r).into_iter().enumerate() {
             if k > 0 {
                 out.push(b',');
             }
             match c {
-                Cell::Num(v, d) => push_fixed(out, v, d),
+                Cell::Num(v, d) => push_fixed(&mut out, v, d),
                 Cell::Word(s) => {
                     debug_assert!(!s.bytes().any(|b| matches!(b, b',' | b'"' | b'\n' | b'\r')));
                     out.extend_from_slice(s.as_bytes());
@@ -204,6 +173,7 @@ fn push_rows(out: &mut Vec<u8>, rows: &[TraceRow]) {
         }
         out.push(b'\n');
     }
+    Ok(out)
 }
 
 /// `events.csv` bytes.

@@ -18,7 +18,7 @@ use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
 use super::stiff::{self, Attempt, Implicit, Limits, StiffRhs};
 use super::transitions::{apply, due, Transition};
-use super::watcher::{self, bisect, row, Job, SegmentSteps, Sink, StepEnd, Watcher};
+use super::watcher::{bisect, row, StepEnd, Watcher};
 
 /// Longest Dopri5 segment between restarts, s: the segment's continuous output is kept in memory
 /// until the segment is walked, so it is bounded. The fast fidelity steps in milliseconds; Dopri5
@@ -308,54 +308,15 @@ pub fn simulate(plant: &Plant, y0: State, opts: &SimOptions) -> Result<SimResult
     simulate_watched(plant, y0, opts, None)
 }
 
-/// Runs one session, storing the simulated time reached in `progress` after every segment. A
-/// single Dopri5 session outside a thread pool observes on a second core (see [`simulate_with`]).
+/// Runs one session, storing the simulated time reached in `progress` after every segment.
 pub fn simulate_watched(
     plant: &Plant,
     y0: State,
     opts: &SimOptions,
     progress: Option<&super::Progress>,
 ) -> Result<SimResult, SimError> {
-    let spare_core = rayon::current_thread_index().is_none()
-        && std::thread::available_parallelism().is_ok_and(|n| n.get() >= 2);
-    simulate_with(
-        plant,
-        y0,
-        opts,
-        progress,
-        opts.method == Method::Dopri5 && spare_core,
-    )
-}
-
-/// Runs one session; with `overlap` (Dopri5 only) the trace rows and watched conditions are
-/// taken on a worker thread while the integrator goes on. Results are the same either way.
-pub fn simulate_with(
-    plant: &Plant,
-    y0: State,
-    opts: &SimOptions,
-    progress: Option<&super::Progress>,
-    overlap: bool,
-) -> Result<SimResult, SimError> {
     let watcher = Watcher::new(plant, opts.trace_interval_s, opts.duration_s);
-    let (done, watcher) = if overlap && opts.method == Method::Dopri5 {
-        std::thread::scope(|s| {
-            let (tx, rx) = watcher::queue();
-            let worker = s.spawn(move || watcher::work(watcher, rx));
-            // The integrator's end of the queue is dropped when it returns; the worker then ends.
-            let done = integrate(plant, y0, opts, progress, Sink::Queue(tx)).map(|(d, _)| d);
-            match worker.join() {
-                Ok(w) => (done, w),
-                Err(panic) => std::panic::resume_unwind(panic),
-            }
-        })
-    } else {
-        match integrate(plant, y0, opts, progress, Sink::Inline(watcher)) {
-            Ok((d, Sink::Inline(w))) => (Ok(d), w),
-            Ok((_, Sink::Queue(_))) => unreachable!("an inline run keeps its watcher"),
-            Err(e) => return Err(e),
-        }
-    };
-    let Integrated { y, disc, stats } = done?;
+    let (Integrated { y, disc, stats }, watcher) = integrate(plant, y0, opts, progress, watcher)?;
     let t_end = opts.duration_s;
     let Watcher {
         mut sampler,
@@ -385,15 +346,15 @@ struct Integrated {
     stats: SolverStats,
 }
 
-/// The segment loop: integrates from y0 to the session's end, sending every accepted stretch and
-/// every mode change to `sink` for observation. Returns the end and the sink.
+/// The segment loop: integrates from y0 to the session's end; `watcher` observes every accepted
+/// stretch and every mode change. Returns the end and the watcher.
 fn integrate<'a>(
     plant: &'a Plant,
     y0: State,
     opts: &SimOptions,
     progress: Option<&super::Progress>,
-    sink: Sink<'a>,
-) -> Result<(Integrated, Sink<'a>), SimError> {
+    watcher: Watcher<'a>,
+) -> Result<(Integrated, Watcher<'a>), SimError> {
     let t_end = opts.duration_s;
     let mut time_events: Vec<f64> = plant
         .segment_boundaries()
@@ -417,11 +378,11 @@ fn integrate<'a>(
 
     let mut run = Walk {
         plant,
-        sink,
+        watcher,
         progress: (0, 0.0),
     };
     cascade(plant, t, &mut y, &mut disc, &mut stats, None)?;
-    run.mark(t, &disc, &y);
+    run.watcher.mark(t, &disc, &y);
     let mut h_guess: f64 = 0.0;
     let mut next_event = 0usize;
     let mut rec = Recorder::default();
@@ -502,10 +463,10 @@ fn integrate<'a>(
             stats.mode_changes += 1;
         }
         cascade(plant, t, &mut y, &mut disc, &mut stats, end.located)?;
-        run.mark(t, &disc, &y);
+        run.watcher.mark(t, &disc, &y);
     }
     stats.evaluations = evals.get();
-    Ok((Integrated { y, disc, stats }, run.sink))
+    Ok((Integrated { y, disc, stats }, run.watcher))
 }
 
 /// Where a segment starts.
@@ -527,10 +488,10 @@ struct SegmentEnd {
 }
 
 /// Per-step bookkeeping shared by every integrator: the location of due mode changes, and the
-/// observation (trace rows, watched conditions) of every accepted stretch, sent to `sink`.
+/// observation (trace rows, watched conditions) of every accepted stretch.
 struct Walk<'a> {
     plant: &'a Plant,
-    sink: Sink<'a>,
+    watcher: Watcher<'a>,
     /// Implicit step attempts since the last progress mark, and the time of that mark.
     progress: (u64, f64),
 }
@@ -548,19 +509,9 @@ impl Walk<'_> {
         dense: &dyn Fn(f64) -> State,
     ) -> Option<(f64, Option<Transition>)> {
         let stop = locate(self.plant, disc, a, end, dense);
-        if let Some(w) = self.sink.inline() {
-            w.observe(disc, a, stop.map_or(end.t, |(ts, _)| ts), end, dense);
-        }
+        self.watcher
+            .observe(disc, a, stop.map_or(end.t, |(ts, _)| ts), end, dense);
         stop
-    }
-
-    /// The mode after the transitions applied at t.
-    fn mark(&mut self, t: f64, disc: &Discrete, y: &State) {
-        self.sink.send(Job::Mark {
-            t,
-            disc: *disc,
-            y: Box::new(*y),
-        });
     }
 }
 
@@ -646,11 +597,7 @@ fn explicit_segment(
     }
     if rec.steps.is_empty() {
         // Nothing was stepped (cannot normally happen): hold the state to the segment end.
-        run.sink.send(Job::Hold {
-            disc: *disc,
-            y: Box::new(y),
-            t_stop,
-        });
+        run.watcher.hold(disc, &y, t_stop);
         return Ok(SegmentEnd {
             t: t_stop,
             y,
@@ -658,55 +605,45 @@ fn explicit_segment(
             located: None,
         });
     }
-    let steps = std::mem::take(&mut rec.steps);
+    // Evaluate inside the model's range: grid times a few ulps past the last step must not fall
+    // back to a stale state.
+    let (lo_b, hi_b) = model.bounds();
+    let last_y = rec.last_state.unwrap_or(y);
+    let dense = |tq: f64| model.evaluate(tq.clamp(lo_b, hi_b)).unwrap_or(last_y);
+    let steps = &rec.steps;
     let n = steps.len();
     let (a, y_a) = if n >= 2 {
         (steps[n - 2].t, steps[n - 2].y)
     } else {
         (t, y)
     };
-    let h_last = steps[n - 1].t - a;
-    let seg_steps = SegmentSteps {
-        disc: *disc,
-        t0: t,
-        steps,
-        model,
-        last_y: rec.last_state.unwrap_or(y),
-        cut: None,
-    };
+    let h_last = (steps[n - 1].t - a).max(1e-6);
     // Only the last step can end with a mode change due: the callback stopped the solver there.
-    let dense = |tq: f64| seg_steps.dense(tq);
-    let located = locate(plant, disc, a, &seg_steps.steps[n - 1], &dense);
-    let end = match located {
-        Some((ts, located)) => {
+    let located = locate(plant, disc, a, &steps[n - 1], &dense);
+    run.watcher
+        .segment(disc, t, steps, located.map(|(ts, _)| ts), &dense);
+    Ok(match located {
+        Some((ts, located)) => SegmentEnd {
+            t: ts,
             // The state at the switching time comes from one integration step from the last
             // accepted step, not from the dense output: the dense output interpolates each state
             // on its own, and restarting from it opened the energy ledger a little at every
             // event (8.9e-4 after 24 000 restarts at rtol 1e-4; 5.5e-6 this way).
-            let ys = step_to(plant, disc, a, y_a, ts, opts, evals).unwrap_or_else(|| dense(ts));
-            SegmentEnd {
-                t: ts,
-                y: ys,
-                h_last: h_last.max(1e-6),
-                located,
-            }
-        }
+            y: step_to(plant, disc, a, y_a, ts, opts, evals).unwrap_or_else(|| dense(ts)),
+            h_last,
+            located,
+        },
         None => SegmentEnd {
             t: if rec.stop == Some(Stop::Full) {
-                seg_steps.steps[n - 1].t
+                steps[n - 1].t
             } else {
                 t_stop
             },
-            y: seg_steps.last_y,
-            h_last: h_last.max(1e-6),
+            y: last_y,
+            h_last,
             located: None,
         },
-    };
-    run.sink.send(Job::Segment(Box::new(SegmentSteps {
-        cut: located.map(|(ts, _)| ts),
-        ..seg_steps
-    })));
-    Ok(end)
+    })
 }
 
 /// One segment with an implicit method, one step at a time: each accepted step is checked

@@ -1,11 +1,6 @@
 //! Observation of a run: trace rows on the fixed grid and the watched conditions (episodes and
-//! alerts), taken from each accepted step and its dense output. It feeds nothing back into the
-//! integration, so a single session can hand it to a second core while the integrator goes on
-//! (the same code on the same steps either way: the files are byte-identical).
-
-use std::sync::mpsc::{sync_channel, Receiver, SyncSender};
-
-use ode_solvers::continuous_output_model::ContinuousOutputModel;
+//! alerts), taken from each accepted step and its dense output. Nothing here feeds back into the
+//! integration.
 
 use crate::analysis::trace::{Mode, TraceRow};
 use crate::units::rad_s_to_rpm;
@@ -13,48 +8,6 @@ use crate::units::rad_s_to_rpm;
 use super::observe::{codes, Codes, Observer};
 use super::plant::{Discrete, Plant, Point, Stage};
 use super::state::*;
-
-/// Segments a worker may lag behind the integrator (bounds the memory of held dense output).
-const QUEUE_SEGMENTS: usize = 8;
-
-/// The accepted steps of one Dopri5 segment with their continuous output, handed over whole.
-pub(super) struct SegmentSteps {
-    pub disc: Discrete,
-    /// Segment start, s.
-    pub t0: f64,
-    pub steps: Vec<StepEnd>,
-    pub model: ContinuousOutputModel<f64, State>,
-    /// Returned where the model has no answer (it always has, inside its bounds).
-    pub last_y: State,
-    /// Where the last step is cut: a mode change located inside it, s.
-    pub cut: Option<f64>,
-}
-
-impl SegmentSteps {
-    /// The continuous output at `tq`, clamped into the model's range (grid times a few ulps past
-    /// the last step must not fall back to a stale state).
-    pub fn dense(&self, tq: f64) -> State {
-        let (lo, hi) = self.model.bounds();
-        self.model.evaluate(tq.clamp(lo, hi)).unwrap_or(self.last_y)
-    }
-}
-
-/// One piece of observation work, in the order the integrator produced it.
-pub(super) enum Job {
-    Segment(Box<SegmentSteps>),
-    /// Nothing was stepped: the state is held to `t_stop`.
-    Hold {
-        disc: Discrete,
-        y: Box<State>,
-        t_stop: f64,
-    },
-    /// The mode after the transitions applied at `t`: conditions are taken afresh there.
-    Mark {
-        t: f64,
-        disc: Discrete,
-        y: Box<State>,
-    },
-}
 
 /// Trace sampler and condition observer of one run.
 pub(super) struct Watcher<'a> {
@@ -110,83 +63,48 @@ impl<'a> Watcher<'a> {
         self.observer.touch(plant, &pb, &yb, disc);
     }
 
-    /// Does one piece of work.
-    pub fn run(&mut self, job: Job) {
-        match job {
-            Job::Segment(seg) => {
-                let dense = |tq: f64| seg.dense(tq);
-                let n = seg.steps.len();
-                let mut a = seg.t0;
-                for (k, step) in seg.steps.iter().enumerate() {
-                    let b = match seg.cut {
-                        Some(ts) if k + 1 == n => ts,
-                        _ => step.t,
-                    };
-                    self.observe(&seg.disc, a, b, step, &dense);
-                    a = step.t;
-                }
-            }
-            Job::Hold { disc, y, t_stop } => {
-                let plant = self.plant;
-                self.sampler.sample_until(t_stop, |tq| {
-                    let pq = plant.eval(tq, &y, &disc);
-                    row(plant, &pq, &y, &disc)
-                });
-            }
-            Job::Mark { t, disc, y } => {
-                let p = self.plant.eval(t, &y, &disc);
-                let open = self.observer.current();
-                self.observer.set(
-                    t,
-                    &codes(self.plant, &p, &y, &disc, &open),
-                    self.plant,
-                    (&p, &y, &disc),
-                );
-            }
-        }
-    }
-}
-
-/// Where observation work goes: done at once, or queued for a worker thread.
-pub(super) enum Sink<'a> {
-    Inline(Watcher<'a>),
-    Queue(SyncSender<Job>),
-}
-
-impl<'a> Sink<'a> {
-    /// Does the work now or queues it. A worker that has stopped (it only stops when the
-    /// integrator is done) drops it.
-    pub fn send(&mut self, job: Job) {
-        match self {
-            Sink::Inline(w) => w.run(job),
-            Sink::Queue(tx) => {
-                let _ = tx.send(job);
-            }
+    /// A segment's accepted steps from `t0`, the last one cut at `cut` (a mode change located
+    /// inside it).
+    pub fn segment(
+        &mut self,
+        disc: &Discrete,
+        t0: f64,
+        steps: &[StepEnd],
+        cut: Option<f64>,
+        dense: &dyn Fn(f64) -> State,
+    ) {
+        let n = steps.len();
+        let mut a = t0;
+        for (k, step) in steps.iter().enumerate() {
+            let b = match cut {
+                Some(ts) if k + 1 == n => ts,
+                _ => step.t,
+            };
+            self.observe(disc, a, b, step, dense);
+            a = step.t;
         }
     }
 
-    /// The watcher when it works inline (the implicit methods observe step by step with a
-    /// dense output that cannot leave the solver).
-    pub fn inline(&mut self) -> Option<&mut Watcher<'a>> {
-        match self {
-            Sink::Inline(w) => Some(w),
-            Sink::Queue(_) => None,
-        }
+    /// Nothing was stepped: the state `y` is held to `t_stop`.
+    pub fn hold(&mut self, disc: &Discrete, y: &State, t_stop: f64) {
+        let plant = self.plant;
+        self.sampler.sample_until(t_stop, |tq| {
+            let pq = plant.eval(tq, y, disc);
+            row(plant, &pq, y, disc)
+        });
     }
-}
 
-/// A queue and the worker loop that empties it into `watcher`; the loop ends when every sender
-/// is dropped and returns the watcher.
-pub(super) fn queue() -> (SyncSender<Job>, Receiver<Job>) {
-    sync_channel(QUEUE_SEGMENTS)
-}
-
-/// Runs queued jobs until the integrator drops its end of the queue.
-pub(super) fn work(mut watcher: Watcher<'_>, jobs: Receiver<Job>) -> Watcher<'_> {
-    for job in jobs {
-        watcher.run(job);
+    /// The mode after the transitions applied at `t`: the conditions are taken afresh there.
+    pub fn mark(&mut self, t: f64, disc: &Discrete, y: &State) {
+        let p = self.plant.eval(t, y, disc);
+        let open = self.observer.current();
+        self.observer.set(
+            t,
+            &codes(self.plant, &p, y, disc, &open),
+            self.plant,
+            (&p, y, disc),
+        );
     }
-    watcher
 }
 
 /// Located changes of the watched conditions (reporting only: episodes and alerts, whose times
