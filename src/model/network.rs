@@ -742,8 +742,25 @@ fn floored_point(
             break;
         }
     }
-    let ib = lo;
-    let Some((d, _, vo)) = at(ib) else {
+    let Some((d, i_in, vo)) = at(lo) else {
+        return full;
+    };
+    let (d, ib, vo) = if i_f - i_in <= FLOOR_MATCH_A {
+        (d, lo, vo)
+    } else if conv.topology == Topology::BuckBoost && at(hi).is_none() {
+        // The search ended at the converter's own limit at the floor, drawing less than the
+        // source gives there: with large switch and inductor resistances a buck-boost's output
+        // folds over below D_max (more duty, more conduction loss, less current out). Its input
+        // current still rises with duty, so the floor is held past the fold, between that duty
+        // and D_max, with less battery current.
+        match bb_past_fold(conv.buck_boost, term, floor_v, i_f, d) {
+            Some(point) => point,
+            None => return full,
+        }
+    } else {
+        // The floor is not held where the search ended (the full target draws less than the
+        // source gives at the floor, or a buck at D_max does): the unfloored point, which at
+        // least balances.
         return full;
     };
     let at_floor = (floor_v, src.generator.brush_drop(i_f));
@@ -760,6 +777,64 @@ fn floored_point(
     p.diode_v = src.diode_drop(p.generator_current_a);
     p.brush_v = src.generator.brush_drop(p.generator_current_a);
     p
+}
+
+/// Largest mismatch, A, between the converter's input current at the floor and the source's
+/// current there for the floor to count as held (the bisections leave about 1e-11 A).
+const FLOOR_MATCH_A: f64 = 1e-7;
+
+/// Battery current a buck-boost passes at duty `d` from input `v` (the CCM balance at a fixed
+/// duty): the root in I of d·(v − 2V_sw − 2·I_L·R_on) − (1 − d)·(V_o(I) + 2V_D) − I_L·R_L = 0
+/// with I_L = I/(1 − d); the balance falls with I. Zero if it is negative at I = 0 already.
+fn bb_current_at_duty(bb: &BuckBoostModel, term: &Terminal, v: f64, d: f64) -> f64 {
+    let k = 1.0 / (1.0 - d).max(1e-9);
+    let r_i = (2.0 * d * bb.switch_resistance_ohm + bb.inductor_resistance_ohm) * k;
+    // Written increasing in I, as the root finder wants.
+    let res = |ib: f64| {
+        let (vb, sb) = term.v(ib);
+        let balance = d * (v - 2.0 * bb.switch_drop_v) - (1.0 - d) * bb.off_v(vb) - r_i * ib;
+        (-balance, r_i + (1.0 - d) * sb)
+    };
+    if res(0.0).0 >= 0.0 {
+        return 0.0;
+    }
+    // At I = d·v/r_i the resistive drop alone uses the whole drive: the balance is negative.
+    let hi = if r_i > 0.0 { d * v / r_i } else { 1e3 };
+    root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, res)
+}
+
+/// A buck-boost holding its input at `floor_v` past the fold of its output: the duty in
+/// [`d_fold`, D_max] at which its input current equals the source's `i_f` (bisection; the input
+/// current rises with duty), with the battery current and voltage there. None if even D_max
+/// draws less than `i_f`.
+fn bb_past_fold(
+    bb: &BuckBoostModel,
+    term: &Terminal,
+    floor_v: f64,
+    i_f: f64,
+    d_fold: f64,
+) -> Option<(f64, f64, f64)> {
+    let point = |d: f64| {
+        let ib = bb_current_at_duty(bb, term, floor_v, d);
+        (bb.input_current_a(d, ib, floor_v), ib)
+    };
+    let (mut lo, mut hi) = (d_fold, bb.max_duty);
+    if point(hi).0 < i_f {
+        return None;
+    }
+    for _ in 0..80 {
+        let mid = 0.5 * (lo + hi);
+        if point(mid).0 < i_f {
+            lo = mid;
+        } else {
+            hi = mid;
+        }
+        if hi - lo <= 1e-13 {
+            break;
+        }
+    }
+    let ib = point(hi).1;
+    Some((hi, ib, term.v(ib).0))
 }
 
 /// Whether g(i) = i − F(i) is negative on all of [0, `upto`] for a nondecreasing F (decided by
