@@ -1372,3 +1372,64 @@ fn a_lossy_buck_boost_holds_its_input_floor_past_the_fold_and_balances() {
     );
     assert_eq!(s.summary.solver.tolerance_reruns, 0);
 }
+
+/// The detailed fidelity's buck-boost feed-forward past the same fold: where no duty delivers the
+/// current reference, it takes the duty of the most current the input gives (where the balance's
+/// two roots meet), so it runs on continuously instead of jumping to D_max (the jump made the
+/// right-hand side switch faster than the solver could follow: such setups stopped with exit 3).
+#[test]
+fn a_lossy_buck_boost_feed_forward_runs_on_through_the_fold() {
+    let sc = load(
+        &setup_path("demo-buck-boost"),
+        &[("converter.switch_resistance_ohm", "0.75")],
+    );
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    let mut d = initial_discrete(&plant, &y);
+    d.buck_mode = false;
+    let bb = plant.converters(&d).buck_boost;
+    let c = &sc.setup.converter;
+    let (v_in, v_o) = (9.5, 11.0);
+    // The current each duty delivers at this input and output, straight from the volt-second
+    // balance d·(V_in − 2V_sw − 2·I_L·R_on) = (1 − d)·(V_o + 2V_D) + I_L·R_L with I = (1 − d)·I_L
+    // (Erickson & Maksimović, 2nd ed., ch. 3, with the drops of both switches and diodes), on a
+    // fine grid of duties: the most it gives, and where.
+    let current_at = |dd: f64| {
+        let drive =
+            dd * (v_in - 2.0 * c.switch_drop_v) - (1.0 - dd) * (v_o + 2.0 * c.catch_diode_drop_v);
+        (1.0 - dd) * drive / (2.0 * dd * c.switch_resistance_ohm + c.inductor_resistance_ohm)
+    };
+    let (d_peak, i_peak) = (1..100_000)
+        .map(|k| f64::from(k) * 1e-5)
+        .map(|dd| (dd, current_at(dd)))
+        .fold(
+            (0.0, f64::MIN),
+            |best, p| if p.1 > best.1 { p } else { best },
+        );
+    assert!(
+        d_peak < bb.max_duty,
+        "the fold {d_peak} must lie below D_max for this check"
+    );
+    // Just short of the most current: the rising-side duty; just past it: the fold's duty.
+    let below = bb.feed_forward_duty(v_in, v_o, i_peak * (1.0 - 1e-6));
+    let past = bb.feed_forward_duty(v_in, v_o, i_peak * (1.0 + 1e-6));
+    assert!(
+        (below - d_peak).abs() < 2e-3,
+        "{below} vs the fold at {d_peak}"
+    );
+    assert!(
+        (past - d_peak).abs() < 2e-3,
+        "{past} vs the fold at {d_peak}"
+    );
+    assert!(bb.feed_forward_duty(v_in, v_o, 2.0 * i_peak) < bb.max_duty);
+
+    // Ten seconds of the detailed fidelity through the lock-out, soft start and floor now run.
+    let s = run(&sc, Some(10.0), Fidelity::Detailed);
+    // Common practice: every evaluation balances its power, so the ledger closes to about the
+    // tolerance times the energy moved.
+    assert!(
+        s.summary.energy_balance_error < 1e-4,
+        "{}",
+        s.summary.energy_balance_error
+    );
+}

@@ -136,12 +136,9 @@ pub fn control_buck_boost(
     x: &ControlInput,
 ) -> ControlOutput {
     let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
-    let d_ss = bb.ccm_duty(x.input_v, x.output_v.max(0.0), current_ref);
-    let d_ff = if d_ss.is_finite() {
-        d_ss.clamp(0.0, bb.max_duty)
-    } else {
-        bb.max_duty
-    };
+    let d_ff = bb
+        .feed_forward_duty(x.input_v, x.output_v.max(0.0), current_ref)
+        .max(0.0);
     let il_ref = current_ref / (1.0 - d_ff);
     let e_i = il_ref - x.inductor_a;
     let d_cmd = d_ff + g.kp_i * e_i + x.current_integrator;

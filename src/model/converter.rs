@@ -340,6 +340,27 @@ impl BuckBoostModel {
         }
     }
 
+    /// Feed-forward duty for battery current `i` (detailed fidelity's controller): the CCM duty
+    /// where one delivers `i`; past the fold of the output (large switch and inductor
+    /// resistances: no duty delivers `i`) the duty of the most current this input gives, the
+    /// vertex p/(2a) of the balance's quadratic, where the two roots meet. So the feed-forward
+    /// runs on continuously through the fold instead of jumping to D_max there. At most D_max.
+    pub fn feed_forward_duty(&self, v_in: f64, v_o: f64, i: f64) -> f64 {
+        let d = self.ccm_duty(v_in, v_o, i);
+        if d.is_finite() {
+            return d.min(self.max_duty);
+        }
+        let b = self.off_v(v_o);
+        let a = v_in - 2.0 * self.switch_drop_v + b;
+        let p = a + b - 2.0 * self.switch_resistance_ohm * i;
+        let q = b + self.inductor_resistance_ohm * i;
+        if a > 0.0 && p > 0.0 && p * p < 4.0 * a * q {
+            (p / (2.0 * a)).min(self.max_duty)
+        } else {
+            self.max_duty
+        }
+    }
+
     /// Input voltage at which the duty for (`v_o`, `i`) reaches D_max: the dropout edge, V.
     pub fn dropout_input_v(&self, v_o: f64, i: f64) -> f64 {
         let d = self.max_duty;
