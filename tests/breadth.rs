@@ -1433,3 +1433,58 @@ fn a_lossy_buck_boost_feed_forward_runs_on_through_the_fold() {
         s.summary.energy_balance_error
     );
 }
+
+/// An input floor the generator cannot reach yet (spin-up, a slow crank) idles the charger: its
+/// floor loop asks for no current, so the input stays near the EMF, above UVLO. The fast fidelity
+/// used to ask for the full current there, pull the input under UVLO and restart it again and
+/// again, every millisecond or so (215 mode changes in the first 5 s of the buck-boost twin,
+/// where the detailed fidelity, whose floor loop acts on its current reference, has 5).
+#[test]
+fn an_input_floor_above_the_emf_idles_the_charger_instead_of_cycling_it() {
+    let sc = load(&setup_path("demo-buck-boost"), &[]);
+    let c = &sc.setup.converter;
+    let floor_v = c
+        .input_floor_v
+        .expect("demo-buck-boost ships an input floor");
+    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    let term = plant.battery.terminal(&Plant::battery_state(&y));
+    let mut d = initial_discrete(&plant, &y);
+    d.enabled = true;
+    for emf in [
+        c.uvlo_on_v + 0.1,
+        0.5 * (c.uvlo_on_v + floor_v),
+        floor_v - 0.01,
+    ] {
+        let src = Source {
+            generator: &plant.generator,
+            diode: &plant.diode,
+            emf_v: emf,
+            resistance_ohm: plant.generator.resistance_ohm(20.0),
+            commutation_ohm: 0.0,
+        };
+        let p = network::solve(
+            &src,
+            network::Load::Floored {
+                conv: plant.converters(&d),
+                target_a: 2.0,
+                floor_v,
+            },
+            &term,
+        );
+        assert!(p.battery_current_a.abs() < 1e-9, "EMF {emf} V: {p:?}");
+        assert!(
+            p.input_v > c.uvlo_off_v && p.input_v > emf - 0.5,
+            "EMF {emf} V: the idle input sags to {} V",
+            p.input_v
+        );
+    }
+    // Through the spin-up the two fidelities now change mode alike.
+    let fast = run(&sc, Some(5.0), Fidelity::Fast);
+    let detailed = run(&sc, Some(5.0), Fidelity::Detailed);
+    let (mf, md) = (
+        fast.summary.solver.mode_changes,
+        detailed.summary.solver.mode_changes,
+    );
+    assert!(mf <= 2 * md + 2, "{mf} mode changes fast, {md} detailed");
+}

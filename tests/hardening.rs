@@ -354,8 +354,9 @@ fn a_restart_delay_holds_the_charger_off_after_each_lockout() {
     wd.cmd()
         .args([
             "run",
-            // The buck-boost twin near its generator's power limit hiccups: without a delay its
-            // lock-outs last well under a millisecond.
+            // The buck-boost twin near its generator's power limit, without its input floor
+            // (which would idle it instead), hiccups: without a delay its lock-outs last well
+            // under a millisecond.
             "demo-buck-boost",
             "--duration",
             "120",
@@ -368,6 +369,8 @@ fn a_restart_delay_holds_the_charger_off_after_each_lockout() {
             "profile.jitter.rest_interval_s=0",
             "--set",
             "converter.restart_delay_s=0.5",
+            "--set",
+            "converter.input_floor_v=None",
             // Each lock-out a row of its own, however close the next.
             "--set",
             "alerts.lockout.merge_gap_s=0",

@@ -687,7 +687,10 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
 /// Operating point of a charger holding its input at `floor_v` when the full target would pull it
 /// lower. At the floor the generator current i_f is fixed by node_v(i_f) = floor; the battery
 /// current I is the root of I_in(floor, I) = i_f on [0, target] (the converter's input current
-/// rises with I). If the target already keeps the input above the floor, that point stands.
+/// rises with I). If the target already keeps the input above the floor, that point stands; if
+/// not even the idle source reaches the floor (EMF at or below it), the charger passes nothing
+/// and idles with its input near the EMF; a buck-boost whose output folds over before the floor
+/// is met is held there past the fold ([`bb_past_fold`]).
 fn floored_point(
     src: &Source,
     conv: &Converters,
@@ -696,8 +699,12 @@ fn floored_point(
     term: &Terminal,
 ) -> NetworkPoint {
     let full = solve(src, conv.charging(target), term);
-    if full.input_v >= floor_v || target <= 0.0 || src.emf_v <= floor_v {
+    if full.input_v >= floor_v || target <= 0.0 {
         return full;
+    }
+    if src.emf_v <= floor_v {
+        // Not even an idle source reaches the floor: the floor loop asks for no current at all.
+        return solve(src, conv.charging(0.0), term);
     }
     let r = src.resistance_ohm.max(1e-9);
     let hi = (src.emf_v - floor_v) / r;
