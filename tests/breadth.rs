@@ -9,7 +9,7 @@ use crankcharge::analysis::summary::Verdict;
 use crankcharge::analysis::trace::Mode;
 use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel, Overhead};
 use crankcharge::model::jitter::JitterTrack;
-use crankcharge::model::network::{self, Source};
+use crankcharge::model::network;
 use crankcharge::scenario::demo::SETUPS;
 use crankcharge::scenario::Scenario;
 use crankcharge::simulate::engine::{initial_discrete, initial_state};
@@ -19,7 +19,9 @@ use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::Session;
 use crankcharge::units::rpm_to_rad_s;
 
-use crate::common::{load_paths, read_csv, repo, run_code, run_ok, session_of, WorkDir, RUN_FILES};
+use crate::common::{
+    load_paths, read_csv, repo, run_code, run_ok, session_of, source_at, WorkDir, RUN_FILES,
+};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -714,13 +716,7 @@ fn buck_boost_runs_as_a_buck_above_the_battery_and_saves_losses() {
     let c = &sc.setup.converter;
     let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
     let term = plant.battery.terminal(&Plant::battery_state(&y));
-    let src = Source {
-        generator: &plant.generator,
-        diode: &plant.diode,
-        emf_v: 24.0,
-        resistance_ohm: plant.generator.resistance_ohm(20.0),
-        commutation_ohm: 0.0,
-    };
+    let src = source_at(&plant, 24.0);
     let mut d = initial_discrete(&plant, &y);
     d.buck_mode = false;
     let both = network::solve(&src, plant.converters(&d).charging(2.0), &term);
@@ -1316,13 +1312,7 @@ fn a_lossy_buck_boost_holds_its_input_floor_past_the_fold_and_balances() {
     let target = 2.0;
     let mut past_fold = 0;
     for emf in [15.0, 16.0, 17.6, 19.0, 21.0] {
-        let src = Source {
-            generator: &plant.generator,
-            diode: &plant.diode,
-            emf_v: emf,
-            resistance_ohm: plant.generator.resistance_ohm(20.0),
-            commutation_ohm: 0.0,
-        };
+        let src = source_at(&plant, emf);
         let load = network::Load::Floored {
             conv: plant.converters(&d),
             target_a: target,
@@ -1456,13 +1446,7 @@ fn an_input_floor_above_the_emf_idles_the_charger_instead_of_cycling_it() {
         0.5 * (c.uvlo_on_v + floor_v),
         floor_v - 0.01,
     ] {
-        let src = Source {
-            generator: &plant.generator,
-            diode: &plant.diode,
-            emf_v: emf,
-            resistance_ohm: plant.generator.resistance_ohm(20.0),
-            commutation_ohm: 0.0,
-        };
+        let src = source_at(&plant, emf);
         let p = network::solve(
             &src,
             network::Load::Floored {

@@ -208,3 +208,18 @@ pub fn session_of(
     };
     run_session(sc, &rs).unwrap_or_else(|e| panic!("{}: {e}", sc.setup.name))
 }
+
+/// The plant's generator and diode as a network source at back-EMF `emf_v`, winding at 20 °C
+/// (a DC machine: no commutation resistance).
+pub fn source_at(
+    plant: &crankcharge::simulate::plant::Plant,
+    emf_v: f64,
+) -> crankcharge::model::network::Source<'_> {
+    crankcharge::model::network::Source {
+        generator: &plant.generator,
+        diode: &plant.diode,
+        emf_v,
+        resistance_ohm: plant.generator.resistance_ohm(20.0),
+        commutation_ohm: 0.0,
+    }
+}

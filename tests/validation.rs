@@ -41,7 +41,7 @@ use crankcharge::units::{
     rpm_to_rad_s, thermal_voltage_v, v_per_krpm_to_v_s_per_rad, v_s_per_rad_to_v_per_krpm,
 };
 
-use crate::common::{ideal_buck, repo, shipped_setups};
+use crate::common::{ideal_buck, repo, shipped_setups, source_at};
 
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
@@ -835,13 +835,7 @@ fn buck_network_regulates_above_dropout_edge_and_drops_out_below() {
     let bs = rest(0.5);
     let target = sc.setup.converter.charge_current_a;
     let solve = |emf: f64| {
-        let src = Source {
-            generator: &plant.generator,
-            diode: &plant.diode,
-            emf_v: emf,
-            resistance_ohm: plant.generator.resistance_ohm(20.0),
-            commutation_ohm: 0.0,
-        };
+        let src = source_at(&plant, emf);
         let load = Load::Buck {
             model: &plant.buck,
             target_a: target,

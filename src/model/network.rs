@@ -698,13 +698,14 @@ fn floored_point(
     floor_v: f64,
     term: &Terminal,
 ) -> NetworkPoint {
-    let full = solve(src, conv.charging(target), term);
-    if full.input_v >= floor_v || target <= 0.0 {
-        return full;
-    }
-    if src.emf_v <= floor_v {
-        // Not even an idle source reaches the floor: the floor loop asks for no current at all.
+    if target <= 0.0 || src.emf_v <= floor_v {
+        // Nothing asked, or not even an idle source reaches the floor: the floor loop asks for
+        // no current at all.
         return solve(src, conv.charging(0.0), term);
+    }
+    let full = solve(src, conv.charging(target), term);
+    if full.input_v >= floor_v {
+        return full;
     }
     let r = src.resistance_ohm.max(1e-9);
     let hi = (src.emf_v - floor_v) / r;
