@@ -595,6 +595,15 @@ fn value_at(fl: &Field, u: f64) -> String {
     }
 }
 
+/// Length of the property test's fast sessions, s: `CRANKCHARGE_PROPTEST_FAST_S` (read only by
+/// this test, for a local run of whole sessions, e.g. 600), default 20 (detailed ones take 5).
+fn property_fast_duration() -> String {
+    std::env::var("CRANKCHARGE_PROPTEST_FAST_S")
+        .ok()
+        .filter(|v| v.parse::<f64>().is_ok_and(|x| x > 0.0))
+        .unwrap_or_else(|| "20".to_string())
+}
+
 /// Cases the property test draws: `CRANKCHARGE_PROPTEST_CASES` (read only by this test, for a
 /// longer local run), default 100, a few seconds.
 fn property_cases() -> u32 {
@@ -608,7 +617,7 @@ fn property_cases() -> u32 {
 /// never panics and exits 0, 1, 2 or 3 only; a refusal (2) names a field; a written result keeps
 /// SOC in [0, 1], its ledger within 0.1 % and every figure finite; a failure (3) writes nothing.
 /// Longer local run: `CRANKCHARGE_PROPTEST_CASES=2000 cargo test --release --test integration
-/// random_settings_inside_their_ranges`.
+/// random_settings_inside_their_ranges`; whole fast sessions with `CRANKCHARGE_PROPTEST_FAST_S=600`.
 #[test]
 fn random_settings_inside_their_ranges_never_panic_and_never_publish_a_broken_result() {
     let cases = property_cases();
@@ -621,6 +630,7 @@ fn random_settings_inside_their_ranges_never_panic_and_never_publish_a_broken_re
         TestRunner::new_with_rng(config, TestRng::from_seed(RngAlgorithm::ChaCha, &[7u8; 32]));
     let wd = WorkDir::new();
     let counts = std::cell::RefCell::new([0usize; 4]);
+    let fast_s = property_fast_duration();
     let result = runner.run(&settings(), |(base, picks, detailed)| {
         let sets: Vec<String> = picks
             .iter()
@@ -631,7 +641,7 @@ fn random_settings_inside_their_ranges_never_panic_and_never_publish_a_broken_re
             "run",
             BASES[base],
             "--duration",
-            if detailed { "5" } else { "20" },
+            if detailed { "5" } else { &fast_s },
             "--fidelity",
             if detailed { "detailed" } else { "fast" },
             "--no-plot",
