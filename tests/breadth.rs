@@ -7,13 +7,14 @@ use std::path::{Path, PathBuf};
 use crankcharge::analysis::events::EventKind;
 use crankcharge::analysis::summary::Verdict;
 use crankcharge::analysis::trace::Mode;
+use crankcharge::model::battery::Terminal;
 use crankcharge::model::converter::{buck_boost_conversion_ratio, BuckBoostModel, Overhead};
 use crankcharge::model::jitter::JitterTrack;
 use crankcharge::model::network;
 use crankcharge::scenario::demo::SETUPS;
 use crankcharge::scenario::Scenario;
 use crankcharge::simulate::engine::{initial_discrete, initial_state};
-use crankcharge::simulate::plant::Plant;
+use crankcharge::simulate::plant::{Discrete, Plant};
 use crankcharge::simulate::state::{CRANK_SPEED, E_COGGING, GEN_SPEED, OP_INTEGRATOR, ROTOR_ANGLE};
 use crankcharge::simulate::Fidelity;
 use crankcharge::studies::session::Session;
@@ -26,6 +27,19 @@ use crate::common::{
 // ---------------------------------------------------------------------------------------------
 // Helpers (no expectations in here)
 // ---------------------------------------------------------------------------------------------
+
+/// The scenario's plant without jitter.
+fn quiet_plant(sc: &Scenario) -> Plant {
+    Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant")
+}
+
+/// The battery terminal and the mode at the scenario's start state (SOC and ambient of the
+/// setup), for operating points solved by hand.
+fn start_point<'a>(plant: &'a Plant, sc: &Scenario) -> (Terminal<'a>, Discrete) {
+    let y = initial_state(plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
+    let term = plant.battery.terminal(&Plant::battery_state(&y));
+    (term, initial_discrete(plant, &y))
+}
 
 fn setup_path(name: &str) -> PathBuf {
     repo().join(format!("profiles/setups/{name}.ron"))
@@ -712,12 +726,10 @@ fn cogging_is_conservative_and_the_ledger_closes_with_it() {
 #[test]
 fn buck_boost_runs_as_a_buck_above_the_battery_and_saves_losses() {
     let sc = load(&setup_path("demo-buck-boost"), &[]);
-    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
+    let plant = quiet_plant(&sc);
     let c = &sc.setup.converter;
-    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
-    let term = plant.battery.terminal(&Plant::battery_state(&y));
+    let (term, mut d) = start_point(&plant, &sc);
     let src = source_at(&plant, 24.0);
-    let mut d = initial_discrete(&plant, &y);
     d.buck_mode = false;
     let both = network::solve(&src, plant.converters(&d).charging(2.0), &term);
     d.buck_mode = true;
@@ -1303,10 +1315,8 @@ fn a_lossy_buck_boost_holds_its_input_floor_past_the_fold_and_balances() {
         .converter
         .input_floor_v
         .expect("demo-buck-boost ships an input floor");
-    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
-    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
-    let term = plant.battery.terminal(&Plant::battery_state(&y));
-    let mut d = initial_discrete(&plant, &y);
+    let plant = quiet_plant(&sc);
+    let (term, mut d) = start_point(&plant, &sc);
     d.enabled = true;
     d.buck_mode = false;
     let target = 2.0;
@@ -1373,9 +1383,8 @@ fn a_lossy_buck_boost_feed_forward_runs_on_through_the_fold() {
         &setup_path("demo-buck-boost"),
         &[("converter.switch_resistance_ohm", "0.75")],
     );
-    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
-    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
-    let mut d = initial_discrete(&plant, &y);
+    let plant = quiet_plant(&sc);
+    let (_, mut d) = start_point(&plant, &sc);
     d.buck_mode = false;
     let bb = plant.converters(&d).buck_boost;
     let c = &sc.setup.converter;
@@ -1436,10 +1445,8 @@ fn an_input_floor_above_the_emf_idles_the_charger_instead_of_cycling_it() {
     let floor_v = c
         .input_floor_v
         .expect("demo-buck-boost ships an input floor");
-    let plant = Plant::new(&sc.setup, &sc.profile, JitterTrack::default(), 0.0).expect("plant");
-    let y = initial_state(&plant, sc.setup.battery.soc_start, sc.setup.ambient_c);
-    let term = plant.battery.terminal(&Plant::battery_state(&y));
-    let mut d = initial_discrete(&plant, &y);
+    let plant = quiet_plant(&sc);
+    let (term, mut d) = start_point(&plant, &sc);
     d.enabled = true;
     for emf in [
         c.uvlo_on_v + 0.1,
