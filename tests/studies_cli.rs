@@ -773,6 +773,64 @@ fn check_counts_the_input_floor_in_its_regulation_cadences() {
 }
 
 #[test]
+fn a_session_below_the_checked_cadence_is_held_at_its_floor_out_of_regulation() {
+    // `check` holds a floored charger in regulation only where it passes its full current with
+    // the input above the floor; a session cranked steadily (no jitter) a few rpm below that
+    // cadence spends its time trimmed at the floor and out of regulation, and one above it is
+    // regulating once spun up. The static solve and the time-domain session must agree.
+    let wd = WorkDir::new();
+    let floor = "converter.input_floor_v=14";
+    let v: Value =
+        serde_json::from_str(&run_ok(&wd, &["check", "--json", "--set", floor])).expect("JSON");
+    let need = num(&v, "converter.regulation_cadence_at_start_rpm");
+    let session = |rpm: f64, out: &str| -> (f64, Vec<String>) {
+        let cadence = format!("profile.segments.0.cadence_rpm={rpm}");
+        run_ok(
+            &wd,
+            &[
+                "run",
+                "demo",
+                "--duration",
+                "60",
+                "--no-plot",
+                "-q",
+                "--set",
+                floor,
+                "--set",
+                "profile.jitter.enabled=false",
+                "--set",
+                &cadence,
+                "--out",
+                out,
+            ],
+        );
+        let dir = wd.path(out);
+        let summary = read_json(&dir.join("summary.json"));
+        let (header, rows) = read_csv(&dir.join("events.csv"));
+        let losses = text_col(&header, &rows, "kind")
+            .into_iter()
+            .zip(text_col(&header, &rows, "detail"))
+            .filter(|(k, _)| k == "regulation_loss")
+            .map(|(_, d)| d)
+            .collect();
+        (num(&summary, "in_regulation_fraction"), losses)
+    };
+    let (below, losses) = session(need - 6.0, "below");
+    assert!(
+        below < 0.05,
+        "{below} in regulation {} rpm under {need}",
+        6.0
+    );
+    assert!(!losses.is_empty());
+    assert!(
+        losses.iter().all(|d| d.contains("14.00 V floor")),
+        "{losses:?}"
+    );
+    let (above, _) = session(need + 8.0, "above");
+    assert!(above > 0.9, "{above} in regulation 8 rpm over {need}");
+}
+
+#[test]
 fn check_prints_figures_and_the_cautions() {
     let wd = WorkDir::new();
     let out = run_ok(&wd, &["check"]);

@@ -18,6 +18,8 @@ pub enum Mode {
     Float,
     /// Duty saturated at its maximum: the converter passes what it can.
     Dropout,
+    /// The charger trims its current below the set point (or idles) to hold its input floor.
+    InputFloor,
     /// Charge terminated (Li-ion below the termination current).
     Done,
     /// NiMH: the fast charge ended (voltage drop or temperature rise); trickle current.
@@ -40,6 +42,7 @@ impl Mode {
             Mode::Cv => "cv",
             Mode::Float => "float",
             Mode::Dropout => "dropout",
+            Mode::InputFloor => "input_floor",
             Mode::Done => "done",
             Mode::Trickle => "trickle",
             Mode::TempHold => "temp_hold",

@@ -338,6 +338,7 @@ fn averaged_point(
         battery_current_a: ib,
         battery_v: v_o,
         dropout: false,
+        floor_limited: false,
         diode_v: src.diode_drop(i_a),
         brush_v: src.generator.brush_drop(i_a),
         losses: ConverterLosses {

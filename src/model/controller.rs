@@ -53,6 +53,9 @@ pub struct ControlOutput {
     pub cv_active: bool,
     /// Duty held at D_max while the current is short of its reference.
     pub saturated: bool,
+    /// The input floor's error sets the current reference below the CC limit: the charger trims
+    /// its current to hold its input (input-limited, not holding its set point).
+    pub floor_limited: bool,
     /// d(voltage integrator)/dt, A/s.
     pub voltage_rate: f64,
     /// d(current integrator)/dt, 1/s.
@@ -78,7 +81,13 @@ pub struct ControlInput {
 /// Evaluates both loops. Feed-forward duty (V_o + V_D)/(V_in − V_sw + V_D) keeps the current loop's
 /// integrator small across input changes.
 pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> ControlOutput {
-    let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
+    let VoltageLoop {
+        current_ref,
+        cv_active,
+        floor_limited,
+        e_v,
+        i_v,
+    } = voltage_loop(x, g);
     let e_i = current_ref - x.inductor_a;
     let den = x.input_v - buck.switch_drop_v + buck.catch_drop_v;
     let d_ff = if den > 0.0 {
@@ -94,6 +103,7 @@ pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> Contr
         current_ref_a: current_ref,
         cv_active,
         saturated,
+        floor_limited,
         voltage_rate: voltage_rate(g, x, e_v, i_v) + cascade_back_calculation(g, duty, d_cmd),
         current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
     }
@@ -108,8 +118,21 @@ fn cascade_back_calculation(g: &ControllerGains, duty: f64, d_cmd: f64) -> f64 {
     (duty - d_cmd) / (g.kp_i * g.anti_windup_s)
 }
 
-/// Voltage loop shared by every topology: (current reference, CV active, error, PI output).
-fn voltage_loop(x: &ControlInput, g: &ControllerGains) -> (f64, bool, f64, f64) {
+/// The shared voltage loop's demand.
+struct VoltageLoop {
+    current_ref: f64,
+    cv_active: bool,
+    /// The input floor's error is the one in force and keeps the reference below CC.
+    floor_limited: bool,
+    /// Error in force, V.
+    e_v: f64,
+    /// PI output before the [0, CC] clamp, A.
+    i_v: f64,
+}
+
+/// Voltage loop shared by every topology: the lower of the output error and the (scaled) input
+/// floor error drives one PI whose output, clamped to [0, CC], is the current reference.
+fn voltage_loop(x: &ControlInput, g: &ControllerGains) -> VoltageLoop {
     let e_out = x.v_set - x.output_v;
     let e_in = x
         .input_floor_v
@@ -117,7 +140,14 @@ fn voltage_loop(x: &ControlInput, g: &ControllerGains) -> (f64, bool, f64, f64) 
     let e_v = e_out.min(e_in);
     let i_v = x.voltage_integrator + g.kp_v * e_v;
     let current_ref = x.ramp.clamp(0.0, 1.0) * x.cc_limit_a.min(i_v.max(0.0));
-    (current_ref, i_v < x.cc_limit_a && e_out <= e_in, e_v, i_v)
+    let below_cc = i_v < x.cc_limit_a;
+    VoltageLoop {
+        current_ref,
+        cv_active: below_cc && e_out <= e_in,
+        floor_limited: below_cc && e_in < e_out && x.cc_limit_a > 0.0,
+        e_v,
+        i_v,
+    }
 }
 
 /// Voltage-integrator rate: integral of the error plus back-calculation to the [0, CC] clamp.
@@ -135,7 +165,13 @@ pub fn control_buck_boost(
     bb: &BuckBoostModel,
     x: &ControlInput,
 ) -> ControlOutput {
-    let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
+    let VoltageLoop {
+        current_ref,
+        cv_active,
+        floor_limited,
+        e_v,
+        i_v,
+    } = voltage_loop(x, g);
     let d_ff = bb
         .feed_forward_duty(x.input_v, x.output_v.max(0.0), current_ref)
         .max(0.0);
@@ -149,6 +185,7 @@ pub fn control_buck_boost(
         current_ref_a: current_ref,
         cv_active,
         saturated,
+        floor_limited,
         // The inner loop holds I_ref/(1 − d_ff): its unmet current scales back by (1 − d_ff).
         voltage_rate: voltage_rate(g, x, e_v, i_v)
             + (1.0 - d_ff) * cascade_back_calculation(g, duty, d_cmd),
@@ -159,7 +196,13 @@ pub fn control_buck_boost(
 /// Linear charger: the voltage loop sets the pass current directly (no inner loop; the current
 /// integrator rests); saturated when the headroom cannot pass the reference (dropout).
 pub fn control_linear(g: &ControllerGains, lin: &LinearModel, x: &ControlInput) -> ControlOutput {
-    let (current_ref, cv_active, e_v, i_v) = voltage_loop(x, g);
+    let VoltageLoop {
+        current_ref,
+        cv_active,
+        floor_limited,
+        e_v,
+        i_v,
+    } = voltage_loop(x, g);
     let room = lin.max_current_a(x.input_v, x.output_v);
     let saturated = current_ref > 0.0 && room < current_ref;
     ControlOutput {
@@ -171,6 +214,7 @@ pub fn control_linear(g: &ControllerGains, lin: &LinearModel, x: &ControlInput) 
         current_ref_a: current_ref,
         cv_active,
         saturated,
+        floor_limited,
         voltage_rate: voltage_rate(g, x, e_v, i_v),
         current_rate: -x.current_integrator / g.anti_windup_s,
     }

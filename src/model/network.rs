@@ -186,6 +186,9 @@ pub struct NetworkPoint {
     pub battery_v: f64,
     /// Duty saturated at D_max with less current than asked.
     pub dropout: bool,
+    /// The charger passes less than asked to hold its input at its floor (or idles because not
+    /// even the unloaded source reaches the floor): input-limited, not holding its set point.
+    pub floor_limited: bool,
     /// Protection diode drop, V.
     pub diode_v: f64,
     /// Brush drop, V.
@@ -513,6 +516,7 @@ fn switching_point(
         battery_current_a: ib,
         battery_v: vo,
         dropout,
+        floor_limited: false,
         // `v` is node_v(i) = V_out(i) − i·R − V_brush − V_D: the diode drop follows without
         // another logarithm.
         diode_v: (src.rectified(i).0 - i * src.resistance_ohm - brush_v - v).max(0.0),
@@ -678,6 +682,7 @@ fn linear_point(src: &Source, lin: &LinearModel, target: f64, term: &Terminal) -
         battery_current_a: ib,
         battery_v: vo,
         dropout,
+        floor_limited: false,
         diode_v: src.diode_drop(i),
         brush_v,
         losses: lin.losses(ib, v, vo),
@@ -698,10 +703,17 @@ fn floored_point(
     floor_v: f64,
     term: &Terminal,
 ) -> NetworkPoint {
-    if target <= 0.0 || src.emf_v <= floor_v {
-        // Nothing asked, or not even an idle source reaches the floor: the floor loop asks for
-        // no current at all.
+    // The charger idles or trims its current below the target to hold the floor.
+    let limited = |p: NetworkPoint| NetworkPoint {
+        floor_limited: true,
+        ..p
+    };
+    if target <= 0.0 {
         return solve(src, conv.charging(0.0), term);
+    }
+    if src.emf_v <= floor_v {
+        // Not even an idle source reaches the floor: the floor loop asks for no current at all.
+        return limited(solve(src, conv.charging(0.0), term));
     }
     let full = solve(src, conv.charging(target), term);
     if full.input_v >= floor_v {
@@ -736,7 +748,7 @@ fn floored_point(
     let (mut lo, mut hi) = (0.0, target);
     if f(lo) >= 0.0 {
         // Even the quiescent draw pulls the input under the floor: pass nothing.
-        return solve(src, conv.charging(0.0), term);
+        return limited(solve(src, conv.charging(0.0), term));
     }
     // Bisection (the residual jumps to +∞ past D_max, so no slopes).
     for _ in 0..60 {
@@ -784,6 +796,7 @@ fn floored_point(
     p.input_v = src.node_v(p.generator_current_a);
     p.diode_v = src.diode_drop(p.generator_current_a);
     p.brush_v = src.generator.brush_drop(p.generator_current_a);
+    p.floor_limited = ib < target * (1.0 - 1e-9);
     p
 }
 

@@ -185,6 +185,7 @@ fn sag(
         battery_current_a: i,
         battery_v: s.bus_v.max(0.0),
         dropout: true,
+        floor_limited: false,
         diode_v: src.diode_drop(ig),
         brush_v: src.generator.brush_drop(ig),
         losses,

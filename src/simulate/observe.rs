@@ -44,8 +44,8 @@ pub const USB_OUT_OF_BAND: u8 = 5;
 /// Why regulation is lost while the operator cranks: 0 held (or not cranking, or no converter),
 /// 1 dropout (duty at its limit or the pass element out of headroom), 2 locked out or shut down,
 /// 3 restarting (soft-start ramp), 4 another reason; with a USB port 5 the bus outside its band
-/// while the device draws and 6 the device cut off. Each reason is a run of its own, so
-/// events.csv says which.
+/// while the device draws and 6 the device cut off; 7 the current trimmed (or the charger idle)
+/// to hold the input floor. Each reason is a run of its own, so events.csv says which.
 fn regulation_code(plant: &Plant, conv: bool, p: &Point, d: &Discrete) -> u8 {
     if !conv || !p.cranking || p.in_regulation {
         0
@@ -61,6 +61,8 @@ fn regulation_code(plant: &Plant, conv: bool, p: &Point, d: &Discrete) -> u8 {
         1
     } else if p.restarting {
         3
+    } else if p.net.floor_limited {
+        7
     } else {
         // Not regulating for a reason none of the above names (kept apart, never hidden).
         4
@@ -274,6 +276,7 @@ fn reading(
             (Some(u), 5) => bus(u.band_low_v).below(),
             (Some(u), 6) => bus(u.cutoff_v).below(),
             (_, 2) => input(restart_input_v(plant, p)).below(),
+            (_, 7) => input(plant.charger.input_floor_v.unwrap_or(f64::NAN)).below(),
             _ => input(regulation_input_v(plant, p, d)).below(),
         },
         EventKind::Lockout => input(restart_input_v(plant, p)).below(),
@@ -404,6 +407,10 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             },
             2 => "converter locked out or shut down while cranking".to_string(),
             3 => "converter restarting: soft-start ramp below the set point".to_string(),
+            7 => format!(
+                "input held at its {:.2} V floor: charge current trimmed below the set point",
+                plant.charger.input_floor_v.unwrap_or(f64::NAN)
+            ),
             _ => "converter not holding its set point".to_string(),
         },
         EventKind::Lockout => {

@@ -578,11 +578,16 @@ impl Plant {
         };
 
         let (powers, rates) = frozen.flows(net.battery_current_a, net.battery_v);
-        // Regulating means holding the set point: locked out, shut down, in dropout, or still
-        // ramping up after a (re)start, a charger is not. A converter that keeps restarting
-        // (hiccup) spends its time in the soft-start ramp and is counted out of regulation there.
+        // Regulating means holding the set point: locked out, shut down, in dropout, trimming its
+        // current to hold an input floor, or still ramping up after a (re)start, a charger is
+        // not. A converter that keeps restarting (hiccup) spends its time in the soft-start ramp
+        // and is counted out of regulation there.
         let in_regulation = if self.has_converter() {
-            d.enabled && !d.ov_shutdown && d.soft_done && (!net.dropout || target_current <= 0.0)
+            d.enabled
+                && !d.ov_shutdown
+                && d.soft_done
+                && !net.floor_limited
+                && (!net.dropout || target_current <= 0.0)
         } else {
             true
         };
@@ -782,6 +787,7 @@ impl Plant {
                 };
                 let (mut p, rates) = circuit::evaluate(src, &self.circuit, term, drive, &x);
                 p.dropout = out.saturated;
+                p.floor_limited = out.floor_limited;
                 (
                     p,
                     out.current_ref_a,

@@ -233,6 +233,9 @@ fn mode_of(plant: &Plant, p: &Point, d: &Discrete) -> Mode {
     if !d.soft_done {
         return Mode::SoftStart;
     }
+    if p.net.floor_limited {
+        return Mode::InputFloor;
+    }
     if d.stage == Stage::Float {
         return Mode::Float;
     }

@@ -27,6 +27,7 @@ fn mode_style(m: Mode) -> (RGBColor, &'static str) {
         Mode::Cv => (OLIVE, "CV / absorption"),
         Mode::Float => (PLUM, "float"),
         Mode::Dropout => (BRICK, "dropout"),
+        Mode::InputFloor => (RGBColor(205, 120, 90), "input floor"),
         Mode::Done => (AMBER, "done"),
         Mode::Trickle => (RGBColor(200, 170, 90), "trickle"),
         Mode::TempHold => (UMBER, "temperature hold"),
