@@ -1452,6 +1452,50 @@ fn a_lossy_buck_boost_feed_forward_runs_on_through_the_fold() {
     );
 }
 
+/// Where a lossy buck-boost's output folds over: the duty of the most output, from the published
+/// conversion ratio of a buck-boost with inductor winding resistance on a resistive load.
+#[test]
+fn the_fold_duty_is_where_the_published_conversion_ratio_peaks() {
+    // From memory: Erickson & Maksimović, Fundamentals of Power Electronics, 2nd ed. (2001),
+    // ch. 3 (steady-state equivalent circuits with losses): a buck-boost with inductor
+    // resistance R_L into a load R has M(D) = D/(1 − D) · 1/(1 + R_L/((1 − D)²·R)); unlike the
+    // ideal D/(1 − D) it has a maximum below D = 1, the sharper the larger R_L/R. Valid for CCM
+    // with ideal switches and diodes (as set here).
+    let r_load = 10.0;
+    for r_l in [0.2, 0.5, 1.0] {
+        let bb = BuckBoostModel {
+            inductor_resistance_ohm: r_l,
+            ..ideal_buck_boost(1e-4, 100e3)
+        };
+        let term = Terminal::Linear {
+            rest_v: 0.0,
+            r_ohm: r_load,
+        };
+        let m = |d: f64| d / (1.0 - d) / (1.0 + r_l / ((1.0 - d).powi(2) * r_load));
+        let (d_peak, _) = (1..1_000_000)
+            .map(|k| f64::from(k) * 1e-6)
+            .map(|d| (d, m(d)))
+            .fold((0.0, f64::MIN), |b, p| if p.1 > b.1 { p } else { b });
+        let (got, i_fold) = network::bb_fold(&bb, &term, 12.0).expect("folds below D_max");
+        // The current there is the load's: M(D)·V_in/R.
+        assert!((i_fold - m(got) * 12.0 / r_load).abs() < 1e-6 * i_fold);
+        assert!(
+            (got - d_peak).abs() < 1e-5,
+            "R_L {r_l} Ω: fold at {got}, M(D) peaks at {d_peak}"
+        );
+    }
+    // A converter whose output still rises at D_max has no fold to report.
+    let term = Terminal::Linear {
+        rest_v: 0.0,
+        r_ohm: r_load,
+    };
+    let small = BuckBoostModel {
+        inductor_resistance_ohm: 0.01,
+        ..ideal_buck_boost(1e-4, 100e3)
+    };
+    assert_eq!(network::bb_fold(&small, &term, 12.0), None);
+}
+
 /// An input floor the generator cannot reach yet (spin-up, a slow crank) idles the charger: its
 /// floor loop asks for no current, so the input stays near the EMF, above UVLO. The fast fidelity
 /// used to ask for the full current there, pull the input under UVLO and restart it again and

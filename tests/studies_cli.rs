@@ -831,6 +831,35 @@ fn a_session_below_the_checked_cadence_is_held_at_its_floor_out_of_regulation() 
 }
 
 #[test]
+fn check_names_a_lossy_buck_boosts_fold_short_of_its_current() {
+    // The shipped buck-boost passes its charge current at its floor well before its output folds
+    // over; with half an ohm in each switch it cannot (the fold's current is short of 2 A), and
+    // `check` says so, with the fold's duty below D_max.
+    let wd = WorkDir::new();
+    let notes = |sets: &[&str]| -> Vec<String> {
+        let mut args = vec!["check", "demo-buck-boost", "--json"];
+        for s in sets {
+            args.extend(["--set", s]);
+        }
+        let v: Value = serde_json::from_str(&run_ok(&wd, &args)).expect("JSON");
+        v["notes"]
+            .as_array()
+            .expect("notes")
+            .iter()
+            .map(|n| n.as_str().unwrap_or_default().to_string())
+            .collect()
+    };
+    assert!(!notes(&[]).iter().any(|n| n.contains("fold")));
+    let lossy = notes(&["converter.switch_resistance_ohm=0.5"]);
+    let fold = lossy
+        .iter()
+        .find(|n| n.contains("fold"))
+        .unwrap_or_else(|| panic!("no fold note in {lossy:?}"));
+    assert!(fold.contains("short of its 2.000 A"), "{fold}");
+    assert!(fold.contains("9.50 V"), "{fold}");
+}
+
+#[test]
 fn check_prints_figures_and_the_cautions() {
     let wd = WorkDir::new();
     let out = run_ok(&wd, &["check"]);

@@ -824,6 +824,53 @@ fn bb_current_at_duty(bb: &BuckBoostModel, term: &Terminal, v: f64, d: f64) -> f
     root_in(0.0, hi, 0.5 * hi, CURRENT_TOL_A, res)
 }
 
+/// The fold of a buck-boost fed from `v`: the duty at which it passes the most battery current,
+/// and that current, A, when the duty lies below its D_max; past it more duty passes less, the
+/// conduction loss of the switch and inductor resistances outgrowing the conversion gain (the
+/// maximum of M(D) with losses, Erickson & Maksimović ch. 3). Into a battery there is always
+/// one (the current falls as 1 − D near D = 1); it matters when its current is short of the
+/// charge current. None when the current still rises at D_max. A coarse scan of the duty
+/// range, then a golden-section search around the best sample (the current is zero up to the
+/// duty where the drive first exceeds the output, then unimodal).
+pub fn bb_fold(bb: &BuckBoostModel, term: &Terminal, v: f64) -> Option<(f64, f64)> {
+    const SAMPLES: usize = 200;
+    const INV_PHI: f64 = 0.618_033_988_749_894_8;
+    let d_max = bb.max_duty;
+    let f = |d: f64| bb_current_at_duty(bb, term, v, d);
+    let step = d_max / SAMPLES as f64;
+    if f(d_max) >= f(d_max - 1e-6) {
+        return None;
+    }
+    let (best, _) = (0..=SAMPLES)
+        .map(|k| {
+            let d = k as f64 * step;
+            (d, f(d))
+        })
+        .max_by(|a, b| a.1.total_cmp(&b.1))?;
+    let (mut lo, mut hi) = ((best - step).max(0.0), (best + step).min(d_max));
+    let mut a = hi - INV_PHI * (hi - lo);
+    let mut b = lo + INV_PHI * (hi - lo);
+    let (mut fa, mut fb) = (f(a), f(b));
+    while hi - lo > 1e-10 {
+        if fa >= fb {
+            hi = b;
+            b = a;
+            fb = fa;
+            a = hi - INV_PHI * (hi - lo);
+            fa = f(a);
+        } else {
+            lo = a;
+            a = b;
+            fa = fb;
+            b = lo + INV_PHI * (hi - lo);
+            fb = f(b);
+        }
+    }
+    let d = 0.5 * (lo + hi);
+    let i = f(d);
+    (d < d_max - 1e-6 && i > 0.0).then_some((d, i))
+}
+
 /// A buck-boost holding its input at `floor_v` past the fold of its output: the duty in
 /// [`d_fold`, D_max] at which its input current equals the source's `i_f` (bisection; the input
 /// current rises with duty), with the battery current and voltage there. None if even D_max

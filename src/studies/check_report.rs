@@ -8,7 +8,7 @@ use super::outcome::Failure;
 use crate::model::battery::li_ion::TempBand;
 use crate::model::battery::{BatteryModel, BatteryState};
 use crate::model::jitter::JitterTrack;
-use crate::model::network::{Load, NetworkPoint};
+use crate::model::network::{self, Load, NetworkPoint};
 use crate::scenario::setup::Topology;
 use crate::scenario::Scenario;
 use crate::simulate::plant::Plant;
@@ -326,6 +326,9 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
                 c.input_overvoltage_v,
                 c.overvoltage_shutdown,
             );
+            if plant.charger.topology == Topology::BuckBoost {
+                fold_note(&mut notes, plant, &bs_start, start_target);
+            }
             if blocked {
                 notes.push(format!(
                     "The battery starts at {temp_start} °C, outside its charge temperature window: the charger will not charge it until it is back inside (figures assume it does)."
@@ -517,6 +520,26 @@ fn operating(
         crank_torque_n_m: torque,
         crank_power_w: torque * rpm_to_rad_s(crank_rpm),
         operator_critical_power_w: critical_power_w,
+    }
+}
+
+/// A buck-boost whose output folds over short of the charge current `target_a` at its lowest
+/// working input (the input floor, or the UVLO off threshold): there it cannot pass its current
+/// at any duty, past the fold more duty passes less, and the two fidelities part (the fast one
+/// holds the floor past it, the detailed one's loops cycle).
+fn fold_note(notes: &mut Vec<String>, plant: &Plant, bs: &BatteryState, target_a: f64) {
+    let c = &plant.charger;
+    let (v_low, which) = match c.input_floor_v {
+        Some(f) => (f, "its input floor"),
+        None => (c.uvlo_off_v, "its UVLO off threshold"),
+    };
+    let bb = &plant.buck_boost;
+    let term = plant.battery.static_terminal(bs);
+    if let Some((d, i)) = network::bb_fold(bb, &term, v_low).filter(|&(_, i)| i < target_a) {
+        notes.push(format!(
+            "At {which} ({v_low:.2} V in) the buck-boost passes at most {i:.3} A, short of its {target_a:.3} A, at duty {d:.3} (D_max {:.2}): past that fold more duty passes less current (each switch {:.3} Ω, inductor {:.3} Ω). There the fast and detailed fidelities differ (README, converter topologies); parts with less resistance raise the fold's current.",
+            bb.max_duty, bb.switch_resistance_ohm, bb.inductor_resistance_ohm
+        ));
     }
 }
 
