@@ -81,13 +81,8 @@ pub struct ControlInput {
 /// Evaluates both loops. Feed-forward duty (V_o + V_D)/(V_in − V_sw + V_D) keeps the current loop's
 /// integrator small across input changes.
 pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> ControlOutput {
-    let VoltageLoop {
-        current_ref,
-        cv_active,
-        floor_limited,
-        e_v,
-        i_v,
-    } = voltage_loop(x, g);
+    let vl = voltage_loop(x, g);
+    let current_ref = vl.current_ref;
     let e_i = current_ref - x.inductor_a;
     let den = x.input_v - buck.switch_drop_v + buck.catch_drop_v;
     let d_ff = if den > 0.0 {
@@ -101,10 +96,10 @@ pub fn control(g: &ControllerGains, buck: &BuckModel, x: &ControlInput) -> Contr
     ControlOutput {
         duty,
         current_ref_a: current_ref,
-        cv_active,
+        cv_active: vl.cv_active,
         saturated,
-        floor_limited,
-        voltage_rate: voltage_rate(g, x, e_v, i_v) + cascade_back_calculation(g, duty, d_cmd),
+        floor_limited: vl.floor_limited,
+        voltage_rate: voltage_rate(g, x, &vl) + cascade_back_calculation(g, duty, d_cmd),
         current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
     }
 }
@@ -151,9 +146,9 @@ fn voltage_loop(x: &ControlInput, g: &ControllerGains) -> VoltageLoop {
 }
 
 /// Voltage-integrator rate: integral of the error plus back-calculation to the [0, CC] clamp.
-fn voltage_rate(g: &ControllerGains, x: &ControlInput, e_v: f64, i_v: f64) -> f64 {
-    let i_v_clamped = i_v.clamp(0.0, x.cc_limit_a);
-    g.ki_v * e_v + (i_v_clamped - i_v) / g.anti_windup_s
+fn voltage_rate(g: &ControllerGains, x: &ControlInput, vl: &VoltageLoop) -> f64 {
+    let i_v_clamped = vl.i_v.clamp(0.0, x.cc_limit_a);
+    g.ki_v * vl.e_v + (i_v_clamped - vl.i_v) / g.anti_windup_s
 }
 
 /// Buck-boost loops: the voltage loop sets the battery-current reference I_ref; the inner loop
@@ -165,13 +160,8 @@ pub fn control_buck_boost(
     bb: &BuckBoostModel,
     x: &ControlInput,
 ) -> ControlOutput {
-    let VoltageLoop {
-        current_ref,
-        cv_active,
-        floor_limited,
-        e_v,
-        i_v,
-    } = voltage_loop(x, g);
+    let vl = voltage_loop(x, g);
+    let current_ref = vl.current_ref;
     let d_ff = bb
         .feed_forward_duty(x.input_v, x.output_v.max(0.0), current_ref)
         .max(0.0);
@@ -183,11 +173,11 @@ pub fn control_buck_boost(
     ControlOutput {
         duty,
         current_ref_a: current_ref,
-        cv_active,
+        cv_active: vl.cv_active,
         saturated,
-        floor_limited,
+        floor_limited: vl.floor_limited,
         // The inner loop holds I_ref/(1 − d_ff): its unmet current scales back by (1 − d_ff).
-        voltage_rate: voltage_rate(g, x, e_v, i_v)
+        voltage_rate: voltage_rate(g, x, &vl)
             + (1.0 - d_ff) * cascade_back_calculation(g, duty, d_cmd),
         current_rate: g.ki_i * e_i + (duty - d_cmd) / g.anti_windup_s,
     }
@@ -196,13 +186,8 @@ pub fn control_buck_boost(
 /// Linear charger: the voltage loop sets the pass current directly (no inner loop; the current
 /// integrator rests); saturated when the headroom cannot pass the reference (dropout).
 pub fn control_linear(g: &ControllerGains, lin: &LinearModel, x: &ControlInput) -> ControlOutput {
-    let VoltageLoop {
-        current_ref,
-        cv_active,
-        floor_limited,
-        e_v,
-        i_v,
-    } = voltage_loop(x, g);
+    let vl = voltage_loop(x, g);
+    let current_ref = vl.current_ref;
     let room = lin.max_current_a(x.input_v, x.output_v);
     let saturated = current_ref > 0.0 && room < current_ref;
     ControlOutput {
@@ -212,10 +197,10 @@ pub fn control_linear(g: &ControllerGains, lin: &LinearModel, x: &ControlInput) 
             1.0
         },
         current_ref_a: current_ref,
-        cv_active,
+        cv_active: vl.cv_active,
         saturated,
-        floor_limited,
-        voltage_rate: voltage_rate(g, x, e_v, i_v),
+        floor_limited: vl.floor_limited,
+        voltage_rate: voltage_rate(g, x, &vl),
         current_rate: -x.current_integrator / g.anti_windup_s,
     }
 }
