@@ -478,6 +478,7 @@ const FIELDS: &[Field] = &[
     f("converter.soft_start_s", 0.0, 10.0, false),
     f("converter.restart_delay_s", 0.0, 10.0, false),
     f("converter.input_overvoltage_v", 1.0, 1000.0, true),
+    f("converter.input_floor_v", 0.5, 1000.0, true),
     f("converter.input_capacitance_f", 1e-7, 1.0, true),
     f("converter.output_capacitance_f", 1e-7, 1.0, true),
     f("converter.cv_setpoint_v", 0.5, 1000.0, true),
