@@ -423,6 +423,61 @@ fn a_source_that_cannot_carry_the_starting_converter_completes_as_a_hiccup_in_fe
     assert!((1..=6).contains(&rows), "{rows} rows: {:?}", m.alerts);
 }
 
+/// A charger whose own CV set point lies past the battery's charge limit overcharges it once it
+/// is near full, even where the session never gets there and the model's full cell (which stores
+/// nothing more) keeps its terminal near the limit: the verdict says `overcharge`; a set point
+/// within the tolerance does not.
+#[test]
+fn a_charger_set_past_the_charge_limit_is_an_overcharging_design() {
+    // Source: Battery University BU-409 "Charging Lithium-ion" (REFERENCES.md): CV 4.20 V/cell
+    // ± 50 mV for NMC; the demo's 3S pack then allows 12.60 V + 0.15 V.
+    let past = session(
+        "demo",
+        "steady",
+        30.0,
+        &[("converter.cv_setpoint_v", "12.80")],
+    );
+    let m = &past.summary;
+    assert!(m.verdict.has("overcharge"), "{:?}", m.verdict);
+    assert!(
+        m.verdict_reasons
+            .iter()
+            .any(|r| r.contains("set point 12.800 V")),
+        "{:?}",
+        m.verdict_reasons
+    );
+    // The session itself stayed far below the limit (SOC 0.3): only the set point flags it.
+    assert!(m.max_battery_v < 12.0, "{}", m.max_battery_v);
+    let within = session(
+        "demo",
+        "steady",
+        30.0,
+        &[("converter.cv_setpoint_v", "12.70")],
+    );
+    assert!(
+        !within.summary.verdict.has("overcharge"),
+        "{:?}",
+        within.summary.verdict
+    );
+    // A full pack held at CC by a charger set to 4.6 V a cell: the model's cell stores nothing
+    // past full, so its terminal stays under the alert threshold; the set point decides.
+    let full = session(
+        "demo",
+        "steady",
+        60.0,
+        &[
+            ("converter.cv_setpoint_v", "13.80"),
+            ("battery.soc_start", "0.995"),
+            ("converter.charge_current_a", "0.5"),
+        ],
+    );
+    assert!(
+        full.summary.verdict.has("overcharge"),
+        "{:?}",
+        full.summary.verdict
+    );
+}
+
 /// A buck-boost whose buck stage falls into dropout as soon as it runs as a buck (a 3-Ω switch)
 /// used to trade modes at one instant until the run failed: it now enters buck mode only when
 /// the buck's own operating point holds, and the session completes.

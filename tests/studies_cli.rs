@@ -860,6 +860,34 @@ fn check_names_a_lossy_buck_boosts_fold_short_of_its_current() {
 }
 
 #[test]
+fn check_warns_of_a_set_point_past_the_charge_limit() {
+    // Source: Battery University BU-409 (REFERENCES.md): 4.20 V/cell ± 50 mV for NMC, so the
+    // demo's 3S pack allows 12.60 V + 0.15 V: 13.0 V is past it, 12.70 V within the tolerance.
+    let wd = WorkDir::new();
+    let notes = |set: &str| -> Vec<String> {
+        let v: Value =
+            serde_json::from_str(&run_ok(&wd, &["check", "--json", "--set", set])).expect("JSON");
+        v["notes"]
+            .as_array()
+            .expect("notes")
+            .iter()
+            .map(|n| n.as_str().unwrap_or_default().to_string())
+            .collect()
+    };
+    let past = notes("converter.cv_setpoint_v=13.0");
+    assert!(
+        past.iter()
+            .any(|n| n.contains("set point 13.000 V") && n.contains("overcharge")),
+        "{past:?}"
+    );
+    let within = notes("converter.cv_setpoint_v=12.70");
+    assert!(
+        !within.iter().any(|n| n.contains("set point")),
+        "{within:?}"
+    );
+}
+
+#[test]
 fn check_prints_figures_and_the_cautions() {
     let wd = WorkDir::new();
     let out = run_ok(&wd, &["check"]);

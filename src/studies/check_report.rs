@@ -329,6 +329,14 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
             if plant.charger.topology == Topology::BuckBoost {
                 fold_note(&mut notes, plant, &bs_start, start_target);
             }
+            let limit_v = battery.charge_limit_v(temp_start);
+            let tolerance_v = plant.alerts.overcharge.tolerance_v_per_cell * battery.series_cells();
+            if c.cv_setpoint_v.is_some_and(|v| v > limit_v + tolerance_v) {
+                notes.push(format!(
+                    "The charger's CV set point {setpoint:.3} V lies {:.3} V past the battery's charge limit {limit_v:.3} V at {temp_start} °C (tolerance {tolerance_v:.3} V): it will overcharge the battery once it is near full, and a run's verdict says `overcharge` whatever the session reaches.",
+                    setpoint - limit_v
+                ));
+            }
             if blocked {
                 notes.push(format!(
                     "The battery starts at {temp_start} °C, outside its charge temperature window: the charger will not charge it until it is back inside (figures assume it does)."

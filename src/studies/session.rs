@@ -406,9 +406,22 @@ fn verdict_of(
     peak_v: f64,
     threshold_at_peak_v: f64,
     in_regulation: Option<f64>,
+    setpoint: Option<SetpointPast>,
 ) -> (Verdict, Vec<String>, bool) {
     let mut flags = Vec::new();
     let mut reasons = Vec::new();
+    // A charger set to hold the battery past its limit overcharges it whenever it brings it to
+    // full, whether or not this session got there.
+    if let Some(sp) = setpoint {
+        flags.push("overcharge");
+        reasons.push(format!(
+            "overcharge: the charger's set point {:.3} V lies {:.3} V past the charge limit {:.3} V in force (tolerance {:.3} V): it drives the battery past its limit whenever it brings it to full",
+            sp.setpoint_v,
+            sp.setpoint_v - sp.limit_v,
+            sp.limit_v,
+            sp.tolerance_v
+        ));
+    }
     let band_v = alerts.overcharge_decision_band_v;
     let over: Vec<&Event> = rows
         .iter()
@@ -546,6 +559,7 @@ fn summarise(
         peak_v,
         threshold_at_peak,
         in_regulation.filter(|_| cranking > 0.0),
+        setpoint_past_limit(plant, trace),
     );
     for e in &mut rows {
         e.affects_verdict = match e.kind {
@@ -711,6 +725,39 @@ fn nimh_summary(plant: &Plant, r: &SimResult) -> Option<NimhSummary> {
 }
 
 /// The overcharge tolerance of the whole battery, V (per-cell tolerance × series cells).
+/// A charger voltage set point past the battery's charge limit.
+#[derive(Debug, Clone, Copy, PartialEq)]
+struct SetpointPast {
+    setpoint_v: f64,
+    /// The lowest charge limit in force over the session, V.
+    limit_v: f64,
+    tolerance_v: f64,
+}
+
+/// The charger's own voltage set point (`converter.cv_setpoint_v`) when it lies past the lowest
+/// charge limit in force over the session by more than the overcharge tolerance. Such a charger
+/// overcharges once the battery is near full; the model's cells store nothing past full (their
+/// terminal stays near the limit), so the session's voltage alone would not show it. A charger
+/// without its own set point follows the battery's limit and is never past it.
+fn setpoint_past_limit(plant: &Plant, trace: &Trace) -> Option<SetpointPast> {
+    if !plant.has_converter() || plant.usb.is_some() {
+        return None;
+    }
+    let setpoint_v = plant.charger.cv_setpoint_v?;
+    let limit_v = trace
+        .rows
+        .iter()
+        .map(|r| r.charge_limit_v)
+        .filter(|v| v.is_finite())
+        .fold(f64::INFINITY, f64::min);
+    let tolerance_v = overcharge_tolerance_v(plant);
+    (limit_v.is_finite() && setpoint_v > limit_v + tolerance_v).then_some(SetpointPast {
+        setpoint_v,
+        limit_v,
+        tolerance_v,
+    })
+}
+
 fn overcharge_tolerance_v(plant: &Plant) -> f64 {
     plant.alerts.overcharge.tolerance_v_per_cell * plant.battery.series_cells()
 }
