@@ -478,6 +478,40 @@ fn a_charger_set_past_the_charge_limit_is_an_overcharging_design() {
     );
 }
 
+/// A supercapacitor bank held at constant current past full by a charger set far above its
+/// rated voltage: the explicit steps overshoot the fixed point at full by up to the integration
+/// tolerance (its acceptance ends within 1e-4 of full), which used to fail the run (exit 3,
+/// SOC 1 + 1.6e-8). It now completes, written with SOC in [0, 1], and is flagged as the
+/// overcharging design it is.
+#[test]
+fn a_supercap_bank_pushed_past_full_completes_and_is_flagged() {
+    let s = session(
+        "supercap-bank",
+        "steady",
+        600.0,
+        &[
+            ("converter.cv_setpoint_v", "39"),
+            ("converter.charge_current_a", "5"),
+            ("profile.cadence_scale", "2.5"),
+        ],
+    );
+    // Definition: SOC is the charge fraction V/V_rated of the bank, in [0, 1].
+    assert!(s
+        .result
+        .trace
+        .rows
+        .iter()
+        .all(|r| (0.0..=1.0).contains(&r.soc)));
+    assert!((0.0..=1.0).contains(&s.summary.soc_end));
+    // It reached full (the case that overshot).
+    assert!(s.summary.soc_end > 0.9999, "{}", s.summary.soc_end);
+    assert!(
+        s.summary.verdict.has("overcharge"),
+        "{:?}",
+        s.summary.verdict
+    );
+}
+
 /// A buck-boost whose buck stage falls into dropout as soon as it runs as a buck (a 3-Ω switch)
 /// used to trade modes at one instant until the run failed: it now enters buck mode only when
 /// the buck's own operating point holds, and the session completes.

@@ -10,8 +10,21 @@ use super::trace::Trace;
 /// (DESIGN.md §3: tests hold it under 0.1 %).
 pub const LEDGER_BOUND: f64 = 1e-3;
 
-/// SOC may pass 0 or 1 by this much (the integrator's rounding near the fixed point at full).
-pub const SOC_SLACK: f64 = 1e-9;
+/// How far SOC may pass 0 or 1 at integration tolerance `rtol`: by that tolerance (SOC is
+/// integrated to it on a value near 1), at least 1e-9 (rounding). An explicit step approaching
+/// the fixed point at full, where a charger keeps pushing current into a full cell whose charge
+/// acceptance ends steeply (a supercapacitor's, within 1e-4 of full), can overshoot it by that
+/// much: up to 5e-5 seen at rtol 1e-4 before the exact solution, which never passes 1, pulls it
+/// back. Past the tolerance it is a fault. Results are then written with SOC put back into
+/// [0, 1] ([`clamp_soc`]).
+pub fn soc_slack(rtol: f64) -> f64 {
+    rtol.max(1e-9)
+}
+
+/// SOC put back into [0, 1] once [`check`] has found it within [`soc_slack`] of it.
+pub fn clamp_soc(soc: f64) -> f64 {
+    soc.clamp(0.0, 1.0)
+}
 
 /// A broken law.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -67,8 +80,9 @@ pub fn check<S: Serialize>(
     duration_s: f64,
     ledger_error: f64,
     figures: &S,
+    soc_slack: f64,
 ) -> Result<(), Broken> {
-    let outside = |soc: f64| !(-SOC_SLACK..=1.0 + SOC_SLACK).contains(&soc);
+    let outside = |soc: f64| !(-soc_slack..=1.0 + soc_slack).contains(&soc);
     if let Some(row) = trace.rows.iter().find(|r| outside(r.soc)) {
         return Err(Broken::Soc {
             soc: row.soc,
@@ -177,18 +191,27 @@ mod tests {
     fn soc_past_full_and_an_open_ledger_are_refused() {
         let trace = Trace { rows: Vec::new() };
         assert!(matches!(
-            check(&trace, 1.015, 600.0, 1e-5, &0.0),
+            check(&trace, 1.015, 600.0, 1e-5, &0.0, 1e-9),
             Err(Broken::Soc { .. })
         ));
         assert!(matches!(
-            check(&trace, 0.5, 600.0, 7e-3, &0.0),
+            check(&trace, 0.5, 600.0, 7e-3, &0.0, 1e-9),
             Err(Broken::Ledger { .. })
         ));
         assert!(matches!(
-            check(&trace, 0.5, 600.0, f64::NAN, &0.0),
+            check(&trace, 0.5, 600.0, f64::NAN, &0.0, 1e-9),
             Err(Broken::Ledger { .. })
         ));
-        assert_eq!(check(&trace, 1.0, 600.0, 9e-4, &0.0), Ok(()));
+        assert_eq!(check(&trace, 1.0, 600.0, 9e-4, &0.0, 1e-9), Ok(()));
+        // Within the integration tolerance past full, but not beyond it.
+        assert_eq!(
+            check(&trace, 1.0 + 5e-5, 600.0, 9e-4, &0.0, soc_slack(1e-4)),
+            Ok(())
+        );
+        assert!(matches!(
+            check(&trace, 1.0 + 2e-4, 600.0, 9e-4, &0.0, soc_slack(1e-4)),
+            Err(Broken::Soc { .. })
+        ));
     }
 
     #[test]
@@ -200,11 +223,11 @@ mod tests {
             bad_value: f64::NAN,
         };
         assert!(matches!(
-            check(&trace, 0.5, 600.0, 7e-3, &bad),
+            check(&trace, 0.5, 600.0, 7e-3, &bad, 1e-9),
             Err(Broken::NonFinite { .. })
         ));
         assert!(matches!(
-            check(&trace, 0.5, 600.0, 7e-3, &Inner { bad_value: 1.0 }),
+            check(&trace, 0.5, 600.0, 7e-3, &Inner { bad_value: 1.0 }, 1e-9),
             Err(Broken::Ledger { .. })
         ));
     }

@@ -263,7 +263,7 @@ fn run_once(
         b.soc_start,
         b.temp_start_c.unwrap_or(sc.setup.ambient_c),
     );
-    let result = simulate_watched(&plant, y0, &opts, progress)?;
+    let mut result = simulate_watched(&plant, y0, &opts, progress)?;
     if let Some(bad) = first_non_finite(&result) {
         return Err(SessionError::Sim(SimError::NonFinite {
             t_s: bad,
@@ -271,14 +271,19 @@ fn run_once(
         }));
     }
     let wall = started.elapsed().as_secs_f64();
-    let summary = summarise(sc, &plant, &result, seed, rs.fidelity, wall);
+    let mut summary = summarise(sc, &plant, &result, seed, rs.fidelity, wall);
     invariants::check(
         &result.trace,
         summary.soc_end,
         result.duration_s,
         summary.energy_balance_error,
         &summary,
+        invariants::soc_slack(opts.rtol),
     )?;
+    for row in &mut result.trace.rows {
+        row.soc = invariants::clamp_soc(row.soc);
+    }
+    summary.soc_end = invariants::clamp_soc(summary.soc_end);
     Ok(Session { result, summary })
 }
 
