@@ -512,6 +512,43 @@ fn a_supercap_bank_pushed_past_full_completes_and_is_flagged() {
     );
 }
 
+/// A full Li-ion pack that goes on being charged (here straight from the generator, no charger)
+/// is overcharged: the model's full cell stores nothing more and turns the current into heat, so
+/// its terminal shows little, but the stored fraction does. A CC/CV charger that brings the pack
+/// to full ends on its termination current and is not flagged.
+#[test]
+fn a_full_li_ion_pack_still_charged_is_overcharged() {
+    // From memory: Battery University BU-409 "Charging Lithium-ion": Li-ion cannot absorb
+    // overcharge; once full the current must be cut off (no trickle charge), which a CC/CV charger
+    // does at C/10 … C/20 (REFERENCES.md §2).
+    let forced = session(
+        "demo",
+        "steady",
+        600.0,
+        &[
+            ("converter.topology", "direct"),
+            ("battery.soc_start", "0.9995"),
+            ("profile.cadence_scale", "0.7"),
+        ],
+    );
+    let m = &forced.summary;
+    assert!(m.verdict.has("overcharge"), "{:?}", m.verdict);
+    let rows = of_kind(&m.alerts, EventKind::MissedEndOfCharge);
+    assert!(!rows.is_empty(), "{:?}", m.alerts);
+    assert!(rows
+        .iter()
+        .all(|e| e.worst < e.threshold && e.affects_verdict));
+    let charged = session("demo", "steady", 600.0, &[("battery.soc_start", "0.97")]);
+    let c = &charged.summary;
+    assert!(c.soc_end > 0.98, "{}", c.soc_end);
+    assert!(!c.verdict.has("overcharge"), "{:?}", c.verdict);
+    assert!(of_kind(&c.alerts, EventKind::MissedEndOfCharge).is_empty());
+    assert!(c
+        .episodes
+        .iter()
+        .any(|e| e.kind == EventKind::ChargeComplete));
+}
+
 /// A buck-boost whose buck stage falls into dropout as soon as it runs as a buck (a 3-Ω switch)
 /// used to trade modes at one instant until the run failed: it now enters buck mode only when
 /// the buck's own operating point holds, and the session completes.

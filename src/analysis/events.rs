@@ -58,7 +58,8 @@ impl EventKind {
     }
 
     /// Whether a row of this kind means the battery was overcharged: past its voltage limit, or
-    /// (NiMH) full and still fast-charged.
+    /// full and still charged (NiMH fast-charged past its end; Li-ion or supercapacitor past
+    /// full).
     pub fn is_overcharge(self) -> bool {
         matches!(self, EventKind::Overcharge | EventKind::MissedEndOfCharge)
     }

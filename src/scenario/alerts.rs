@@ -227,9 +227,11 @@ pub struct MissedEndRule {
     pub stored_fraction: f64,
     /// The episode ends once the stored fraction is this much higher (0 … 0.5); default 0.05.
     pub hysteresis_fraction: f64,
-    /// Only charge currents above this fraction of the capacity per hour count (0 … 10); default
-    /// 0.1: sealed nickel cells recombine the oxygen of a continuous overcharge up to about C/10
-    /// (the rate of the standard 14–16-h charge), not a fast charge's (common practice).
+    /// Only charge currents above this fraction of the capacity per hour count (0 … 10), or above
+    /// the charger's termination current where that is higher; default 0.1: sealed nickel cells
+    /// recombine the oxygen of a continuous overcharge up to about C/10 (the rate of the standard
+    /// 14–16-h charge), not a fast charge's (common practice). Li-ion and supercapacitor cells
+    /// are watched the same way (their model stores nothing past full).
     pub min_c_rate: f64,
     /// Least time past the threshold, s (0 … 3600); default 30.
     pub dwell_s: f64,

@@ -161,10 +161,9 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
         ),
         u8::from(conv && d.enabled && !d.ov_shutdown && plant.foldback(y) < 1.0),
         u8::from(
-            plant.battery_is_nimh()
+            full_cell_watched(plant)
                 && d.stage == Stage::Charging
-                && p.net.battery_current_a
-                    > a.missed_end_of_charge.min_c_rate * plant.battery.capacity_ah()
+                && p.net.battery_current_a > full_cell_current_a(plant)
                 && past(
                     stored_fraction(plant, p, y),
                     a.missed_end_of_charge.stored_fraction,
@@ -181,6 +180,26 @@ pub fn codes(plant: &Plant, p: &Point, y: &State, d: &Discrete, open: &Codes) ->
             open[12] != 0,
         )),
     ]
+}
+
+/// Whether a full cell still charged is watched (`missed_end_of_charge`): NiMH, whose charger
+/// must end on −ΔV or dT/dt, and Li-ion and supercapacitor cells, whose model stores nothing
+/// past full and turns the rest of the current into heat while a real cell is driven past its
+/// voltage limit. Lead-acid has its own gassing branch, whose voltage the overcharge alert sees.
+fn full_cell_watched(plant: &Plant) -> bool {
+    plant.usb.is_none()
+        && matches!(
+            plant.battery,
+            BatteryModel::Nimh(_) | BatteryModel::LiIon(_) | BatteryModel::Supercap(_)
+        )
+}
+
+/// Charge current above which a full cell counts as still charged, A: the rule's C-rate (a
+/// sealed nickel cell recombines the oxygen of up to C/10) or the charger's termination current
+/// (where a CC/CV charger ends), whichever is higher.
+pub fn full_cell_current_a(plant: &Plant) -> f64 {
+    (plant.alerts.missed_end_of_charge.min_c_rate * plant.battery.capacity_ah())
+        .max(plant.charger.termination_current_a)
 }
 
 /// The fraction of a charging current the battery stores (1 when it does not charge).
@@ -470,10 +489,17 @@ fn detail_of(kind: EventKind, code: u8, p: &Point, plant: &Plant) -> String {
             ),
             _ => "CV current fell below the termination current: charge terminated".to_string(),
         },
-        EventKind::MissedEndOfCharge => format!(
-            "pack full and still fast-charged: it stores less than {:.0} % of the current (the rest evolves oxygen, recombined as heat); the -dV or dT/dt end did not come",
-            100.0 * plant.alerts.missed_end_of_charge.stored_fraction
-        ),
+        EventKind::MissedEndOfCharge => match &plant.battery {
+            BatteryModel::Nimh(_) => format!(
+                "pack full and still fast-charged: it stores less than {:.0} % of the current (the rest evolves oxygen, recombined as heat); the -dV or dT/dt end did not come",
+                100.0 * plant.alerts.missed_end_of_charge.stored_fraction
+            ),
+            _ => format!(
+                "full and still charged above {:.3} A: it stores less than {:.0} % of the current; the model turns the rest into heat, a real cell is driven past its voltage limit",
+                full_cell_current_a(plant),
+                100.0 * plant.alerts.missed_end_of_charge.stored_fraction
+            ),
+        },
         EventKind::TemperatureRise => format!(
             "battery temperature rising faster than {:.2} degC/min",
             plant.alerts.temperature_rise.threshold_c_per_min

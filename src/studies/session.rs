@@ -436,7 +436,8 @@ fn verdict_of(
         .iter()
         .map(|e| e.worst - e.threshold)
         .fold(f64::NEG_INFINITY, f64::max);
-    // NiMH: a full pack still fast-charged is overcharged whatever its voltage does.
+    // A full pack still charged (NiMH fast-charged past its end; Li-ion or supercapacitor past
+    // full) is overcharged whatever its modelled voltage does.
     let missed: Vec<&Event> = rows
         .iter()
         .filter(|e| e.kind == EventKind::MissedEndOfCharge)
@@ -445,7 +446,7 @@ fn verdict_of(
         flags.push("overcharge");
         let lowest = missed.iter().map(|e| e.worst).fold(f64::INFINITY, f64::min);
         reasons.push(format!(
-            "overcharge: {} episode(s) of a full pack still fast-charged, storing as little as {:.0} % of the current (the end of charge was missed)",
+            "overcharge: {} episode(s) of a full pack still charged, storing as little as {:.0} % of the current (nothing ended the charge)",
             missed.len(),
             100.0 * lowest
         ));
