@@ -75,6 +75,21 @@ fn assert_chart(dir: &Path, stem: &str) {
 }
 
 /// Percentile by linear interpolation between order statistics, written here independently.
+/// The notes `check --json` gives for `setup` with the `--set` overrides.
+fn check_notes(wd: &WorkDir, setup: &str, sets: &[&str]) -> Vec<String> {
+    let mut args = vec!["check", setup, "--json"];
+    for s in sets {
+        args.extend(["--set", s]);
+    }
+    let v: Value = serde_json::from_str(&run_ok(wd, &args)).expect("JSON");
+    v["notes"]
+        .as_array()
+        .expect("notes")
+        .iter()
+        .map(|n| n.as_str().unwrap_or_default().to_string())
+        .collect()
+}
+
 fn percentile_here(values: &[f64], q: f64) -> f64 {
     let mut v = values.to_vec();
     v.sort_by(f64::total_cmp);
@@ -836,19 +851,7 @@ fn check_names_a_lossy_buck_boosts_fold_short_of_its_current() {
     // over; with half an ohm in each switch it cannot (the fold's current is short of 2 A), and
     // `check` says so, with the fold's duty below D_max.
     let wd = WorkDir::new();
-    let notes = |sets: &[&str]| -> Vec<String> {
-        let mut args = vec!["check", "demo-buck-boost", "--json"];
-        for s in sets {
-            args.extend(["--set", s]);
-        }
-        let v: Value = serde_json::from_str(&run_ok(&wd, &args)).expect("JSON");
-        v["notes"]
-            .as_array()
-            .expect("notes")
-            .iter()
-            .map(|n| n.as_str().unwrap_or_default().to_string())
-            .collect()
-    };
+    let notes = |sets: &[&str]| check_notes(&wd, "demo-buck-boost", sets);
     assert!(!notes(&[]).iter().any(|n| n.contains("fold")));
     let lossy = notes(&["converter.switch_resistance_ohm=0.5"]);
     let fold = lossy
@@ -864,16 +867,7 @@ fn check_warns_of_a_set_point_past_the_charge_limit() {
     // Source: Battery University BU-409 (REFERENCES.md): 4.20 V/cell ± 50 mV for NMC, so the
     // demo's 3S pack allows 12.60 V + 0.15 V: 13.0 V is past it, 12.70 V within the tolerance.
     let wd = WorkDir::new();
-    let notes = |set: &str| -> Vec<String> {
-        let v: Value =
-            serde_json::from_str(&run_ok(&wd, &["check", "--json", "--set", set])).expect("JSON");
-        v["notes"]
-            .as_array()
-            .expect("notes")
-            .iter()
-            .map(|n| n.as_str().unwrap_or_default().to_string())
-            .collect()
-    };
+    let notes = |set: &str| check_notes(&wd, "demo", &[set]);
     let past = notes("converter.cv_setpoint_v=13.0");
     assert!(
         past.iter()
