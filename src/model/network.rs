@@ -834,7 +834,6 @@ fn bb_current_at_duty(bb: &BuckBoostModel, term: &Terminal, v: f64, d: f64) -> f
 /// duty where the drive first exceeds the output, then unimodal).
 pub fn bb_fold(bb: &BuckBoostModel, term: &Terminal, v: f64) -> Option<(f64, f64)> {
     const SAMPLES: usize = 200;
-    const INV_PHI: f64 = 0.618_033_988_749_894_8;
     let d_max = bb.max_duty;
     let f = |d: f64| bb_current_at_duty(bb, term, v, d);
     let step = d_max / SAMPLES as f64;
@@ -847,27 +846,8 @@ pub fn bb_fold(bb: &BuckBoostModel, term: &Terminal, v: f64) -> Option<(f64, f64
             (d, f(d))
         })
         .max_by(|a, b| a.1.total_cmp(&b.1))?;
-    let (mut lo, mut hi) = ((best - step).max(0.0), (best + step).min(d_max));
-    let mut a = hi - INV_PHI * (hi - lo);
-    let mut b = lo + INV_PHI * (hi - lo);
-    let (mut fa, mut fb) = (f(a), f(b));
-    while hi - lo > 1e-10 {
-        if fa >= fb {
-            hi = b;
-            b = a;
-            fb = fa;
-            a = hi - INV_PHI * (hi - lo);
-            fa = f(a);
-        } else {
-            lo = a;
-            a = b;
-            fa = fb;
-            b = lo + INV_PHI * (hi - lo);
-            fb = f(b);
-        }
-    }
-    let d = 0.5 * (lo + hi);
-    let i = f(d);
+    let (lo, hi) = ((best - step).max(0.0), (best + step).min(d_max));
+    let (d, i) = golden_max(lo, hi, 1e-10, f, |_| false);
     (d < d_max - 1e-6 && i > 0.0).then_some((d, i))
 }
 
@@ -929,18 +909,31 @@ fn short_up_to(upto: f64, max_evals: usize, g: impl Fn(f64) -> (f64, f64)) -> bo
     false
 }
 
-/// Maximum of a unimodal `f` on [lo, hi] by golden-section search: (argmax, max).
-fn peak_of(mut lo: f64, mut hi: f64, f: impl Fn(f64) -> f64) -> (f64, f64) {
-    const INV_PHI: f64 = 0.618_033_988_749_894_8;
+/// Maximum of a unimodal `f` on [lo, hi] by golden-section search, stopped early at the first
+/// non-negative value (a residual that reaches zero has a root to its side): (argmax, max).
+fn peak_of(lo: f64, hi: f64, f: impl Fn(f64) -> f64) -> (f64, f64) {
     let tol = CURRENT_TOL_A.max(1e-12 * hi.abs());
+    golden_max(lo, hi, tol, f, |v| v >= 0.0)
+}
+
+/// Maximum of a unimodal `f` on [lo, hi] by golden-section search to an interval of `tol`, or
+/// the first probe whose value satisfies `enough`: (argmax, max).
+fn golden_max(
+    mut lo: f64,
+    mut hi: f64,
+    tol: f64,
+    f: impl Fn(f64) -> f64,
+    enough: impl Fn(f64) -> bool,
+) -> (f64, f64) {
+    const INV_PHI: f64 = 0.618_033_988_749_894_8;
     let mut a = hi - INV_PHI * (hi - lo);
     let mut b = lo + INV_PHI * (hi - lo);
     let (mut fa, mut fb) = (f(a), f(b));
     for _ in 0..200 {
-        if fa >= 0.0 {
+        if enough(fa) {
             return (a, fa);
         }
-        if fb >= 0.0 {
+        if enough(fb) {
             return (b, fb);
         }
         if hi - lo <= tol {
