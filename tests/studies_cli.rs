@@ -882,6 +882,33 @@ fn check_warns_of_a_set_point_past_the_charge_limit() {
 }
 
 #[test]
+fn montecarlo_counts_a_charger_set_past_the_limit_as_overcharging_every_run() {
+    // The set-point flag has no row of its own: the population's overcharge share must still
+    // count it (a design that overcharges every operator's battery once full is not at 0 %).
+    // Source: Battery University BU-409 (REFERENCES.md): 4.20 V/cell ± 50 mV, so 13 V on the
+    // demo's 3S pack is past its limit.
+    let wd = WorkDir::new();
+    run_ok(
+        &wd,
+        &[
+            "montecarlo",
+            "demo",
+            "--runs",
+            "4",
+            "--duration",
+            "30",
+            "-q",
+            "--set",
+            "converter.cv_setpoint_v=13",
+            "--out",
+            "mc",
+        ],
+    );
+    let r = read_json(&wd.path("mc/montecarlo.json"));
+    assert_eq!(num(&r, "overcharge_probability"), 1.0);
+}
+
+#[test]
 fn check_prints_figures_and_the_cautions() {
     let wd = WorkDir::new();
     let out = run_ok(&wd, &["check"]);

@@ -337,6 +337,13 @@ impl Summary {
         ]
     }
 
+    /// Whether the session overcharged: an overcharge row (past the voltage limit, or a full pack
+    /// still charged; such rows always count towards the verdict), or the verdict's flag (which a
+    /// charger set past the limit raises without a row).
+    pub fn overcharged(&self) -> bool {
+        self.alerts.iter().any(|e| e.kind.is_overcharge()) || self.verdict.has("overcharge")
+    }
+
     /// Every row of `events.csv`: the alerts and the episodes, by start time.
     pub fn events(&self) -> Vec<Event> {
         let mut v: Vec<Event> = self.alerts.iter().chain(&self.episodes).cloned().collect();

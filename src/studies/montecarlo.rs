@@ -175,7 +175,7 @@ pub struct Report {
     pub operator_work_j: Spread,
     pub mean_operator_power_w: Spread,
     pub max_battery_v: Spread,
-    /// Fraction of completed runs with at least one overcharge row.
+    /// Fraction of completed runs that overcharged ([`Summary::overcharged`]).
     pub overcharge_probability: f64,
     /// Wilson 95 % interval of that fraction.
     pub overcharge_probability_95: (f64, f64),
@@ -284,10 +284,7 @@ pub fn run(a: &MontecarloArgs) -> Result<i32, Failure> {
         .collect();
     let work = metric(|m| m.operator_work_j);
     let n = done.len();
-    let over = done
-        .iter()
-        .filter(|m| m.alerts.iter().any(|e| e.kind.is_overcharge()))
-        .count();
+    let over = done.iter().filter(|m| m.overcharged()).count();
     let min_reg = sc.setup.alerts.min_in_regulation_fraction;
     let fails = reg.iter().filter(|&&f| f < min_reg).count();
     let regulated = !reg.is_empty();

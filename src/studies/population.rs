@@ -40,7 +40,7 @@ const fn fig(name: &'static str, better: Sense, about: &'static str) -> FigureDe
 pub const FIGURES: [FigureDef; 19] = [
     fig("operators", Sense::Max, "operators whose session completed"),
     fig("runs_failed", Sense::Min, "operators whose session failed (left out of the figures)"),
-    fig("p_overcharge", Sense::Min, "share of operators with at least one overcharge row"),
+    fig("p_overcharge", Sense::Min, "share of operators whose session overcharged"),
     fig("p_overcharge_lo", Sense::Min, "Wilson 95 % interval of p_overcharge, lower end"),
     fig("p_overcharge_hi", Sense::Min, "Wilson 95 % interval of p_overcharge, upper end"),
     fig(
@@ -147,7 +147,7 @@ pub fn evaluate(
                 let m = s.summary;
                 let events = m.events();
                 RunFigures {
-                    overcharge: events.iter().any(|e| e.kind.is_overcharge()),
+                    overcharge: m.overcharged(),
                     overload: events.iter().any(|e| e.kind == EventKind::OperatorOverload),
                     in_regulation: m.in_regulation_fraction,
                     charge_ah: m.charge_delivered_ah,
