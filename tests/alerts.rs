@@ -331,6 +331,24 @@ fn a_regulation_figure_near_its_threshold_is_marginal() {
     assert_eq!(verdict(f - 0.05).verdict.words(), ["ok"]);
 }
 
+/// A single Li-ion cell held by its CV charger exactly at its limit lies one tolerance under
+/// the overcharge threshold, the decision band's width: that is the charger doing its job, not
+/// a figure the model cannot decide (floats at the band's edge once made it `marginal`).
+#[test]
+fn a_single_cell_held_at_its_cv_limit_is_not_marginal() {
+    // Source: Battery University BU-409 (REFERENCES.md): CV 4.20 V/cell ± 50 mV; the phone's 1S
+    // cell's own CC/CV charger holds it at 4.20 V.
+    let s = session(
+        "usb-phone",
+        "steady",
+        600.0,
+        &[("battery.soc_start", "0.98")],
+    );
+    let m = &s.summary;
+    assert!((m.max_battery_v - 4.2).abs() < 1e-6, "{}", m.max_battery_v);
+    assert_eq!(m.verdict.words(), ["ok"], "{:?}", m.verdict_reasons);
+}
+
 #[test]
 fn a_battery_voltage_near_the_overcharge_threshold_is_marginal() {
     // Held at its absorption limit, the lead-acid battery sits 0.3 V (6 × 0.05 V) under the

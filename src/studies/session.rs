@@ -401,6 +401,11 @@ pub fn timing(a: &Alerts, kind: EventKind) -> Timing {
     }
 }
 
+/// Rounding allowed at the edge of the overcharge decision band, V: a single cell held at its
+/// CV limit lies exactly one tolerance (0.05 V) under the threshold, the band's width, and the
+/// difference of the two floats came out a few ulps under it (`marginal`).
+const BAND_ROUNDING_V: f64 = 1e-9;
+
 /// The verdict and the reasons for each flag. Overcharge: any overcharge row; regulation: the
 /// in-regulation fraction below its minimum. A figure closer to its threshold than the decision
 /// band (the agreement stated between the fidelities) is `marginal` instead: the model cannot
@@ -458,7 +463,7 @@ fn verdict_of(
             over.len(),
             deepest
         ));
-    } else if (threshold_at_peak_v - peak_v).abs() < band_v || !over.is_empty() {
+    } else if (threshold_at_peak_v - peak_v).abs() < band_v - BAND_ROUNDING_V || !over.is_empty() {
         flags.push(MARGINAL);
         reasons.push(format!(
             "max_battery_v {peak_v:.3} V lies within {band_v:.3} V of the overcharge threshold {threshold_at_peak_v:.3} V"
