@@ -88,7 +88,12 @@ fn past(value: f64, threshold: f64, hysteresis: f64, above: bool, open: bool) ->
 /// Overcharge threshold of the battery terminal at a point: the charge limit in force plus the
 /// tolerance per series cell, V.
 pub fn overcharge_threshold_v(plant: &Plant, p: &Point) -> f64 {
-    p.charge_limit_v + plant.alerts.overcharge.tolerance_v_per_cell * plant.battery.series_cells()
+    p.charge_limit_v + overcharge_tolerance_v(plant)
+}
+
+/// The overcharge tolerance of the whole battery, V (per-cell tolerance × series cells).
+pub fn overcharge_tolerance_v(plant: &Plant) -> f64 {
+    plant.alerts.overcharge.tolerance_v_per_cell * plant.battery.series_cells()
 }
 
 /// Evaluates every watched condition at a point; `open` holds the codes of the runs open now
@@ -197,7 +202,7 @@ fn full_cell_watched(plant: &Plant) -> bool {
 /// Charge current above which a full cell counts as still charged, A: the rule's C-rate (a
 /// sealed nickel cell recombines the oxygen of up to C/10) or the charger's termination current
 /// (where a CC/CV charger ends), whichever is higher.
-pub fn full_cell_current_a(plant: &Plant) -> f64 {
+fn full_cell_current_a(plant: &Plant) -> f64 {
     (plant.alerts.missed_end_of_charge.min_c_rate * plant.battery.capacity_ah())
         .max(plant.charger.termination_current_a)
 }

@@ -11,6 +11,7 @@ use crate::model::jitter::JitterTrack;
 use crate::model::network::{self, Load, NetworkPoint};
 use crate::scenario::setup::Topology;
 use crate::scenario::Scenario;
+use crate::simulate::observe::overcharge_tolerance_v;
 use crate::simulate::plant::Plant;
 use crate::units::rpm_to_rad_s;
 
@@ -330,7 +331,7 @@ pub fn analyse(sc: &Scenario, plant: &Plant) -> Report {
                 fold_note(&mut notes, plant, &bs_start, start_target);
             }
             let limit_v = battery.charge_limit_v(temp_start);
-            let tolerance_v = plant.alerts.overcharge.tolerance_v_per_cell * battery.series_cells();
+            let tolerance_v = overcharge_tolerance_v(plant);
             if c.cv_setpoint_v.is_some_and(|v| v > limit_v + tolerance_v) {
                 notes.push(format!(
                     "The charger's CV set point {setpoint:.3} V lies {:.3} V past the battery's charge limit {limit_v:.3} V at {temp_start} °C (tolerance {tolerance_v:.3} V): it will overcharge the battery once it is near full, and a run's verdict says `overcharge` whatever the session reaches.",

@@ -16,7 +16,9 @@ use crate::scenario::limits::MAX_IMPLIED_STEPS;
 use crate::scenario::validate::{MIN_MAX_STEP_S, MIN_RTOL};
 use crate::scenario::Scenario;
 use crate::simulate::engine::initial_state;
-use crate::simulate::observe::{REGULATION_CAUSES_COUNTED_ONLY, USB_OUT_OF_BAND};
+use crate::simulate::observe::{
+    overcharge_tolerance_v, REGULATION_CAUSES_COUNTED_ONLY, USB_OUT_OF_BAND,
+};
 use crate::simulate::plant::Plant;
 use crate::simulate::{
     simulate_watched, Fidelity, Method, Progress, SimError, SimOptions, SimResult,
@@ -735,7 +737,6 @@ fn nimh_summary(plant: &Plant, r: &SimResult) -> Option<NimhSummary> {
     })
 }
 
-/// The overcharge tolerance of the whole battery, V (per-cell tolerance × series cells).
 /// A charger voltage set point past the battery's charge limit.
 #[derive(Debug, Clone, Copy, PartialEq)]
 struct SetpointPast {
@@ -767,10 +768,6 @@ fn setpoint_past_limit(plant: &Plant, trace: &Trace) -> Option<SetpointPast> {
         limit_v,
         tolerance_v,
     })
-}
-
-fn overcharge_tolerance_v(plant: &Plant) -> f64 {
-    plant.alerts.overcharge.tolerance_v_per_cell * plant.battery.series_cells()
 }
 
 /// The bus figures of a session with a USB port (None for a battery output).
